@@ -1,0 +1,67 @@
+"""Every error Backsight raises on purpose derives from :class:`LedgerError`.
+
+The command line catches ``LedgerError`` in one place, prints ``Error: <message>`` on stderr and
+exits with code 1. Library code never prints and never exits.
+"""
+
+__all__ = [
+    "LedgerError",
+    "NotALedger",
+    "SchemaTooNew",
+    "SchemaTooOld",
+    "InputError",
+    "FrequencyError",
+    "RunConflict",
+    "UnknownName",
+    "NotEnoughData",
+    "LedgerBusy",
+]
+
+
+class LedgerError(Exception):
+    """Base class of every error Backsight raises on purpose."""
+
+
+class NotALedger(LedgerError):
+    """The file exists but is not a Backsight ledger."""
+
+
+class SchemaTooNew(LedgerError):
+    """The ledger was written by a newer Backsight than this one."""
+
+
+class SchemaTooOld(LedgerError):
+    """The ledger was written by an older Backsight and must be migrated first."""
+
+
+class InputError(LedgerError):
+    """An input file or frame is malformed; the message names file, row and column."""
+
+    def __init__(self, source: str, message: str, row: int | None = None, column: str | None = None):
+        where = source
+        if row is not None:
+            where += f" row {row}"
+        if column is not None:
+            where += f" column {column}"
+        super().__init__(f"{where}: {message}")
+        self.source, self.row, self.column, self.detail = source, row, column, message
+
+
+class FrequencyError(LedgerError):
+    """A period's frequency is ambiguous or contradicts what the ledger recorded."""
+
+
+class RunConflict(LedgerError):
+    """A run differs from one already recorded under the same model and origin."""
+
+
+class UnknownName(LedgerError):
+    """A model, series, grouping key or option value that the ledger does not know."""
+
+
+class NotEnoughData(LedgerError):
+    """There are too few scored cells to compute what was asked."""
+
+
+class LedgerBusy(LedgerError):
+    """Another process holds the ledger file."""

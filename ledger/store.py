@@ -1,0 +1,318 @@
+"""The ledger file: DuckDB schema, schema version, transactions and as-of views.
+
+One DuckDB file holds everything. Runs and actual revisions are only ever appended; the one
+column that changes after a write is ``runs.superseded_by``, set when a newer run replaces a
+run of the same model and origin (the old run stays).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import datetime as dt
+import hashlib
+import os
+from collections.abc import Iterator
+from pathlib import Path
+
+import duckdb
+import numpy as np
+import pandas as pd
+
+from . import __version__
+from .errors import LedgerBusy, LedgerError, NotALedger, SchemaTooNew, SchemaTooOld
+
+__all__ = [
+    "SCHEMA_VERSION",
+    "DDL",
+    "Store",
+    "utc_now",
+    "parse_as_of",
+    "live_runs_sql",
+    "latest_actuals_sql",
+]
+
+# History of the schema (bump on any change to DDL; add a migration for the old version):
+#   1 — first version: meta, series, runs, forecasts, bounds, quantiles, actuals.
+SCHEMA_VERSION = 1
+
+DDL = """
+-- Facts about the file itself: schema_version, created_at, writer_version, and settings
+-- such as the incumbent model.
+CREATE TABLE meta (
+    key   VARCHAR PRIMARY KEY,
+    value VARCHAR NOT NULL
+);
+
+-- A row per series, fixed at first sight. season_length defaults from the frequency.
+CREATE TABLE series (
+    series        VARCHAR PRIMARY KEY,
+    frequency     VARCHAR NOT NULL,
+    season_length INTEGER NOT NULL,
+    first_seen    TIMESTAMP NOT NULL
+);
+
+-- A row per forecast run: one model's forecasts made at one origin. Immutable except for
+-- superseded_by, which names the run that replaced it. content_hash covers model, origin,
+-- frequency and every forecast, bound and quantile of the run.
+CREATE TABLE runs (
+    run_id        VARCHAR PRIMARY KEY,
+    model         VARCHAR NOT NULL,
+    frequency     VARCHAR NOT NULL,
+    origin        DATE NOT NULL,
+    origin_index  INTEGER NOT NULL,
+    recorded_at   TIMESTAMP NOT NULL,
+    source        VARCHAR,
+    note          VARCHAR,
+    content_hash  VARCHAR NOT NULL,
+    n_cells       BIGINT NOT NULL,
+    superseded_by VARCHAR
+);
+
+-- A row per (run, series, target period): the point forecast. horizon = period_index -
+-- origin_index >= 1. No declared key: uniqueness is enforced at ingest, and an index would
+-- slow million-row snapshots.
+CREATE TABLE forecasts (
+    run_id       VARCHAR NOT NULL,
+    series       VARCHAR NOT NULL,
+    period       DATE NOT NULL,
+    period_index INTEGER NOT NULL,
+    horizon      INTEGER NOT NULL,
+    point        DOUBLE NOT NULL
+);
+
+-- A row per forecast and interval level (a percentage in (0, 100)).
+CREATE TABLE bounds (
+    run_id       VARCHAR NOT NULL,
+    series       VARCHAR NOT NULL,
+    period_index INTEGER NOT NULL,
+    level        DOUBLE NOT NULL,
+    lower        DOUBLE NOT NULL,
+    upper        DOUBLE NOT NULL
+);
+
+-- A row per forecast and quantile level tau in (0, 1).
+CREATE TABLE quantiles (
+    run_id       VARCHAR NOT NULL,
+    series       VARCHAR NOT NULL,
+    period_index INTEGER NOT NULL,
+    tau          DOUBLE NOT NULL,
+    value        DOUBLE NOT NULL
+);
+
+-- A row per revision of an actual. Revision 1 is the first value recorded; a changed value
+-- appends revision n + 1. Scoring uses the newest revision recorded at or before the as-of.
+CREATE TABLE actuals (
+    series       VARCHAR NOT NULL,
+    period       DATE NOT NULL,
+    period_index INTEGER NOT NULL,
+    value        DOUBLE NOT NULL,
+    revision     INTEGER NOT NULL,
+    recorded_at  TIMESTAMP NOT NULL,
+    source       VARCHAR
+);
+"""
+
+TABLES = ("meta", "series", "runs", "forecasts", "bounds", "quantiles", "actuals")
+
+
+def utc_now() -> dt.datetime:
+    """The current time in UTC, without tzinfo (how the ledger stores times)."""
+    return dt.datetime.now(dt.UTC).replace(tzinfo=None)
+
+
+def parse_as_of(value: str | dt.datetime | dt.date | None) -> dt.datetime:
+    """An as-of time in UTC (naive). None means now; a bare date means the end of that day (UTC)."""
+    if value is None:
+        return utc_now()
+    if isinstance(value, dt.datetime):
+        stamp = value
+    elif isinstance(value, dt.date):
+        return dt.datetime.combine(value, dt.time.max)
+    else:
+        text = str(value).strip()
+        try:
+            stamp = dt.datetime.fromisoformat(text.replace("Z", "+00:00"))
+        except ValueError:
+            raise LedgerError(
+                f"--as-of {value!r} is not a time; use ISO 8601, e.g. 2026-11-30 or 2026-11-30T17:00"
+            ) from None
+        if len(text) == 10:
+            return dt.datetime.combine(stamp.date(), dt.time.max)
+    if stamp.tzinfo is not None:
+        stamp = stamp.astimezone(dt.UTC).replace(tzinfo=None)
+    return stamp
+
+
+def live_runs_sql() -> str:
+    """Runs in force at the as-of ($as_of): the newest run per model, frequency and origin."""
+    return """
+    SELECT run_id, model, frequency, origin, origin_index, recorded_at FROM (
+        SELECT r.*, row_number() OVER (
+            PARTITION BY model, frequency, origin_index ORDER BY recorded_at DESC) AS rn
+        FROM runs r WHERE recorded_at <= $as_of) t
+    WHERE rn = 1"""
+
+
+def latest_actuals_sql() -> str:
+    """The newest revision of each actual recorded at or before the as-of ($as_of)."""
+    return """
+    SELECT series, period, period_index, value, revision, recorded_at FROM (
+        SELECT a.*, row_number() OVER (
+            PARTITION BY series, period_index ORDER BY revision DESC) AS rn
+        FROM actuals a WHERE recorded_at <= $as_of) t
+    WHERE rn = 1"""
+
+
+class Store:
+    """An open ledger file. Use :meth:`open`; close with :meth:`close` or a ``with`` block."""
+
+    def __init__(self, con: duckdb.DuckDBPyConnection, path: Path):
+        self.con = con
+        self.path = path
+
+    @classmethod
+    def open(cls, path: str | os.PathLike, *, create: bool = True, read_only: bool = False) -> "Store":
+        """Open (or, with ``create``, create) the ledger at ``path``."""
+        path = Path(path)
+        exists = path.exists()
+        if not exists and not create:
+            raise NotALedger(
+                f"no ledger at {path}; record something first (backsight snapshot FILE or "
+                "backsight actuals FILE), or point --ledger at an existing file"
+            )
+        if exists and path.is_dir():
+            raise NotALedger(f"{path} is a folder, not a ledger file")
+        con = _connect(path, read_only=read_only and exists)
+        store = cls(con, path)
+        try:
+            if exists and _has_tables(con):
+                store._check_schema()
+            elif exists and path.stat().st_size > 0 and not _is_empty_db(con):
+                raise NotALedger(f"{path} is a DuckDB file but not a Backsight ledger (no meta table)")
+            else:
+                store._create()
+        except BaseException:
+            con.close()
+            raise
+        return store
+
+    def close(self) -> None:
+        self.con.close()
+
+    def __enter__(self) -> "Store":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def _create(self) -> None:
+        with self.transaction():
+            self.con.execute(DDL)
+            now = utc_now().isoformat(timespec="microseconds")
+            self.con.executemany(
+                "INSERT INTO meta VALUES (?, ?)",
+                [["schema_version", str(SCHEMA_VERSION)], ["created_at", now],
+                 ["writer_version", __version__]],
+            )
+
+    def _check_schema(self) -> None:
+        rows = self.con.execute("SELECT value FROM meta WHERE key = 'schema_version'").fetchall()
+        if not rows:
+            raise NotALedger(f"{self.path} has a meta table but no schema_version; not a Backsight ledger")
+        found = int(rows[0][0])
+        if found > SCHEMA_VERSION:
+            raise SchemaTooNew(
+                f"{self.path} has schema version {found}, newer than this Backsight "
+                f"({__version__}) understands ({SCHEMA_VERSION}); upgrade Backsight"
+            )
+        if found < SCHEMA_VERSION:
+            raise SchemaTooOld(f"{self.path} has schema version {found}; this Backsight needs {SCHEMA_VERSION}")
+
+    @contextlib.contextmanager
+    def transaction(self) -> Iterator[duckdb.DuckDBPyConnection]:
+        """All or nothing: commit when the block ends, roll back on any exception."""
+        self.con.execute("BEGIN TRANSACTION")
+        try:
+            yield self.con
+        except BaseException:
+            self.con.execute("ROLLBACK")
+            raise
+        self.con.execute("COMMIT")
+
+    def get_setting(self, key: str) -> str | None:
+        rows = self.con.execute("SELECT value FROM meta WHERE key = ?", [key]).fetchall()
+        return rows[0][0] if rows else None
+
+    def set_setting(self, key: str, value: str) -> None:
+        with self.transaction() as con:
+            con.execute("DELETE FROM meta WHERE key = ?", [key])
+            con.execute("INSERT INTO meta VALUES (?, ?)", [key, value])
+
+    def next_timestamp(self) -> dt.datetime:
+        """Now, or just after the newest recorded time, so that as-of order is strict."""
+        row = self.con.execute(
+            "SELECT max(t) FROM (SELECT max(recorded_at) t FROM runs UNION ALL "
+            "SELECT max(recorded_at) FROM actuals)"
+        ).fetchall()[0]
+        now = utc_now()
+        if row[0] is not None and row[0] >= now:
+            return row[0] + dt.timedelta(microseconds=1)
+        return now
+
+    def state_hash(self, as_of: dt.datetime) -> str:
+        """A content hash of what the ledger held at ``as_of``: live runs and actual revisions."""
+        runs = self.con.execute(
+            f"SELECT content_hash FROM ({live_runs_sql()}) l JOIN runs USING (run_id) "
+            "ORDER BY content_hash", {"as_of": as_of}
+        ).fetchall()
+        acts = self.con.execute(
+            "SELECT series, period_index, revision, value FROM actuals WHERE recorded_at <= $as_of "
+            "ORDER BY series, period_index, revision", {"as_of": as_of}
+        ).df()
+        digest = hashlib.sha256()
+        for (h,) in runs:
+            digest.update(h.encode())
+        digest.update(b"\x00actuals\x00")
+        _hash_frame(digest, acts)
+        return digest.hexdigest()
+
+    def table_hash(self, table: str) -> str:
+        """A content hash of one table (every row, in a canonical order); used by tests and verify."""
+        if table not in TABLES:
+            raise LedgerError(f"unknown table {table!r}; tables are {', '.join(TABLES)}")
+        frame = self.con.execute(f"SELECT * FROM {table} ORDER BY ALL").df()
+        digest = hashlib.sha256()
+        _hash_frame(digest, frame)
+        return digest.hexdigest()
+
+
+def _hash_frame(digest, frame: pd.DataFrame) -> None:
+    for name in frame.columns:
+        digest.update(f"\x00{name}\x00".encode())
+        col = frame[name]
+        if pd.api.types.is_float_dtype(col) or pd.api.types.is_integer_dtype(col):
+            digest.update(np.ascontiguousarray(col.to_numpy(dtype="float64", na_value=np.nan)).tobytes())
+        else:
+            digest.update("\x1f".join("" if pd.isna(v) else str(v) for v in col).encode())
+
+
+def _connect(path: Path, *, read_only: bool) -> duckdb.DuckDBPyConnection:
+    try:
+        return duckdb.connect(str(path), read_only=read_only)
+    except duckdb.IOException as exc:
+        text = str(exc)
+        if "lock" in text.lower():
+            raise LedgerBusy(f"the ledger {path} is in use by another process; try again") from None
+        raise NotALedger(f"{path} cannot be opened as a ledger: {text.splitlines()[0]}") from None
+    except duckdb.Error as exc:
+        raise NotALedger(f"{path} is not a Backsight ledger ({str(exc).splitlines()[0]})") from None
+
+
+def _has_tables(con: duckdb.DuckDBPyConnection) -> bool:
+    return con.execute(
+        "SELECT count(*) FROM information_schema.tables WHERE table_name = 'meta'"
+    ).fetchall()[0][0] > 0
+
+
+def _is_empty_db(con: duckdb.DuckDBPyConnection) -> bool:
+    return con.execute("SELECT count(*) FROM information_schema.tables").fetchall()[0][0] == 0

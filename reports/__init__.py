@@ -1,0 +1,1 @@
+"""Static HTML reports rendered from a Backsight ledger (imports ``ledger``; never the reverse)."""

@@ -62,16 +62,20 @@ AsOfOpt = Annotated[str | None, typer.Option("--as-of", help="Score with what th
 FreqOpt = Annotated[str | None, typer.Option("--freq", help="yearly, quarterly, monthly, weekly or daily; needed when periods are bare dates of a new series.")]
 
 
+def _print_version(value: bool) -> None:
+    if value:
+        typer.echo(f"backsight {__version__}")
+        raise typer.Exit(0)
+
+
 @app.callback()
 def _root(
     ctx: typer.Context,
     ledger: Annotated[Path, typer.Option("--ledger", envvar="BACKSIGHT_LEDGER",
                                          help="The ledger file.")] = Path(DEFAULT_PATH),
-    version: Annotated[bool, typer.Option("--version", help="Print the version and exit.")] = False,
+    version: Annotated[bool, typer.Option("--version", callback=_print_version, is_eager=True,
+                                          help="Print the version and exit.")] = False,
 ) -> None:
-    if version:
-        typer.echo(f"backsight {__version__}")
-        raise typer.Exit(0)
     ctx.obj = {"ledger": ledger}
 
 

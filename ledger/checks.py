@@ -1,0 +1,688 @@
+"""Drift, calibration and data-quality signals: pure functions over numpy arrays.
+
+Sign convention of the whole project: error e = actual - forecast, so a positive error means the
+forecast was too low. Nothing here reads the ledger; the scoring layer supplies the arrays, one
+series x model x horizon sequence ordered by target period, and turns results into findings.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+from scipy import signal, special, stats
+
+from ledger.errors import InputError, UnknownName
+
+__all__ = [
+    "CusumSide",
+    "Zone",
+    "Direction",
+    "DemandClass",
+    "BiasCentre",
+    "AbsTransform",
+    "Cusum",
+    "DriftResult",
+    "LRTest",
+    "IndependenceTest",
+    "ConditionalCoverage",
+    "ZoneResult",
+    "DemandStats",
+    "DRIFT_H",
+    "TS_LIMIT",
+    "reference_length",
+    "tracking_window",
+    "tracking_signal",
+    "tracking_signal_path",
+    "trigg_signal",
+    "cusum_path",
+    "cusum",
+    "drift_test",
+    "kupiec_pof",
+    "christoffersen",
+    "conditional_coverage",
+    "coverage_zone",
+    "holm",
+    "benjamini_hochberg",
+    "demand_interval_stats",
+    "gaps",
+]
+
+CusumSide = Literal["two-sided", "upper", "lower"]
+Zone = Literal["within tolerance", "watch", "out of tolerance", "no cells"]
+Direction = Literal["too narrow", "too wide", "as stated"]
+DemandClass = Literal["smooth", "intermittent", "erratic", "lumpy", "too few demands"]
+BiasCentre = Literal["zero", "reference"]
+AbsTransform = Literal["sqrt", "none"]
+
+#: Decision interval of the drift CUSUMs, in reference standard deviations. Wider than the
+#: textbook 4 or 5 because sd and level come from a short reference window, which shortens the
+#: in-control run length; 5.5 keeps honest series (36 iid normal errors, 24-cell reference, both
+#: CUSUMs) flagged about 3-4% of the time (measured in tests/test_checks.py; h = 5 gave ~5%).
+DRIFT_H = 5.5
+#: Planners' limit for the tracking signal: common practice, no source. Shown, never a finding.
+TS_LIMIT = 4.0
+_SIDES = ("two-sided", "upper", "lower")
+_CENTRES = ("zero", "reference")
+_TRANSFORMS = ("sqrt", "none")
+
+
+def _vector(x, name: str, func: str, *, allow_nan: bool = False) -> np.ndarray:
+    arr = np.asarray(x, dtype=float)
+    if arr.ndim != 1:
+        raise InputError(func, f"{name} must be one-dimensional, got shape {arr.shape}; pass one sequence")
+    if not allow_nan and np.isnan(arr).any():
+        at = int(np.flatnonzero(np.isnan(arr))[0])
+        raise InputError(func, f"{name} holds NaN at position {at}; drop unscored cells first")
+    return arr
+
+
+def _positive_int(value, name: str, func: str, *, minimum: int = 1) -> int:
+    if int(value) != value or value < minimum:
+        raise InputError(func, f"{name} = {value!r} must be an integer >= {minimum}")
+    return int(value)
+
+
+def _rate(p: float, func: str) -> float:
+    if not 0.0 < p < 1.0:
+        raise InputError(func, f"p = {p!r} is outside (0, 1); pass the nominal miss rate 1 - L/100")
+    return float(p)
+
+
+def reference_length(season_length: int) -> int:
+    """Default reference window: the first two seasons of scored cells, at least 8 (common practice, no source)."""
+    return max(2 * _positive_int(season_length, "season_length", "reference_length"), 8)
+
+
+def tracking_window(season_length: int) -> int:
+    """Default tracking-signal window: one season, at least 6 cells (common practice, no source)."""
+    return max(_positive_int(season_length, "season_length", "tracking_window"), 6)
+
+
+def tracking_signal_path(e, *, window: int) -> np.ndarray:
+    """Tracking signal after every cell, along the last axis (see :func:`tracking_signal`).
+
+    Entry t uses the errors e[max(0, t - window + 1) .. t], so the first window - 1 entries use
+    the shorter history available; entries with fewer than 2 errors or mean |e| = 0 are NaN.
+    """
+    e = np.asarray(e, dtype=float)
+    window = _positive_int(window, "window", "tracking_signal_path")
+    zero = np.zeros(e.shape[:-1] + (1,))
+    total = np.concatenate([zero, np.cumsum(e, axis=-1)], axis=-1)
+    absolute = np.concatenate([zero, np.cumsum(np.abs(e), axis=-1)], axis=-1)
+    t = np.arange(1, e.shape[-1] + 1)
+    lo = np.maximum(t - window, 0)
+    count = t - lo
+    sum_e = total[..., t] - total[..., lo]
+    sum_abs = absolute[..., t] - absolute[..., lo]
+    ok = (count >= 2) & (sum_abs > 0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(ok, sum_e * count / sum_abs, np.nan)
+
+
+def tracking_signal(e, *, window: int) -> float:
+    """Tracking signal of the last ``window`` errors.
+
+    Formula: with the last w = min(window, n) errors, TS = sum(e) / mean(|e|); |TS| <= w.
+    Returns a float, NaN when fewer than 2 errors or mean |e| = 0.
+    Orientation: 0 means unbiased; positive means forecasts too low (e = actual - forecast),
+    negative too high. Planners use the limit +-4 (:data:`TS_LIMIT`; common practice, no source);
+    it is shown, not used for findings, because its false-alarm rate is unknown and high.
+    Reference: Brown, R.G. (1959) *Statistical Forecasting for Inventory Control* (from memory);
+    Trigg, D.W. (1964) "Monitoring a forecasting system", *Operational Research Quarterly* 15.
+    """
+    e = _vector(e, "e", "tracking_signal")
+    if e.size == 0:
+        return float("nan")
+    return float(tracking_signal_path(e, window=window)[-1])
+
+
+def trigg_signal(e, *, alpha: float = 0.1, init: int = 6) -> np.ndarray:
+    """Trigg's smoothed tracking signal after every cell, along the last axis.
+
+    Formula: E_t = a*e_t + (1-a)*E_{t-1}, M_t = a*|e_t| + (1-a)*M_{t-1}, T_t = E_t / M_t, with
+    a = ``alpha`` (usual 0.1, from memory). Initialisation: E_0 = 0 (no bias assumed) and M_0 =
+    mean |e| of the first min(n, ``init``) errors, an initial MAD. M_0 = 0 would force |T_1| = 1
+    (a spurious full-scale alarm at the first cell) and M_0 = |e_1| rests on one draw; a short
+    mean is what a planner would start from. It looks ahead at most init - 1 cells, which a
+    retrospective ledger can afford.
+    Returns an array shaped like e; T is in [-1, 1], NaN where M_t = 0.
+    Orientation: 0 unbiased; positive means forecasts too low, negative too high. Under white
+    noise and a = 0.1 the 95% quantile of |T| is about 0.54 (computed by simulation).
+    Reference: Trigg, D.W. (1964) "Monitoring a forecasting system", *Operational Research
+    Quarterly* 15, 271-274.
+    """
+    e = np.asarray(e, dtype=float)
+    if not 0.0 < alpha <= 1.0:
+        raise InputError("trigg_signal", f"alpha = {alpha!r} is outside (0, 1]; the usual value is 0.1")
+    init = _positive_int(init, "init", "trigg_signal")
+    if e.shape[-1] == 0:
+        return e.copy()
+    m0 = np.mean(np.abs(e[..., :init]), axis=-1, keepdims=True)
+    b, a = [alpha], [1.0, alpha - 1.0]
+    smoothed = signal.lfilter(b, a, e, axis=-1, zi=np.zeros_like(m0))[0]
+    mad = signal.lfilter(b, a, np.abs(e), axis=-1, zi=(1.0 - alpha) * m0)[0]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(mad > 0, smoothed / mad, np.nan)
+
+
+@dataclass(frozen=True)
+class Cusum:
+    """A tabular CUSUM: both statistics, and where the monitored side(s) first crossed h.
+
+    ``upper`` is C+ (detects upward shifts of z), ``lower`` is C- (stored as a positive number,
+    detects downward shifts). Alarm indices are positions in z; a start is the cell after the
+    last one where the alarmed statistic was 0 (0 if it never was), Montgomery's estimate of when
+    the shift began. Both statistics are always computed; ``side`` says which ones may alarm.
+    """
+
+    upper: np.ndarray
+    lower: np.ndarray
+    k: float
+    h: float
+    side: CusumSide
+    upper_alarm: int | None
+    lower_alarm: int | None
+    upper_start: int | None
+    lower_start: int | None
+
+    @property
+    def alarm(self) -> int | None:
+        """The first alarm of either monitored side, or None."""
+        found = [a for a in (self.upper_alarm, self.lower_alarm) if a is not None]
+        return min(found) if found else None
+
+    @property
+    def start(self) -> int | None:
+        """Estimated start of the shift behind :attr:`alarm`, or None."""
+        if self.alarm is None:
+            return None
+        return self.upper_start if self.alarm == self.upper_alarm else self.lower_start
+
+
+def cusum_path(z, *, k: float = 0.5, start_upper=0.0, start_lower=0.0) -> tuple[np.ndarray, np.ndarray]:
+    """The two tabular CUSUM statistics along the last axis of z (vectorised over leading axes).
+
+    Formula: C+_t = max(0, C+_{t-1} + z_t - k), C-_t = max(0, C-_{t-1} - z_t - k), computed in
+    closed form as S_t - min(-C_0, min_{j<=t} S_j) with S the cumulative sum of the increments.
+    ``start_upper`` / ``start_lower`` are C_0 (scalars or arrays over the leading axes), so a
+    long path can be computed in pieces. A NaN z carries no evidence: both statistics keep their
+    previous value. Returns (C+, C-), each shaped like z.
+    """
+    z = np.asarray(z, dtype=float)
+    if k < 0:
+        raise InputError("cusum_path", f"k = {k!r} must be >= 0; the usual value is 0.5")
+    paths = []
+    for sign, c0 in ((1.0, start_upper), (-1.0, start_lower)):
+        step = np.where(np.isnan(z), 0.0, sign * z - k)
+        total = np.cumsum(step, axis=-1)
+        floor = np.minimum(-np.asarray(c0, dtype=float)[..., None], np.minimum.accumulate(total, axis=-1))
+        paths.append(total - floor)
+    return paths[0], paths[1]
+
+
+def _first_alarm(stat: np.ndarray, h: float) -> tuple[int | None, int | None]:
+    above = np.flatnonzero(stat > h)
+    if above.size == 0:
+        return None, None
+    alarm = int(above[0])
+    zeros = np.flatnonzero(stat[:alarm] == 0)
+    return alarm, int(zeros[-1]) + 1 if zeros.size else 0
+
+
+def cusum(z, *, k: float = 0.5, h: float = 4.0, side: CusumSide = "two-sided") -> Cusum:
+    """Tabular CUSUM on standardised values z (mean 0, sd 1 when in control).
+
+    Formula: C+_t = max(0, C+_{t-1} + z_t - k), C-_t = max(0, C-_{t-1} - z_t - k), C_0 = 0; an
+    alarm when C > h. k = 0.5 is tuned to a shift of one standard deviation; h = 4 or 5 gives an
+    in-control average run length of about 168 or 465 for the two-sided scheme (Montgomery, from
+    memory; measured in the tests). ``side`` = "upper" or "lower" gives a one-sided scheme
+    (e.g. for deterioration of absolute errors, where only an increase matters).
+    Returns a :class:`Cusum`. Orientation: larger C+ means z drifted up, larger C- down.
+    NaN values of z leave both statistics unchanged.
+    Reference: Page, E.S. (1954) "Continuous inspection schemes", *Biometrika* 41, 100-115;
+    Montgomery, D.C. *Introduction to Statistical Quality Control*, chapter on the CUSUM chart.
+    """
+    z = _vector(z, "z", "cusum", allow_nan=True)
+    if side not in _SIDES:
+        raise UnknownName(f"cusum: side {side!r} is unknown; use one of {', '.join(_SIDES)}")
+    if h <= 0:
+        raise InputError("cusum", f"h = {h!r} must be > 0; the usual values are 4 or 5")
+    upper, lower = cusum_path(z, k=k)
+    ua, us = _first_alarm(upper, h) if side != "lower" else (None, None)
+    la, ls = _first_alarm(lower, h) if side != "upper" else (None, None)
+    return Cusum(upper, lower, float(k), float(h), side, ua, la, us, ls)
+
+
+@dataclass(frozen=True)
+class DriftResult:
+    """Outcome of :func:`drift_test` for one series x model x horizon sequence.
+
+    Indices are positions in the input sequence (0-based, ordered by target period). ``bias`` and
+    ``deterioration`` hold the CUSUM paths over the whole sequence (0 inside the reference window).
+    ``mase_reference`` / ``mase_recent`` are mean scaled |e| within and after the reference window.
+    """
+
+    n: int
+    reference: int
+    note: str
+    bias_alarm: int | None
+    bias_start: int | None
+    bias_direction: Literal["forecasts too low", "forecasts too high"] | None
+    deterioration_alarm: int | None
+    deterioration_start: int | None
+    mase_reference: float
+    mase_recent: float
+    tracking_signal: float
+    trigg_signal: float
+    sigma: float
+    sigma_floored: bool
+    bias: Cusum | None
+    deterioration: Cusum | None
+
+    @property
+    def biased(self) -> bool:
+        """True when the bias CUSUM alarmed."""
+        return self.bias_alarm is not None
+
+    @property
+    def deteriorated(self) -> bool:
+        """True when the deterioration CUSUM alarmed."""
+        return self.deterioration_alarm is not None
+
+    @property
+    def flagged(self) -> bool:
+        """True when either CUSUM alarmed."""
+        return self.biased or self.deteriorated
+
+    @property
+    def mase_ratio(self) -> float:
+        """Recent MASE over reference MASE; above 1 means accuracy got worse."""
+        if not self.mase_reference > 0:
+            return float("nan")
+        return self.mase_recent / self.mase_reference
+
+
+def _nanmean(x: np.ndarray) -> float:
+    x = x[~np.isnan(x)]
+    return float(x.mean()) if x.size else float("nan")
+
+
+def _standardise(x: np.ndarray, reference: int, floor: float, centre: bool) -> tuple[np.ndarray | None, float, bool]:
+    """(x - c) / sd_ref, NaN inside the window; c = mean_ref or 0; sd_ref floored at floor * mean|x_ref|."""
+    ref = x[:reference][~np.isnan(x[:reference])]
+    if ref.size < 2:
+        return None, float("nan"), False
+    sd, scale = float(ref.std(ddof=1)), float(np.abs(ref).mean())
+    sigma = max(sd, floor * scale)
+    if not sigma > 0:
+        return None, float("nan"), False
+    z = (x - (ref.mean() if centre else 0.0)) / sigma
+    z[:reference] = np.nan
+    return z, sigma, sigma > sd
+
+
+def drift_test(
+    e,
+    scaled_abs,
+    *,
+    reference: int,
+    k: float = 0.5,
+    h: float = DRIFT_H,
+    window: int = 12,
+    alpha: float = 0.1,
+    sigma_floor: float = 0.05,
+    bias_centre: BiasCentre = "zero",
+    transform: AbsTransform = "sqrt",
+) -> DriftResult:
+    """Bias and deterioration CUSUMs for one error sequence, against its own reference window.
+
+    The first ``reference`` cells (default rule :func:`reference_length`: two seasons, at least
+    8) estimate the in-control spread (and level); only later cells are monitored (phase II).
+    Bias: z_t = (e_t - c) / sd_ref(e), two-sided CUSUM. By default c = 0, the target of an
+    unbiased forecast, so a model biased from the start is caught too; ``bias_centre=
+    "reference"`` uses c = mean_ref(e) and detects only a change of bias. An upper alarm means
+    forecasts too low (e = actual - forecast > 0), a lower alarm forecasts too high.
+    Deterioration: u_t = (g(s_t) - mean_ref(g(s))) / sd_ref(g(s)) on scaled absolute errors
+    s = |e|/q, upper CUSUM only; g = sqrt by default (``transform="none"``: g(s) = s), because
+    |e| is skewed and its plain CUSUM false-alarms about twice as often (Hawkins's scale CUSUM
+    uses the same square-root idea; from memory). Both CUSUMs use k and h in reference standard
+    deviations (defaults 0.5 and :data:`DRIFT_H`).
+    Guard: sd_ref is floored at ``sigma_floor`` (5%) of the reference mean |value|, so near-constant
+    reference errors do not make every later wobble an alarm; honest normal errors have
+    sd ~ 1.25 mean|e|, far above the floor. A reference of all-zero values (or fewer than two)
+    cannot be standardised: that test is skipped and ``note`` says so.
+    Also returned: tracking signal over the last ``window`` cells and Trigg's signal at the end
+    (shown to planners, not used to alarm), and reference vs recent MASE (mean s, untransformed).
+    NaN scaled errors (cells without a scale) are allowed and carry no evidence; e must be complete.
+    Returns a :class:`DriftResult`.
+    Reference: Page (1954) "Continuous inspection schemes"; Montgomery, *Introduction to
+    Statistical Quality Control* (phase I estimation, phase II monitoring).
+    """
+    e = _vector(e, "e", "drift_test")
+    s = _vector(scaled_abs, "scaled_abs", "drift_test", allow_nan=True)
+    if s.size != e.size:
+        raise InputError("drift_test", f"scaled_abs has {s.size} values but e has {e.size}; pass one value per cell")
+    reference = _positive_int(reference, "reference", "drift_test", minimum=2)
+    _option(bias_centre, _CENTRES, "bias_centre")
+    _option(transform, _TRANSFORMS, "transform")
+    notes, bias, worse = [], None, None
+    sigma, floored = float("nan"), False
+    if e.size <= reference:
+        notes.append(f"only {e.size} cells, none after the {reference}-cell reference window")
+    else:
+        z, sigma, floored = _standardise(e, reference, sigma_floor, bias_centre == "reference")
+        g = np.sqrt(s) if transform == "sqrt" else s
+        u, _, _ = _standardise(g, reference, sigma_floor, True)
+        if z is None:
+            notes.append("reference errors are all zero or too few; bias test skipped")
+        else:
+            bias = cusum(z, k=k, h=h, side="two-sided")
+        if u is None:
+            notes.append("reference scaled errors are missing, all zero or too few; deterioration test skipped")
+        else:
+            worse = cusum(u, k=k, h=h, side="upper")
+    return _drift_result(e, s, reference, bias, worse, sigma, floored, "; ".join(notes), window, alpha)
+
+
+def _option(value: str, allowed: tuple[str, ...], name: str) -> None:
+    if value not in allowed:
+        raise UnknownName(f"drift_test: {name} {value!r} is unknown; use one of {', '.join(allowed)}")
+
+
+def _drift_result(e, s, reference, bias, worse, sigma, floored, note, window, alpha) -> DriftResult:
+    direction = None
+    if bias is not None and bias.alarm is not None:
+        direction = "forecasts too low" if bias.alarm == bias.upper_alarm else "forecasts too high"
+    return DriftResult(
+        n=int(e.size),
+        reference=reference,
+        note=note,
+        bias_alarm=bias.alarm if bias else None,
+        bias_start=bias.start if bias else None,
+        bias_direction=direction,
+        deterioration_alarm=worse.alarm if worse else None,
+        deterioration_start=worse.start if worse else None,
+        mase_reference=_nanmean(s[:reference]),
+        mase_recent=_nanmean(s[reference:]),
+        tracking_signal=tracking_signal(e, window=window),
+        trigg_signal=float(trigg_signal(e, alpha=alpha)[-1]) if e.size else float("nan"),
+        sigma=sigma,
+        sigma_floored=floored,
+        bias=bias,
+        deterioration=worse,
+    )
+
+
+@dataclass(frozen=True)
+class LRTest:
+    """A likelihood-ratio statistic, its chi-squared p-value and degrees of freedom (NaN when undefined)."""
+
+    statistic: float
+    p_value: float
+    df: int
+
+
+def _lr(loglik_null: float, loglik_alt: float, df: int) -> LRTest:
+    lr = max(-2.0 * (loglik_null - loglik_alt), 0.0)  # rounding can make an exact 0 slightly negative
+    return LRTest(lr, float(stats.chi2.sf(lr, df)), df)
+
+
+def kupiec_pof(misses: int, n: int, *, p: float) -> LRTest:
+    """Kupiec's proportion-of-failures test: is the miss rate x/n consistent with p?
+
+    Formula: LR = -2 ln[(1-p)^(n-x) p^x] + 2 ln[(1-x/n)^(n-x) (x/n)^x], with 0 ln 0 = 0;
+    p-value from chi-squared with 1 df. p is the nominal miss rate 1 - L/100 of an L% interval.
+    Returns an :class:`LRTest`; n = 0 gives NaN (nothing to test).
+    Orientation: larger LR is stronger evidence of miscalibration, in either direction.
+    Reference: Kupiec, P. (1995) "Techniques for verifying the accuracy of risk measurement
+    models", *Journal of Derivatives* 3(2), 73-84.
+    """
+    p = _rate(p, "kupiec_pof")
+    n = _positive_int(n, "n", "kupiec_pof", minimum=0)
+    x = _positive_int(misses, "misses", "kupiec_pof", minimum=0)
+    if x > n:
+        raise InputError("kupiec_pof", f"misses = {x} exceeds n = {n}; count misses among the n cells")
+    if n == 0:
+        return LRTest(float("nan"), float("nan"), 1)
+    null = special.xlogy(n - x, 1 - p) + special.xlogy(x, p)
+    alt = special.xlogy(n - x, 1 - x / n) + special.xlogy(x, x / n)
+    return _lr(float(null), float(alt), 1)
+
+
+def _hits(hits, func: str) -> np.ndarray:
+    arr = np.asarray(hits)
+    if arr.ndim != 1:
+        raise InputError(func, f"hits must be one-dimensional, got shape {arr.shape}")
+    if arr.size and not np.isin(arr, (0, 1)).all():
+        raise InputError(func, "hits must be booleans or 0/1 (True = the actual fell outside the interval)")
+    return arr.astype(bool)
+
+
+@dataclass(frozen=True)
+class IndependenceTest:
+    """Christoffersen's independence test: transition counts n_ij (state i then j; 1 = miss) and the LR."""
+
+    n00: int
+    n01: int
+    n10: int
+    n11: int
+    statistic: float
+    p_value: float
+    df: int = 1
+
+
+def christoffersen(hits) -> IndependenceTest:
+    """Christoffersen's independence test for clustered misses.
+
+    Formula: with n_ij the number of times state i (1 = miss) is followed by state j, pi01 =
+    n01/(n00+n01), pi11 = n11/(n10+n11), pi = (n01+n11)/(n00+n01+n10+n11),
+    LR_ind = -2 ln[(1-pi)^(n00+n10) pi^(n01+n11)]
+             + 2 ln[(1-pi01)^n00 pi01^n01 (1-pi11)^n10 pi11^n11], chi-squared with 1 df.
+    Degenerate counts: 0 ln 0 = 0, and a transition probability whose denominator is 0 (e.g. no
+    transition leaves state 1) is set to 0; it multiplies only zero counts, so it adds nothing.
+    No misses at all (or all misses) gives LR = 0, p = 1: no evidence of clustering. Fewer than
+    two cells gives NaN. Orientation: larger LR means misses cluster (or alternate) more than chance.
+    Reference: Christoffersen, P.F. (1998) "Evaluating interval forecasts", *International
+    Economic Review* 39(4), 841-862.
+    """
+    h = _hits(hits, "christoffersen")
+    prev, nxt = h[:-1], h[1:]
+    n00, n01 = int(np.sum(~prev & ~nxt)), int(np.sum(~prev & nxt))
+    n10, n11 = int(np.sum(prev & ~nxt)), int(np.sum(prev & nxt))
+    if h.size < 2:
+        return IndependenceTest(n00, n01, n10, n11, float("nan"), float("nan"))
+    pi = (n01 + n11) / (n00 + n01 + n10 + n11)
+    pi01 = n01 / (n00 + n01) if n00 + n01 else 0.0
+    pi11 = n11 / (n10 + n11) if n10 + n11 else 0.0
+    null = special.xlogy(n00 + n10, 1 - pi) + special.xlogy(n01 + n11, pi)
+    alt = (special.xlogy(n00, 1 - pi01) + special.xlogy(n01, pi01)
+           + special.xlogy(n10, 1 - pi11) + special.xlogy(n11, pi11))
+    lr = _lr(float(null), float(alt), 1)
+    return IndependenceTest(n00, n01, n10, n11, lr.statistic, lr.p_value)
+
+
+@dataclass(frozen=True)
+class ConditionalCoverage:
+    """Christoffersen's conditional coverage: LR_cc = LR_pof + LR_ind, chi-squared with 2 df."""
+
+    pof: LRTest
+    independence: IndependenceTest
+    statistic: float
+    p_value: float
+    df: int = 2
+
+
+def conditional_coverage(hits, *, p: float) -> ConditionalCoverage:
+    """Joint test of the miss rate and independence of misses.
+
+    Formula: LR_cc = LR_pof(x of n, p) + LR_ind, chi-squared with 2 df, where x and n count the
+    whole hit sequence (the usual practical form; Christoffersen's exact decomposition drops the
+    first cell from the coverage part). NaN when either part is NaN (fewer than two cells).
+    Orientation: larger is stronger evidence against correct conditional coverage.
+    Reference: Christoffersen, P.F. (1998) "Evaluating interval forecasts", *International
+    Economic Review* 39(4), 841-862; Kupiec (1995) for the coverage part.
+    """
+    h = _hits(hits, "conditional_coverage")
+    pof = kupiec_pof(int(h.sum()), int(h.size), p=p)
+    ind = christoffersen(h)
+    lr = pof.statistic + ind.statistic
+    pval = float(stats.chi2.sf(lr, 2)) if np.isfinite(lr) else float("nan")
+    return ConditionalCoverage(pof, ind, float(lr), pval)
+
+
+@dataclass(frozen=True)
+class ZoneResult:
+    """Tolerance zone of a miss count: see :func:`coverage_zone`."""
+
+    direction: Direction
+    zone: Zone
+    cumulative: float
+    expected: float
+    p_value: float
+    misses: int
+    n: int
+    p: float
+
+
+def _zone(tail: float, watch: float, out: float) -> Zone:
+    if tail >= out:
+        return "out of tolerance"
+    return "watch" if tail >= watch else "within tolerance"
+
+
+def coverage_zone(misses: int, n: int, *, p: float, watch: float = 0.95, out: float = 0.9999) -> ZoneResult:
+    """Tolerance zone of x misses among n cells of intervals with nominal miss rate p.
+
+    Formula: c = P(X <= x) for X ~ Binomial(n, p). Too many misses (intervals too narrow):
+    c >= ``out`` (99.99%) is "out of tolerance", c >= ``watch`` (95%) "watch". Too few misses
+    (intervals too wide), the mirror image on the lower tail: c <= 1 - out is out of tolerance,
+    c <= 1 - watch watch. Otherwise "within tolerance" and direction "as stated".
+    Returns a :class:`ZoneResult` with c (``cumulative``), the expected misses n*p and the
+    two-sided exact binomial p-value (scipy.stats.binomtest), which is what false-discovery
+    control (:func:`holm`, :func:`benjamini_hochberg`) should use. n = 0 gives zone "no cells".
+    Small samples cannot reach the too-wide zones: with 12 cells at 80%, P(X <= 0) = 6.9%.
+    Reference: Basel Committee on Banking Supervision (1996) "Supervisory framework for the use of
+    'backtesting' in conjunction with the internal models approach to market risk capital
+    requirements" (green / yellow / red zones; Backsight uses its own zone names).
+    """
+    p = _rate(p, "coverage_zone")
+    n = _positive_int(n, "n", "coverage_zone", minimum=0)
+    x = _positive_int(misses, "misses", "coverage_zone", minimum=0)
+    if x > n:
+        raise InputError("coverage_zone", f"misses = {x} exceeds n = {n}; count misses among the n cells")
+    if n == 0:
+        return ZoneResult("as stated", "no cells", float("nan"), 0.0, float("nan"), 0, 0, p)
+    c = float(stats.binom.cdf(x, n, p))
+    pval = float(stats.binomtest(x, n, p).pvalue)
+    narrow, wide = _zone(c, watch, out), _zone(1.0 - c, watch, out)
+    if narrow != "within tolerance":
+        return ZoneResult("too narrow", narrow, c, n * p, pval, x, n, p)
+    if wide != "within tolerance":
+        return ZoneResult("too wide", wide, c, n * p, pval, x, n, p)
+    return ZoneResult("as stated", "within tolerance", c, n * p, pval, x, n, p)
+
+
+def _pvalues(pvalues, func: str) -> tuple[np.ndarray, np.ndarray]:
+    arr = _vector(pvalues, "pvalues", func, allow_nan=True)
+    ok = ~np.isnan(arr)
+    if ((arr[ok] < 0) | (arr[ok] > 1)).any():
+        raise InputError(func, "pvalues must lie in [0, 1]; pass p-values, not statistics")
+    return arr, ok
+
+
+def holm(pvalues) -> np.ndarray:
+    """Holm's step-down adjusted p-values (family-wise error control).
+
+    Formula: with the m non-NaN p-values sorted, p_(1) <= ... <= p_(m),
+    adj_(i) = max_{j <= i} min(1, (m - j + 1) p_(j)). NaN stays NaN and does not count in m.
+    Returns an array shaped like the input. Orientation: reject where adj <= the chosen level.
+    Reference: Holm, S. (1979) "A simple sequentially rejective multiple test procedure",
+    *Scandinavian Journal of Statistics* 6(2), 65-70.
+    """
+    arr, ok = _pvalues(pvalues, "holm")
+    out = np.full(arr.shape, np.nan)
+    valid = arr[ok]
+    order = np.argsort(valid, kind="stable")
+    m = valid.size
+    adjusted = np.maximum.accumulate(np.minimum(1.0, (m - np.arange(m)) * valid[order]))
+    filled = np.empty(m)
+    filled[order] = adjusted
+    out[ok] = filled
+    return out
+
+
+def benjamini_hochberg(pvalues) -> np.ndarray:
+    """Benjamini-Hochberg step-up adjusted p-values (false-discovery-rate control).
+
+    Formula: with the m non-NaN p-values sorted, adj_(i) = min_{j >= i} min(1, m p_(j) / j).
+    NaN stays NaN and does not count in m. Returns an array shaped like the input.
+    Orientation: reject where adj <= the chosen false-discovery rate q.
+    Reference: Benjamini, Y. & Hochberg, Y. (1995) "Controlling the false discovery rate: a
+    practical and powerful approach to multiple testing", *JRSS B* 57(1), 289-300.
+    """
+    arr, ok = _pvalues(pvalues, "benjamini_hochberg")
+    out = np.full(arr.shape, np.nan)
+    valid = arr[ok]
+    order = np.argsort(valid, kind="stable")
+    m = valid.size
+    scaled = valid[order] * m / np.arange(1, m + 1)
+    adjusted = np.minimum(1.0, np.minimum.accumulate(scaled[::-1])[::-1])
+    filled = np.empty(m)
+    filled[order] = adjusted
+    out[ok] = filled
+    return out
+
+
+@dataclass(frozen=True)
+class DemandStats:
+    """Demand pattern of a series: see :func:`demand_interval_stats`."""
+
+    adi: float
+    cv2: float
+    n: int
+    nonzero: int
+    classification: DemandClass
+
+
+def demand_interval_stats(y, *, adi_cut: float = 1.32, cv2_cut: float = 0.49) -> DemandStats:
+    """Average demand interval, CV^2 of demand sizes, and the demand-pattern class.
+
+    Formula: with t_1 < ... < t_k the (1-based) positions of non-zero values, ADI = mean of the
+    intervals t_1, t_2 - t_1, ..., t_k - t_{k-1} (the first counted from the start of the series,
+    as in Croston's decomposition; equals t_k / k). CV^2 = (sd / mean)^2 of the non-zero values
+    (sd with n - 1). Classes: ADI < 1.32 and CV^2 < 0.49 smooth; ADI >= 1.32 intermittent;
+    CV^2 >= 0.49 erratic; both lumpy. Fewer than two non-zero values gives "too few demands"
+    (CV^2 NaN). NaN values (missing actuals) are dropped first; report them as gaps.
+    Reference: Syntetos, A.A., Boylan, J.E. & Croston, J.D. (2005) "On the categorization of
+    demand patterns", *Journal of the Operational Research Society* 56, 495-503.
+    """
+    y = _vector(y, "y", "demand_interval_stats", allow_nan=True)
+    y = y[~np.isnan(y)]
+    where = np.flatnonzero(y != 0) + 1
+    k = where.size
+    adi = float(where[-1] / k) if k else float("nan")
+    if k < 2:
+        return DemandStats(adi, float("nan"), int(y.size), int(k), "too few demands")
+    sizes = y[where - 1]
+    cv2 = float((sizes.std(ddof=1) / sizes.mean()) ** 2) if sizes.mean() != 0 else float("inf")
+    label = {(False, False): "smooth", (True, False): "intermittent",
+             (False, True): "erratic", (True, True): "lumpy"}[(adi >= adi_cut, cv2 >= cv2_cut)]
+    return DemandStats(adi, cv2, int(y.size), int(k), label)
+
+
+def gaps(period_index) -> list[tuple[int, int]]:
+    """Missing periods inside the observed range, as runs (first missing index, run length).
+
+    Input: integer period ordinals in any order, duplicates allowed. Returns runs sorted by
+    start; an empty list when there are no gaps or fewer than two distinct periods. Gaps are
+    reported, never filled in.
+    """
+    idx = np.asarray(period_index, dtype=float)
+    if idx.ndim != 1 or (idx.size and (~np.isfinite(idx) | (idx != np.round(idx))).any()):
+        raise InputError("gaps", "period_index must be a 1-D sequence of integer period ordinals")
+    seen = np.unique(idx.astype(np.int64))
+    step = np.diff(seen)
+    at = np.flatnonzero(step > 1)
+    return [(int(seen[i] + 1), int(step[i] - 1)) for i in at]

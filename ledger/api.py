@@ -17,7 +17,7 @@ import pandas as pd
 from .ingest import read_actuals, read_forecasts
 from .periods import period_label
 from .record import ActualsResult, SnapshotResult, write_actuals, write_runs
-from .scoring import Selection, score_cells, scores
+from .scoring import Selection, interval_cells, score_cells, scores
 from .store import Store, parse_as_of
 
 __all__ = ["Ledger", "DEFAULT_PATH"]
@@ -82,6 +82,10 @@ class Ledger:
     def cells(self, **selection) -> pd.DataFrame:
         """Every scored cell with actual, error and scale (one row per cell)."""
         return score_cells(self.store, self.selection(**selection))
+
+    def interval_cells(self, **selection) -> pd.DataFrame:
+        """Every scored cell and interval level, with bounds and whether the actual fell outside."""
+        return interval_cells(self.store, self.selection(**selection))
 
     def runs(self) -> pd.DataFrame:
         """One row per run: id, model, origin, recorded at, cells, hash, superseded by."""

@@ -25,7 +25,7 @@ from .ingest import format_level
 from .periods import index_start, parse_label, period_index, period_label
 from .store import Store, latest_actuals_sql, live_runs_sql
 
-__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "score_cells", "scores", "POINT_COLUMNS"]
+__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "score_cells", "interval_cells", "scores", "POINT_COLUMNS"]
 
 GroupKey = Literal["series", "model", "horizon", "origin", "period"]
 GROUP_KEYS: tuple[str, ...] = get_args(GroupKey)
@@ -144,6 +144,22 @@ def score_cells(store: Store, sel: Selection) -> pd.DataFrame:
     sql, params = cells_sql(sel)
     return store.con.execute(f"SELECT * FROM ({sql}) ORDER BY model, series, origin_index, period_index",
                              params).df()
+
+
+def interval_cells(store: Store, sel: Selection) -> pd.DataFrame:
+    """One row per scored cell and interval level: its bounds and whether the actual fell inside.
+
+    Columns: model, series, origin, origin_index, period, period_index, horizon, level, lower,
+    upper, actual, below (actual < lower), above (actual > upper), q.
+    """
+    sql, params = cells_sql(sel)
+    return store.con.execute(f"""
+        SELECT c.model, c.series, c.origin, c.origin_index, c.period, c.period_index, c.horizon,
+               b.level, b.lower, b.upper, c.actual, c.actual < b.lower AS below,
+               c.actual > b.upper AS above, c.q
+        FROM ({sql}) c
+        JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index
+        ORDER BY c.model, b.level, c.series, c.horizon, c.period_index""", params).df()
 
 
 _POINT_AGG = """

@@ -1,0 +1,1 @@
+"""CLI commands for findings and comparisons: flags, compare, standings, advise (issue in progress)."""

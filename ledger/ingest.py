@@ -117,7 +117,7 @@ def _as_text(col: pd.Series) -> pd.Series:
     """Column values as stripped strings; datetimes as ISO dates, missing as ''."""
     if pd.api.types.is_datetime64_any_dtype(col):
         return col.dt.strftime("%Y-%m-%d").fillna("")
-    return col.astype("string").fillna("").str.strip().astype(object)
+    return col.astype("string").fillna("").str.strip()
 
 
 def _numbers(source: str, frame: pd.DataFrame, column: str, *, allow_blank: bool) -> np.ndarray:
@@ -130,7 +130,7 @@ def _numbers(source: str, frame: pd.DataFrame, column: str, *, allow_blank: bool
     else:
         text = _as_text(raw)
         blank = (text == "").to_numpy()
-        values = pd.to_numeric(text.where(~blank, None), errors="coerce").to_numpy(dtype="float64", na_value=np.nan)
+        values = _parse_floats(text, blank)
     bad = ~np.isfinite(values) & ~blank
     if text is not None:
         bad |= np.isnan(values) & ~blank
@@ -142,6 +142,14 @@ def _numbers(source: str, frame: pd.DataFrame, column: str, *, allow_blank: bool
         what = "is empty" if blank[i] else f"{shown or values[i]!r} is not a finite number"
         raise InputError(source, what, row=i + 1, column=column)
     return values
+
+
+def _parse_floats(text: pd.Series, blank: np.ndarray) -> np.ndarray:
+    """Fast vectorised cast; only when it fails, the slower element-wise parse that marks bad cells."""
+    try:
+        return text.where(~blank, None).astype("float64").to_numpy(dtype="float64", na_value=np.nan)
+    except (ValueError, TypeError):
+        return pd.to_numeric(text.where(~blank, None), errors="coerce").to_numpy(dtype="float64", na_value=np.nan)
 
 
 def _keys(source: str, frame: pd.DataFrame, column: str) -> np.ndarray:
@@ -207,19 +215,23 @@ def _decide_frequency(
 
 
 def _check_recorded(source: str, keys: np.ndarray, freq: str, recorded: dict[str, str]) -> None:
-    clash = [(i, k) for i, k in enumerate(keys) if recorded.get(k, freq) != freq]
-    if clash:
-        i, key = clash[0]
+    codes, uniques = pd.factorize(keys)
+    clashing = np.array([recorded.get(k, freq) != freq for k in uniques], dtype=bool)
+    if clashing.any():
+        i = int(np.argmax(clashing[codes]))
+        key = keys[i]
         raise FrequencyError(
             f"{source} row {i + 1} column series: series {key!r} is recorded as {recorded[key]}, "
             f"but this file is {freq}; a series keeps the frequency it was first recorded with"
         )
 
 
-def _indices(labels: dict[str, tuple[str | None, dt.date]], text: pd.Series, freq: str) -> tuple[pd.Series, pd.Series]:
-    starts = {lab: period_start(day, freq) for lab, (_, day) in labels.items()}
-    index = {lab: period_index(day, freq) for lab, (_, day) in labels.items()}
-    return text.map(starts), text.map(index).astype("int64")
+def _indices(labels: dict[str, tuple[str | None, dt.date]], text: pd.Series, freq: str) -> tuple[np.ndarray, np.ndarray]:
+    """Period start dates (datetime64[D]) and indices, computed once per distinct label."""
+    codes, uniques = pd.factorize(text)
+    starts = np.array([period_start(labels[u][1], freq) for u in uniques], dtype="datetime64[D]")
+    index = np.array([period_index(labels[u][1], freq) for u in uniques], dtype="int64")
+    return starts[codes], index[codes]
 
 
 def _extra_columns(frame: pd.DataFrame, known: set[str], source: str) -> list[str]:
@@ -316,8 +328,8 @@ def read_forecasts(
     origin_day, o_index = _indices(origin_labels, origin_text, frequency)
 
     cells = pd.DataFrame({
-        "model": models, "origin": origin_day.to_numpy(), "origin_index": o_index.to_numpy(),
-        "series": keys, "period": period.to_numpy(), "period_index": p_index.to_numpy(),
+        "model": models, "origin": origin_day, "origin_index": o_index,
+        "series": keys, "period": period, "period_index": p_index,
     })
     cells["horizon"] = cells["period_index"] - cells["origin_index"]
     _check_after_origin(source, cells, frequency)
@@ -335,8 +347,9 @@ def _check_after_origin(source: str, cells: pd.DataFrame, freq: str) -> None:
     bad = (cells["horizon"] < 1).to_numpy()
     if bad.any():
         i = int(np.argmax(bad))
-        raise InputError(source, f"target period {period_label(cells['period'].iloc[i], freq)} is not after "
-                         f"the origin {period_label(cells['origin'].iloc[i], freq)}", row=i + 1, column="period")
+        target, origin = (pd.Timestamp(cells[c].iloc[i]).date() for c in ("period", "origin"))
+        raise InputError(source, f"target period {period_label(target, freq)} is not after "
+                         f"the origin {period_label(origin, freq)}", row=i + 1, column="period")
 
 
 def _check_unique(source: str, frame: pd.DataFrame, keys: list[str], column: str, what: str) -> None:
@@ -401,7 +414,7 @@ def read_actuals(data, *, freq: str | None = None, recorded: dict[str, str] | No
     frequency = _decide_frequency(source, [("period", labels, text)], freq, known)
     _check_recorded(source, keys, frequency, recorded)
     period, p_index = _indices(labels, text, frequency)
-    values = pd.DataFrame({"series": keys, "period": period.to_numpy(), "period_index": p_index.to_numpy()})
+    values = pd.DataFrame({"series": keys, "period": period, "period_index": p_index})
     _check_unique(source, values, ["series", "period_index"], "period", "a second actual for the same series and period")
     values["value"] = _numbers(source, frame, "actual", allow_blank=False)
     return ActualsFrame(source, frequency, values, warnings)

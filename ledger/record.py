@@ -74,14 +74,15 @@ def _wide(frame: ForecastFrame) -> pd.DataFrame:
 def write_runs(store: Store, frame: ForecastFrame, *, note: str | None = None,
                supersede: bool = False) -> SnapshotResult:
     """Record every run in ``frame`` (one per model and origin) in one transaction."""
-    wide = _wide(frame)
+    wide = _wide(frame).sort_values(["model", "origin_index", "series", "period_index"], kind="stable")
     results: list[RunResult] = []
+    new_ids: dict[tuple, str] = {}
     with store.transaction() as con:
         now = store.next_timestamp()
         _register_series(store, frame.cells["series"], frame.frequency, now)
-        for (model, o_index), part in wide.groupby(["model", "origin_index"], sort=True):
+        for (model, o_index), part in wide.groupby(["model", "origin_index"], sort=False):
             chash = run_content_hash(model, frame.frequency, int(o_index), part)
-            origin = part["origin"].iloc[0]
+            origin = pd.Timestamp(part["origin"].iloc[0]).date()
             label = period_label(origin, frame.frequency)
             previous = con.execute(
                 "SELECT run_id, content_hash FROM runs WHERE model = ? AND frequency = ? AND origin_index = ? "
@@ -100,35 +101,42 @@ def write_runs(store: Store, frame: ForecastFrame, *, note: str | None = None,
                          chash, len(part)])
             if previous:
                 con.execute("UPDATE runs SET superseded_by = ? WHERE run_id = ?", [run_id, previous[0]])
-            _insert_cells(con, run_id, part, frame)
+            new_ids[(model, int(o_index))] = run_id
             results.append(RunResult(run_id, model, label, len(part),
                                      f"superseded {previous[0]}" if previous else "recorded"))
+        if new_ids:
+            _insert_cells(con, wide, new_ids, frame)
     return SnapshotResult(results, list(frame.warnings))
 
 
-def _insert_cells(con, run_id: str, part: pd.DataFrame, frame: ForecastFrame) -> None:
+def _insert_cells(con, wide: pd.DataFrame, new_ids: dict[tuple, str], frame: ForecastFrame) -> None:
+    """One INSERT per table for all new runs (set-based, not a loop over runs)."""
+    keys = pd.MultiIndex.from_arrays([wide["model"], wide["origin_index"].astype("int64")])
+    run_ids = pd.Series(new_ids, dtype=object).reindex(keys).to_numpy()
+    keep = pd.notna(run_ids)
+    part = wide[keep]
     cells = pd.DataFrame({
-        "run_id": run_id, "series": part["series"].astype(str).to_numpy(),
+        "run_id": run_ids[keep].astype(str), "series": part["series"].to_numpy(),
         "period": part["period"].to_numpy(), "period_index": part["period_index"].to_numpy("int32"),
         "horizon": part["horizon"].to_numpy("int32"), "point": part["point"].to_numpy("float64"),
     })
-    con.register("_cells", cells)
-    con.execute("INSERT INTO forecasts SELECT run_id, series, period, period_index, horizon, point FROM _cells")
-    con.unregister("_cells")
+    _insert(con, "forecasts", cells, "run_id, series, period, period_index, horizon, point")
+    ids = cells[["run_id", "series", "period_index"]]
     for level in frame.bounds:
         name = format_level(level)
-        b = cells[["run_id", "series", "period_index"]].assign(
-            level=level, lower=part[f"lower_{name}"].to_numpy(), upper=part[f"upper_{name}"].to_numpy())
-        b = b[b["lower"].notna()]
-        con.register("_b", b)
-        con.execute("INSERT INTO bounds SELECT run_id, series, period_index, level, lower, upper FROM _b")
-        con.unregister("_b")
+        b = ids.assign(level=level, lower=part[f"lower_{name}"].to_numpy(), upper=part[f"upper_{name}"].to_numpy())
+        _insert(con, "bounds", b[b["lower"].notna()], "run_id, series, period_index, level, lower, upper")
     for tau in frame.quantiles:
-        q = cells[["run_id", "series", "period_index"]].assign(tau=tau, value=part[f"q_{tau:g}"].to_numpy())
-        q = q[q["value"].notna()]
-        con.register("_q", q)
-        con.execute("INSERT INTO quantiles SELECT run_id, series, period_index, tau, value FROM _q")
-        con.unregister("_q")
+        q = ids.assign(tau=tau, value=part[f"q_{tau:g}"].to_numpy())
+        _insert(con, "quantiles", q[q["value"].notna()], "run_id, series, period_index, tau, value")
+
+
+def _insert(con, table: str, rows: pd.DataFrame, columns: str) -> None:
+    con.register("_rows", rows)
+    try:
+        con.execute(f"INSERT INTO {table} SELECT {columns} FROM _rows")
+    finally:
+        con.unregister("_rows")
 
 
 def _register_series(store: Store, keys: pd.Series, frequency: str, now) -> None:

@@ -87,7 +87,7 @@ def runs(ctx: typer.Context, fmt: FormatOpt = Format.table) -> None:
     emit(frame[cols], fmt, title="Runs")
 
 
-from . import cli_findings  # noqa: E402,F401  (registers its commands)
+from . import cli_admin, cli_findings  # noqa: E402,F401  (registers their commands)
 
 
 def main() -> None:

@@ -73,15 +73,21 @@ def _root(
     ctx: typer.Context,
     ledger: Annotated[Path, typer.Option("--ledger", envvar="BACKSIGHT_LEDGER",
                                          help="The ledger file.")] = Path(DEFAULT_PATH),
+    wait: Annotated[float | None, typer.Option("--wait", envvar="BACKSIGHT_WAIT", metavar="SECONDS",
+                                               help="How long to wait while another process holds the ledger (default 10).")] = None,
     version: Annotated[bool, typer.Option("--version", callback=_print_version, is_eager=True,
                                           help="Print the version and exit.")] = False,
 ) -> None:
-    ctx.obj = {"ledger": ledger}
+    ctx.obj = {"ledger": ledger, "wait": wait}
 
 
 def open_ledger(ctx: typer.Context, *, create: bool = False) -> Ledger:
     """The ledger named by --ledger; read-only unless the command writes."""
-    return Ledger.open(ctx.obj["ledger"], create=create, read_only=not create)
+    book = Ledger.open(ctx.obj["ledger"], create=create, read_only=not create, wait=ctx.obj["wait"])
+    if book.store.migrated:
+        old, backup = book.store.migrated
+        notice(f"migrated {book.path} from schema version {old}; the old file is kept at {backup}")
+    return book
 
 
 @contextlib.contextmanager

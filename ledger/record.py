@@ -47,18 +47,35 @@ class ActualsResult:
 
 
 def run_content_hash(model: str, frequency: str, origin_index: int, part: pd.DataFrame) -> str:
-    """SHA-256 over a run's canonical form: header, then every column of its rows sorted by
-    (series, period_index). Floats are hashed as little-endian IEEE-754 bytes, so the hash is
-    exact and independent of how numbers were spelt in the file."""
+    """SHA-256 over a run's canonical form.
+
+    ``part`` holds the run's rows with columns series, period_index, point, and any
+    ``lower_<L>``/``upper_<L>`` and ``q_<tau>`` columns (other columns are ignored). The
+    canonical form: a header naming model, frequency and origin index; the series keys and then
+    each numeric column, rows sorted by (series, period_index); bound pairs in increasing level,
+    then quantiles in increasing tau; a level or quantile with no value in this run is left out.
+    Floats are hashed as little-endian IEEE-754 bytes, so the hash is exact and independent of how
+    numbers were spelt in the file. ``verify`` recomputes it from the stored rows.
+    """
     part = part.sort_values(["series", "period_index"], kind="stable")
     digest = hashlib.sha256(f"backsight-run-v1\x00{model}\x00{frequency}\x00{origin_index}".encode())
     digest.update("\x1f".join(part["series"].astype(str)).encode())
-    for col in part.columns:
-        if col in ("series", "model", "origin", "period", "origin_index", "horizon"):
-            continue
+    for col in _canonical_columns(part):
         digest.update(f"\x00{col}\x00".encode())
         digest.update(np.ascontiguousarray(part[col].to_numpy(dtype="<f8", na_value=np.nan)).tobytes())
     return digest.hexdigest()
+
+
+def _canonical_columns(part: pd.DataFrame) -> list[str]:
+    levels = sorted({float(c[6:]) for c in part.columns if c.startswith("lower_")})
+    taus = sorted({float(c[2:]) for c in part.columns if c.startswith("q_")})
+    cols = ["period_index", "point"]
+    for level in levels:
+        pair = [f"lower_{format_level(level)}", f"upper_{format_level(level)}"]
+        if part[pair[0]].notna().any():
+            cols += pair
+    cols += [f"q_{tau:g}" for tau in taus if part[f"q_{tau:g}"].notna().any()]
+    return cols
 
 
 def _wide(frame: ForecastFrame) -> pd.DataFrame:

@@ -11,6 +11,8 @@ import contextlib
 import datetime as dt
 import hashlib
 import os
+import shutil
+import time
 from collections.abc import Iterator
 from pathlib import Path
 
@@ -29,11 +31,27 @@ __all__ = [
     "parse_as_of",
     "live_runs_sql",
     "latest_actuals_sql",
+    "DEFAULT_WAIT",
 ]
 
-# History of the schema (bump on any change to DDL; add a migration for the old version):
+# History of the schema (bump on any change to DDL and add the step to MIGRATIONS):
 #   1 — first version: meta, series, runs, forecasts, bounds, quantiles, actuals.
-SCHEMA_VERSION = 1
+#   2 — attributes: versioned series attributes (region, family, planner, …).
+SCHEMA_VERSION = 2
+
+_ATTRIBUTES_DDL = """
+-- A row per version of one attribute of one series. A changed value appends a row; the value
+-- in force at an as-of is the newest recorded at or before it. value NULL means "removed".
+CREATE TABLE attributes (
+    series      VARCHAR NOT NULL,
+    name        VARCHAR NOT NULL,
+    value       VARCHAR,
+    recorded_at TIMESTAMP NOT NULL
+);
+"""
+
+# MIGRATIONS[v] turns a version-v ledger into version v + 1 (run inside one transaction).
+MIGRATIONS: dict[int, str] = {1: _ATTRIBUTES_DDL}
 
 DDL = """
 -- Facts about the file itself: schema_version, created_at, writer_version, and settings
@@ -110,9 +128,9 @@ CREATE TABLE actuals (
     recorded_at  TIMESTAMP NOT NULL,
     source       VARCHAR
 );
-"""
+""" + _ATTRIBUTES_DDL
 
-TABLES = ("meta", "series", "runs", "forecasts", "bounds", "quantiles", "actuals")
+TABLES = ("meta", "series", "runs", "forecasts", "bounds", "quantiles", "actuals", "attributes")
 
 
 def utc_now() -> dt.datetime:
@@ -169,10 +187,17 @@ class Store:
     def __init__(self, con: duckdb.DuckDBPyConnection, path: Path):
         self.con = con
         self.path = path
+        self.migrated: tuple[int, Path] | None = None  # (old version, backup copy) when migrated on open
 
     @classmethod
-    def open(cls, path: str | os.PathLike, *, create: bool = True, read_only: bool = False) -> "Store":
-        """Open (or, with ``create``, create) the ledger at ``path``."""
+    def open(cls, path: str | os.PathLike, *, create: bool = True, read_only: bool = False,
+             wait: float | None = None) -> "Store":
+        """Open (or, with ``create``, create) the ledger at ``path``.
+
+        DuckDB lets one process write a file, or several read it, never both. While another
+        process holds the file, this waits up to ``wait`` seconds (default: the environment
+        variable BACKSIGHT_WAIT, else 10) and then raises :class:`LedgerBusy`.
+        """
         path = Path(path)
         exists = path.exists()
         if not exists and not create:
@@ -182,8 +207,11 @@ class Store:
             )
         if exists and path.is_dir():
             raise NotALedger(f"{path} is a folder, not a ledger file")
-        con = _connect(path, read_only=read_only and exists)
+        seconds = _wait_seconds(wait)
+        migrated = _migrate_if_old(path, seconds) if exists else None
+        con = _connect(path, read_only=read_only and exists, wait=seconds)
         store = cls(con, path)
+        store.migrated = migrated
         try:
             if exists and _has_tables(con):
                 store._check_schema()
@@ -296,16 +324,83 @@ def _hash_frame(digest, frame: pd.DataFrame) -> None:
             digest.update("\x1f".join("" if pd.isna(v) else str(v) for v in col).encode())
 
 
-def _connect(path: Path, *, read_only: bool) -> duckdb.DuckDBPyConnection:
+DEFAULT_WAIT = 10.0
+
+
+def _wait_seconds(wait: float | None) -> float:
+    if wait is not None:
+        return max(0.0, float(wait))
     try:
-        return duckdb.connect(str(path), read_only=read_only)
-    except duckdb.IOException as exc:
-        text = str(exc)
-        if "lock" in text.lower():
-            raise LedgerBusy(f"the ledger {path} is in use by another process; try again") from None
-        raise NotALedger(f"{path} cannot be opened as a ledger: {text.splitlines()[0]}") from None
-    except duckdb.Error as exc:
-        raise NotALedger(f"{path} is not a Backsight ledger ({str(exc).splitlines()[0]})") from None
+        return max(0.0, float(os.environ.get("BACKSIGHT_WAIT", DEFAULT_WAIT)))
+    except ValueError:
+        raise LedgerError(f"BACKSIGHT_WAIT={os.environ['BACKSIGHT_WAIT']!r} is not a number of seconds") from None
+
+
+def _connect(path: Path, *, read_only: bool, wait: float) -> duckdb.DuckDBPyConnection:
+    deadline = time.monotonic() + wait
+    pause = 0.05
+    while True:
+        try:
+            return duckdb.connect(str(path), read_only=read_only)
+        except duckdb.IOException as exc:
+            text = str(exc)
+            if "lock" not in text.lower():
+                raise NotALedger(f"{path} cannot be opened as a ledger: {text.splitlines()[0]}") from None
+            if time.monotonic() >= deadline:
+                raise LedgerBusy(f"the ledger {path} is in use by another process; try again") from None
+        except duckdb.Error as exc:
+            raise NotALedger(f"{path} is not a Backsight ledger ({str(exc).splitlines()[0]})") from None
+        time.sleep(min(pause, max(0.0, deadline - time.monotonic())))
+        pause = min(pause * 2, 0.5)
+
+
+def _schema_version(con: duckdb.DuckDBPyConnection) -> int | None:
+    if not _has_tables(con):
+        return None
+    rows = con.execute("SELECT value FROM meta WHERE key = 'schema_version'").fetchall()
+    return int(rows[0][0]) if rows else None
+
+
+def _backup_path(path: Path, version: int) -> Path:
+    backup = path.with_name(f"{path.name}.schema-v{version}.bak")
+    n = 2
+    while backup.exists():
+        backup = path.with_name(f"{path.name}.schema-v{version}.bak{n}")
+        n += 1
+    return backup
+
+
+def _migrate_if_old(path: Path, wait: float) -> tuple[int, Path] | None:
+    """Bring an older ledger to SCHEMA_VERSION: first a backup copy beside it, then every
+    migration step in one transaction. Returns (old version, backup path), or None."""
+    try:
+        con = _connect(path, read_only=True, wait=wait)
+    except NotALedger:
+        return None     # Store.open reports it precisely
+    try:
+        found = _schema_version(con)
+    finally:
+        con.close()
+    if found is None or found >= SCHEMA_VERSION:
+        return None
+    if found not in MIGRATIONS:
+        raise SchemaTooOld(f"{path} has schema version {found}, which this Backsight cannot migrate")
+    backup = _backup_path(path, found)
+    shutil.copy2(path, backup)
+    con = _connect(path, read_only=False, wait=wait)
+    try:
+        con.execute("BEGIN TRANSACTION")
+        try:
+            for version in range(found, SCHEMA_VERSION):
+                con.execute(MIGRATIONS[version])
+            con.execute("UPDATE meta SET value = ? WHERE key = 'schema_version'", [str(SCHEMA_VERSION)])
+        except BaseException:
+            con.execute("ROLLBACK")
+            raise
+        con.execute("COMMIT")
+    finally:
+        con.close()
+    return found, backup
 
 
 def _has_tables(con: duckdb.DuckDBPyConnection) -> bool:

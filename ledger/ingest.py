@@ -7,6 +7,7 @@ Errors name the file, the 1-based data row (header excluded) and the column.
 from __future__ import annotations
 
 import dataclasses
+from collections import Counter
 import datetime as dt
 import os
 import re
@@ -15,6 +16,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from .csvread import read_csv_strings, shorten
 from .errors import FrequencyError, InputError
 from .periods import FREQUENCIES, check_frequency, parse_label, period_index, period_label, period_start
 
@@ -72,7 +74,8 @@ def read_table(data: str | os.PathLike | pd.DataFrame, *, name: str | None = Non
         source = name or path.name
         frame = _read_file(path, source)
     frame.columns = [str(c).strip().lstrip("\ufeff").strip().lower() for c in frame.columns]
-    dupes = sorted({c for c in frame.columns if list(frame.columns).count(c) > 1})
+    counts = Counter(frame.columns)
+    dupes = sorted(c for c, k in counts.items() if k > 1)
     if dupes:
         raise InputError(source, f"the header names {', '.join(dupes)} more than once (column names are case-insensitive)")
     if len(frame) == 0:
@@ -83,23 +86,15 @@ def read_table(data: str | os.PathLike | pd.DataFrame, *, name: str | None = Non
 def _read_file(path: Path, source: str) -> pd.DataFrame:
     if not path.exists():
         raise InputError(source, f"no such file: {path}")
-    suffix = path.suffix.lower()
+    if path.is_dir():
+        raise InputError(source, f"{path} is a folder, not a file")
+    if path.suffix.lower() not in (".parquet", ".pq"):
+        return read_csv_strings(path, source)
     try:
-        if suffix in (".parquet", ".pq"):
-            return pd.read_parquet(path)
-        if path.stat().st_size == 0:
-            raise InputError(source, "the file is empty")
-        return pd.read_csv(path, dtype=str, keep_default_na=False, encoding="utf-8-sig",
-                           skip_blank_lines=True)
-    except InputError:
-        raise
-    except UnicodeDecodeError as exc:
-        raise InputError(source, f"is not UTF-8 text (byte {exc.start}); save it as UTF-8") from None
-    except pd.errors.EmptyDataError:
-        raise InputError(source, "the file is empty") from None
-    except (pd.errors.ParserError, ValueError, OSError) as exc:
+        return pd.read_parquet(path)
+    except (ValueError, OSError) as exc:
         first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-        raise InputError(source, f"cannot be read as {'Parquet' if suffix in ('.parquet', '.pq') else 'CSV'}: {first}") from None
+        raise InputError(source, f"cannot be read as Parquet: {first}") from None
 
 
 def _require(source: str, frame: pd.DataFrame, required: tuple[str, ...]) -> None:
@@ -139,9 +134,21 @@ def _numbers(source: str, frame: pd.DataFrame, column: str, *, allow_blank: bool
     if bad.any():
         i = int(np.argmax(bad))
         shown = "" if text is None else text.iloc[i]
-        what = "is empty" if blank[i] else f"{shown or values[i]!r} is not a finite number"
+        what = "is empty" if blank[i] else f"{shorten(shown or values[i])!r} is not a finite number{_number_hint(shown)}"
         raise InputError(source, what, row=i + 1, column=column)
     return values
+
+
+_DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+$")
+_GROUPED = re.compile(r"^[-+]?\d{1,3}([,\s'’]\d{3})+(\.\d+)?$")
+
+
+def _number_hint(text: str) -> str:
+    if _GROUPED.match(text):
+        return "; remove the thousands separators"
+    if _DECIMAL_COMMA.match(text):
+        return "; write the decimal mark as a point (10.5)"
+    return ""
 
 
 def _parse_floats(text: pd.Series, blank: np.ndarray) -> np.ndarray:
@@ -152,11 +159,20 @@ def _parse_floats(text: pd.Series, blank: np.ndarray) -> np.ndarray:
         return pd.to_numeric(text.where(~blank, None), errors="coerce").to_numpy(dtype="float64", na_value=np.nan)
 
 
+MAX_KEY_LENGTH = 200
+MAX_HORIZON = 1000
+
+
 def _keys(source: str, frame: pd.DataFrame, column: str) -> np.ndarray:
     text = _as_text(frame[column])
     empty = (text == "").to_numpy()
     if empty.any():
         raise InputError(source, "is empty", row=int(np.argmax(empty)) + 1, column=column)
+    long = (text.str.len() > MAX_KEY_LENGTH).to_numpy()
+    if long.any():
+        i = int(np.argmax(long))
+        raise InputError(source, f"{shorten(text.iloc[i])!r} is longer than {MAX_KEY_LENGTH} characters",
+                         row=i + 1, column=column)
     return text.to_numpy(dtype=object)
 
 
@@ -207,10 +223,8 @@ def _decide_frequency(
     if freq is None and len(known) == 1:
         freq = next(iter(known))
     if freq is None:
-        raise FrequencyError(
-            f"{source}: periods are bare dates, which fit several frequencies; say which with "
-            f"--freq ({', '.join(FREQUENCIES)})"
-        )
+        raise InputError(source, "holds bare dates, which fit several frequencies; say which with "
+                         f"--freq ({', '.join(FREQUENCIES)})", row=1, column=parsed[0][0])
     return freq
 
 
@@ -248,6 +262,13 @@ def _extra_columns(frame: pd.DataFrame, known: set[str], source: str) -> list[st
                              "(q10 is the 0.10 quantile)", column=col)
         extras.append(col)
     return extras
+
+
+def _ignored(source: str, extras: list[str]) -> str:
+    shown = ", ".join(shorten(c) for c in extras[:10])
+    if len(extras) > 10:
+        shown += f" and {len(extras) - 10:,} more"
+    return f"{source}: ignored column{'s' if len(extras) > 1 else ''} {shown}"
 
 
 def _bound_columns(frame: pd.DataFrame, source: str) -> dict[float, tuple[str, str]]:
@@ -314,7 +335,7 @@ def read_forecasts(
     bound_cols = _bound_columns(frame, source)
     quant_cols = _quantile_columns(frame, source)
     extras = _extra_columns(frame, {"series", "period", "forecast", "model", "origin"}, source)
-    warnings = [f"{source}: ignored column{'s' if len(extras) > 1 else ''} {', '.join(extras)}"] if extras else []
+    warnings = [_ignored(source, extras)] if extras else []
 
     models, origins = _model_origin(source, frame, model, origin)
     keys = _keys(source, frame, "series")
@@ -344,6 +365,11 @@ def read_forecasts(
 
 
 def _check_after_origin(source: str, cells: pd.DataFrame, freq: str) -> None:
+    far = (cells["horizon"] > MAX_HORIZON).to_numpy()
+    if far.any():
+        i = int(np.argmax(far))
+        raise InputError(source, f"target period is {cells['horizon'].iloc[i]:,} periods after the origin; "
+                         f"Backsight accepts horizons up to {MAX_HORIZON}", row=i + 1, column="period")
     bad = (cells["horizon"] < 1).to_numpy()
     if bad.any():
         i = int(np.argmax(bad))
@@ -407,7 +433,7 @@ def read_actuals(data, *, freq: str | None = None, recorded: dict[str, str] | No
     source, frame = read_table(data, name=name)
     _require(source, frame, ("series", "period", "actual"))
     extras = [c for c in frame.columns if c not in ("series", "period", "actual")]
-    warnings = [f"{source}: ignored column{'s' if len(extras) > 1 else ''} {', '.join(extras)}"] if extras else []
+    warnings = [_ignored(source, extras)] if extras else []
     keys = _keys(source, frame, "series")
     labels, text = _labels(source, _keys(source, frame, "period"), "period")
     known = {recorded[k] for k in pd.unique(keys) if k in recorded}

@@ -47,7 +47,8 @@ _YEAR = re.compile(r"^(\d{4})$")
 _QUARTER = re.compile(r"^(\d{4})-?[Qq]([1-4])$")
 _MONTH = re.compile(r"^(\d{4})-(\d{1,2})$")
 _WEEK = re.compile(r"^(\d{4})-?[Ww](\d{1,2})$")
-_DATE = re.compile(r"^(\d{4})-(\d{2})-(\d{2})(?:[T ]00:00(?::00(?:\.0+)?)?)?$")
+_DATE = re.compile(r"^(\d{4})-(\d{2})-(\d{2})(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d+)?)?(?:Z|[+-]\d{2}:?\d{2})?)?$")
+_SERIAL = re.compile(r"^\d{5}(\.\d+)?$")
 
 
 def check_frequency(freq: str) -> str:
@@ -70,6 +71,8 @@ def parse_label(text: str) -> tuple[str | None, dt.date]:
     ('weekly', datetime.date(2026, 1, 26))
     """
     s = str(text).strip()
+    if len(s) > 40:
+        raise ValueError(f"{s[:40]!r}… ({len(s):,} characters) is not a period")
     if m := _DATE.match(s):
         return None, _date(s, int(m[1]), int(m[2]), int(m[3]))
     if m := _MONTH.match(s):
@@ -87,8 +90,9 @@ def parse_label(text: str) -> tuple[str | None, dt.date]:
             raise ValueError(f"ISO week {week} does not exist in {year} ({text!r})") from None
     if m := _YEAR.match(s):
         return "yearly", dt.date(int(m[1]), 1, 1)
+    hint = " (it looks like a spreadsheet date serial number; export dates as text)" if _SERIAL.match(s) else ""
     raise ValueError(
-        f"{text!r} is not a period; use an ISO date (2026-07-31) or a label such as "
+        f"{text!r} is not a period{hint}; use an ISO date (2026-07-31) or a label such as "
         "2026, 2026Q3, 2026-11 or 2026-W05"
     )
 

@@ -99,7 +99,7 @@ def test_frequency_contradicting_the_record(tmp_path, runner, base):
 def test_bare_dates_of_a_new_series_need_freq(tmp_path, runner, base):
     f = write(tmp_path / "d.csv", "series,period,forecast\nNEW,2026-01-31,1\n")
     _refused(runner, base, ["snapshot", str(f), "--model", "m", "--origin", "2025-12-31"],
-             "d.csv: periods are bare dates, which fit several frequencies; say which with --freq "
+             "d.csv row 1 column period: holds bare dates, which fit several frequencies; say which with --freq "
              "(yearly, quarterly, monthly, weekly, daily)")
 
 

@@ -14,11 +14,19 @@ from collections.abc import Sequence
 
 import pandas as pd
 
+from . import flags as _flags
+from . import standings as _standings
+from .findings import KINDS, check_models
+from .groups import AttributesResult, parse_where, series_attributes, write_attributes
 from .ingest import read_actuals, read_forecasts
+from .integrity import Problem, verify
 from .periods import period_label
 from .record import ActualsResult, SnapshotResult, write_actuals, write_runs
 from .scoring import Selection, interval_cells, score_cells, scores
 from .store import Store, parse_as_of
+from .totals import totals
+from .transfer import ExportFormat, export_ledger, import_ledger
+from .weighted import weighted_scores
 
 __all__ = ["Ledger", "DEFAULT_PATH"]
 
@@ -33,9 +41,13 @@ class Ledger:
 
     @classmethod
     def open(cls, path: str | os.PathLike = DEFAULT_PATH, *, create: bool = True,
-             read_only: bool = False) -> "Ledger":
-        """Open the ledger at ``path``, creating it when ``create`` (the default)."""
-        return cls(Store.open(path, create=create, read_only=read_only))
+             read_only: bool = False, wait: float | None = None) -> "Ledger":
+        """Open the ledger at ``path``, creating it when ``create`` (the default).
+
+        While another process holds the file, waits up to ``wait`` seconds (default 10, or the
+        environment variable BACKSIGHT_WAIT) and then raises :class:`ledger.errors.LedgerBusy`.
+        """
+        return cls(Store.open(path, create=create, read_only=read_only, wait=wait))
 
     @property
     def path(self):
@@ -66,6 +78,23 @@ class Ledger:
         frame = read_actuals(data, freq=freq, recorded=self._recorded_frequencies(), name=name)
         return write_actuals(self.store, frame)
 
+    def backtest(self, data, *, methods: Sequence[str], horizon: int | None = None,
+                 holdout: int | None = None, origins: str | None = None,
+                 levels: Sequence[float] = (80, 95), freq: str | None = None, jobs: int | None = None,
+                 fill: str | None = None, progress=None, name: str | None = None,
+                 supersede: bool = False):
+        """Record a history file as actuals and snapshot reference backtests as ``ref-<method>`` runs.
+
+        Exactly one of ``holdout=K`` or ``origins="FIRST:LAST[:STEP]"``; see
+        :func:`ledger.reference.run_backtest` for every option. Returns a
+        :class:`ledger.reference.BacktestResult`.
+        """
+        from .reference import run_backtest
+
+        return run_backtest(self, data, methods=methods, horizon=horizon, holdout=holdout, origins=origins,
+                            levels=levels, freq=freq, jobs=jobs, fill=fill, progress=progress, name=name,
+                            supersede=supersede)
+
     def selection(self, *, as_of=None, models: Sequence[str] = (), series: Sequence[str] = (),
                   horizons: Sequence[int] = (), since: str | None = None,
                   until: str | None = None) -> Selection:
@@ -73,11 +102,34 @@ class Ledger:
 
     def scores(self, *, by: Sequence[str] = ("model", "horizon"), as_of=None,
                models: Sequence[str] = (), series: Sequence[str] = (), horizons: Sequence[int] = (),
-               since: str | None = None, until: str | None = None) -> pd.DataFrame:
-        """Accuracy metrics per group of cells (columns as in the README's Definitions)."""
+               since: str | None = None, until: str | None = None, where: Sequence[str] = (),
+               weight: str | None = None) -> pd.DataFrame:
+        """Accuracy metrics per group of cells (columns as in the README's Definitions).
+
+        ``by`` takes series, model, horizon, origin, period and any attribute name; ``where``
+        takes "ATTR=VALUE" filters; ``weight`` ("volume" or a numeric attribute) adds the
+        weighted columns of :mod:`ledger.weighted`.
+        """
         sel = self.selection(as_of=as_of, models=models, series=series, horizons=horizons,
                              since=since, until=until)
-        return scores(self.store, sel, by)
+        conditions = parse_where(where)
+        if weight is not None:
+            return weighted_scores(self.store, sel, by, weight=weight, where=conditions)
+        return scores(self.store, sel, by, where=conditions)
+
+    def totals(self, attribute: str, *, as_of=None, models: Sequence[str] = (), horizons: Sequence[int] = (),
+               since: str | None = None, until: str | None = None) -> pd.DataFrame:
+        """Accuracy of each group's total (sum of members, and any direct total forecast); point metrics."""
+        sel = self.selection(as_of=as_of, models=models, horizons=horizons, since=since, until=until)
+        return totals(self.store, sel, attribute)
+
+    def record_attributes(self, data, *, name: str | None = None, total_of: str | None = None) -> AttributesResult:
+        """Record series attributes (a changed value becomes a new version); see :mod:`ledger.groups`."""
+        return write_attributes(self.store, data, name=name, total_of=total_of)
+
+    def attributes(self, *, as_of=None) -> pd.DataFrame:
+        """One row per series with the attributes in force at the as-of."""
+        return series_attributes(self.store, parse_as_of(as_of))
 
     def cells(self, **selection) -> pd.DataFrame:
         """Every scored cell with actual, error and scale (one row per cell)."""
@@ -86,6 +138,18 @@ class Ledger:
     def interval_cells(self, **selection) -> pd.DataFrame:
         """Every scored cell and interval level, with bounds and whether the actual fell outside."""
         return interval_cells(self.store, self.selection(**selection))
+
+    def verify(self, *, progress=None) -> list[Problem]:
+        """Integrity problems of the ledger file (empty when sound)."""
+        return verify(self.store, progress=progress)
+
+    def export(self, out_dir, *, fmt: ExportFormat = "parquet") -> list:
+        """Write every table to ``out_dir`` as Parquet or CSV; return the files written."""
+        return export_ledger(self.store, out_dir, fmt=fmt)
+
+    def import_export(self, in_dir) -> dict[str, int]:
+        """Load a folder written by :meth:`export` into this (empty) ledger; rows per table."""
+        return import_ledger(self.store, in_dir)
 
     def runs(self) -> pd.DataFrame:
         """One row per run: id, model, origin, recorded at, cells, hash, superseded by."""
@@ -96,3 +160,39 @@ class Ledger:
         frame["origin"] = [period_label(pd.Timestamp(d).date(), f)
                            for d, f in zip(frame["origin"], frame["frequency"])]
         return frame
+
+    def flags(self, *, kinds: Sequence[str] = KINDS, models: Sequence[str] = (), as_of=None,
+              **thresholds) -> pd.DataFrame:
+        """Drift, calibration, value-added and data-quality findings, one row per finding.
+
+        Columns: kind, series, model, horizon, level, since, figure, evidence, check, severity,
+        zone, horizons, raised, measure, p_value, n. ``thresholds``: the fields of
+        :class:`ledger.findings.FlagOptions` (e.g. ``drift_h=5.5``, ``fdr=0.05``,
+        ``benchmark="ref-snaive"``), each with its stated default.
+        """
+        return _flags.flags(self.store, self.selection(as_of=as_of, models=models), kinds=kinds, **thresholds)
+
+    def compare(self, a: str, b: str, *, horizons: Sequence[int] = (), as_of=None,
+                alpha: float = 0.05) -> pd.DataFrame:
+        """a (incumbent) against b (challenger) per horizon on common cells; verdict in ``.attrs["verdict"]``."""
+        return _standings.compare(self.store, self.selection(as_of=as_of), a, b, horizons=horizons, alpha=alpha)
+
+    def standings(self, *, horizons: Sequence[int] = (), models: Sequence[str] = (), as_of=None) -> pd.DataFrame:
+        """Per evaluation period, each model's MASE, rank and share of series won, on common cells."""
+        return _standings.standings(self.store, self.selection(as_of=as_of, models=models, horizons=horizons))
+
+    def advise(self, incumbent: str | None = None, *, challengers: Sequence[str] = (), window: int = 12,
+               horizons: Sequence[int] = (), alpha: float = 0.05, as_of=None) -> pd.DataFrame:
+        """Replace the incumbent (None: the stored setting) with a challenger, or not, and why."""
+        return _standings.advise(self.store, self.selection(as_of=as_of), incumbent, challengers=challengers,
+                                 window=window, horizons=horizons, alpha=alpha)
+
+    def set_incumbent(self, model: str) -> None:
+        """Store ``model`` as the incumbent (ledger setting "incumbent"), used by :meth:`advise`."""
+        check_models(self.store, [model])
+        self.store.set_setting(_standings.INCUMBENT_KEY, model)
+
+    @property
+    def incumbent(self) -> str | None:
+        """The stored incumbent model, or None."""
+        return self.store.get_setting(_standings.INCUMBENT_KEY)

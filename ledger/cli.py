@@ -11,7 +11,18 @@ from typing import Annotated
 
 import typer
 
-from .cli_common import AsOfOpt, Format, FormatOpt, FreqOpt, app, busy, emit, notice, open_ledger
+from .cli_common import (
+    AsOfOpt,
+    Format,
+    FormatOpt,
+    FreqOpt,
+    app,
+    busy,
+    emit,
+    notice,
+    open_ledger,
+)
+from .totals import INTERVAL_NOTE
 
 __all__ = ["app", "main"]
 
@@ -56,23 +67,49 @@ def actuals(
 @app.command()
 def scores(
     ctx: typer.Context,
-    by: Annotated[str, typer.Option("--by", help="Comma list of series, model, horizon, origin, period.")] = "model,horizon",
+    by: Annotated[str, typer.Option("--by", help="Comma list of series, model, horizon, origin, period, or attribute names.")] = "model,horizon",
     model: Annotated[list[str] | None, typer.Option("--model", help="Only this model (repeatable).")] = None,
     series: Annotated[list[str] | None, typer.Option("--series", help="Only this series (repeatable).")] = None,
     horizon: Annotated[list[int] | None, typer.Option("--horizon", help="Only this horizon (repeatable).")] = None,
     since: Annotated[str | None, typer.Option("--since", help="First target period to score.")] = None,
     until: Annotated[str | None, typer.Option("--until", help="Last target period to score.")] = None,
+    where: Annotated[list[str] | None, typer.Option("--where", metavar="ATTR=VALUE", help="Only series with this attribute value (repeatable).")] = None,
+    weight: Annotated[str | None, typer.Option("--weight", help="Add weighted MAPE, bias, MASE, RMSSE: 'volume' or a numeric attribute (× volume).")] = None,
+    totals: Annotated[str | None, typer.Option("--totals", metavar="ATTR", help="Score each group's total (sum of members) instead of cells.")] = None,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
 ) -> None:
     """Accuracy per group: MAE, RMSE, MAPE, sMAPE, WAPE, MASE, RMSSE, bias, coverage, interval score."""
     with open_ledger(ctx) as book, busy("Scoring"):
-        frame = book.scores(by=by.split(","), as_of=as_of, models=model or (), series=series or (),
-                            horizons=horizon or (), since=since, until=until)
+        if totals is not None:
+            frame = book.totals(totals, as_of=as_of, models=model or (), horizons=horizon or (),
+                                since=since, until=until)
+        else:
+            frame = book.scores(by=by.split(","), as_of=as_of, models=model or (), series=series or (),
+                                horizons=horizon or (), since=since, until=until, where=where or (), weight=weight)
+    if totals is not None:
+        notice(f"totals by {totals}: {INTERVAL_NOTE}; target periods where a member lacks a forecast or an "
+               "actual are left out (n_left_out)")
     if fmt is Format.table and frame.empty:
         notice("no scored cells: no forecast in the selection has an actual yet")
         return
+    if fmt is Format.table and "weighting" in frame.columns:
+        notice(f"weighting: {frame['weighting'].iloc[0]}")
+        frame = frame.drop(columns="weighting")
     emit(frame, fmt, title="Scores (e = actual − forecast; positive bias: forecasts too low)")
+
+
+@app.command()
+def attributes(
+    ctx: typer.Context,
+    file: Annotated[Path, typer.Argument(help="CSV or Parquet: series plus one column per attribute (region, family, unit_price…).")],
+    total_of: Annotated[str | None, typer.Option("--total-of", metavar="ATTR=VALUE", help="The file's series are direct forecasts of this group's total.")] = None,
+) -> None:
+    """Record series attributes; a changed value is kept as a new version (as-of reproduces old groupings)."""
+    with open_ledger(ctx, create=True) as book:
+        result = book.record_attributes(file, total_of=total_of)
+    typer.echo(f"{result.series} series: {result.changed} values recorded, {result.unchanged} unchanged "
+               f"({', '.join(result.names)})")
 
 
 @app.command()
@@ -87,7 +124,7 @@ def runs(ctx: typer.Context, fmt: FormatOpt = Format.table) -> None:
     emit(frame[cols], fmt, title="Runs")
 
 
-from . import cli_admin, cli_findings  # noqa: E402,F401  (registers their commands)
+from . import cli_admin, cli_backtest, cli_demo, cli_findings, cli_report  # noqa: E402,F401  (registers their commands)
 
 
 def main() -> None:

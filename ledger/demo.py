@@ -22,6 +22,7 @@ from typing import Literal, get_args
 import pandas as pd
 
 from .api import Ledger
+from .store import utc_now
 from .errors import LedgerError, NotALedger, SchemaTooNew, SchemaTooOld
 
 __all__ = [
@@ -153,16 +154,16 @@ def _demo_mark(path: Path) -> str | None:
 def _clock(book: Ledger, stamp: dt.datetime) -> Iterator[None]:
     """Stamp the writes of one step with the file's arrival time instead of now.
 
-    The store asks ``next_timestamp`` for every write; it is replaced on this one Store
-    object only, for the duration of the step. :func:`read_manifest` has checked that arrival
-    times strictly increase, which keeps the ledger's as-of order strict.
+    The store takes write times from its ``clock``; it is set on this one Store object only,
+    for the duration of the step. :func:`read_manifest` has checked that arrival times strictly
+    increase, and ``next_timestamp`` keeps the ledger's as-of order strict.
     """
     store = book.store
-    store.next_timestamp = lambda: stamp
+    store.clock = lambda: stamp
     try:
         yield
     finally:
-        del store.next_timestamp
+        store.clock = utc_now
 
 
 def _apply(book: Ledger, history_dir: Path, step: Step):

@@ -23,9 +23,10 @@ import pandas as pd
 from .errors import LedgerError, UnknownName
 from .ingest import format_level
 from .periods import index_start, parse_label, period_index, period_label
+from .groups import attributes_sql, check_attribute, known_attributes
 from .store import Store, latest_actuals_sql, live_runs_sql
 
-__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "score_cells", "interval_cells", "scores", "POINT_COLUMNS"]
+__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "forecasts_sql", "score_cells", "interval_cells", "scores", "POINT_COLUMNS"]
 
 GroupKey = Literal["series", "model", "horizon", "origin", "period"]
 GROUP_KEYS: tuple[str, ...] = get_args(GroupKey)
@@ -79,12 +80,13 @@ def _in_list(column: str, values: Sequence, name: str) -> tuple[str, dict]:
     return sql, dict(zip(names, values))
 
 
-def cells_sql(sel: Selection) -> tuple[str, dict]:
-    """SQL (and parameters) for every scorable cell in the selection, one row per cell.
+def forecasts_sql(sel: Selection) -> tuple[str, dict]:
+    """SQL (and parameters) for every live forecast in the selection, with or without an actual."""
+    sql, params = _parts(sel)
+    return f"WITH live AS ({live_runs_sql()}), {sql} SELECT * FROM fc", params
 
-    Columns: run_id, model, frequency, origin, origin_index, series, period, period_index,
-    horizon, point, actual, e, q, q2.
-    """
+
+def _parts(sel: Selection) -> tuple[str, dict]:
     params = sel.params()
     where = ""
     for column, values, name in (("l.model", sel.models, "m"), ("f.series", sel.series, "s"),
@@ -96,15 +98,26 @@ def cells_sql(sel: Selection) -> tuple[str, dict]:
         where += " AND f.period >= $since"
     if sel.until:
         where += " AND f.period < $until"
-    sql = f"""
-    WITH
-    act AS ({latest_actuals_sql()}),
-    live AS ({live_runs_sql()}),
+    return f"""
     fc AS (
         SELECT f.run_id, l.model, l.frequency, l.origin, l.origin_index, f.series, f.period,
                f.period_index, f.horizon, f.point
         FROM forecasts f JOIN live l ON f.run_id = l.run_id
-        WHERE TRUE {where}),
+        WHERE TRUE {where})""", params
+
+
+def cells_sql(sel: Selection) -> tuple[str, dict]:
+    """SQL (and parameters) for every scorable cell in the selection, one row per cell.
+
+    Columns: run_id, model, frequency, origin, origin_index, series, period, period_index,
+    horizon, point, actual, e, q, q2.
+    """
+    fc, params = _parts(sel)
+    sql = f"""
+    WITH
+    act AS ({latest_actuals_sql()}),
+    live AS ({live_runs_sql()}),
+    {fc},
     lagged AS (
         SELECT a.series, a.period_index, abs(a.value - b.value) AS d
         FROM act a
@@ -197,25 +210,53 @@ _KEY_SQL = {"series": "c.series", "model": "c.model", "horizon": "c.horizon",
             "origin": "c.origin", "period": "c.period"}
 
 
-def _check_keys(by: Sequence[str]) -> list[str]:
+def _check_keys(store: Store, sel: Selection, by: Sequence[str]) -> list[str]:
     keys = [k.strip().lower() for k in by if k.strip()]
-    unknown = [k for k in keys if k not in GROUP_KEYS]
-    if unknown:
-        raise UnknownName(f"cannot group by {', '.join(unknown)}; use a comma list of {', '.join(GROUP_KEYS)}")
     if len(set(keys)) != len(keys):
         raise UnknownName(f"--by names a key twice: {', '.join(by)}")
+    for k in keys:
+        if k not in GROUP_KEYS:
+            known = known_attributes(store, sel.as_of)
+            if k not in known:
+                extra = f", or an attribute ({', '.join(known)})" if known else ""
+                raise UnknownName(f"cannot group by {k}; use a comma list of {', '.join(GROUP_KEYS)}{extra}")
     return keys
 
 
-def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon")) -> pd.DataFrame:
-    """Aggregate metrics per group; columns as documented in the README (Definitions)."""
-    keys = _check_keys(by)
+def _materialise(store: Store, sel: Selection, attrs: list[str], where: list[tuple[str, str]]) -> None:
+    """The temp table _scored: the selected cells, with a column g__<name> per attribute used."""
     sql, params = cells_sql(sel)
+    joins, filters = [], []
+    for i, name in enumerate(attrs):
+        params[f"attr{i}"] = name
+        joins.append(f"LEFT JOIN ({attributes_sql()}) a{i} ON a{i}.series = c.series AND a{i}.name = $attr{i}")
+    for j, (name, value) in enumerate(where):
+        params[f"where{j}"] = value
+        filters.append(f"a{attrs.index(name)}.value = $where{j}")
+    cols = "".join(f", a{i}.value AS g__{name}" for i, name in enumerate(attrs))
+    cond = f"WHERE {' AND '.join(filters)}" if filters else ""
+    store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT c.*{cols} FROM ({sql}) c "
+                      f"{' '.join(joins)} {cond}", params)
+
+
+def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"), *,
+           where: Sequence[tuple[str, str]] = ()) -> pd.DataFrame:
+    """Aggregate metrics per group; columns as documented in the README (Definitions).
+
+    ``by`` takes the built-in keys and any attribute name; ``where`` is a list of
+    (attribute, value) pairs that a cell's series must match.
+    """
+    keys = _check_keys(store, sel, by)
+    where = list(where)
+    for name, _ in where:
+        check_attribute(store, sel.as_of, name, option="--where")
+    attrs = sorted({k for k in keys if k not in GROUP_KEYS} | {name for name, _ in where})
     con = store.con
-    con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS {sql}", params)
+    _materialise(store, sel, attrs, where)
     try:
-        group = ", ".join(_KEY_SQL[k] for k in keys)
-        select_keys = ", ".join(f"{_KEY_SQL[k]} AS {k}" for k in keys)
+        key_sql = {k: _KEY_SQL.get(k, f"c.g__{k}") for k in keys}
+        group = ", ".join(key_sql[k] for k in keys)
+        select_keys = ", ".join(f"{key_sql[k]} AS {k}" for k in keys)
         gb = f"GROUP BY {group}" if keys else ""
         point = con.execute(
             f"SELECT {select_keys + ',' if keys else ''} {_POINT_AGG} FROM _scored c {gb}").df()

@@ -188,6 +188,8 @@ class Store:
         self.con = con
         self.path = path
         self.migrated: tuple[int, Path] | None = None  # (old version, backup copy) when migrated on open
+        # Where write times come from; the demo replays history with the files' arrival times.
+        self.clock = utc_now
 
     @classmethod
     def open(cls, path: str | os.PathLike, *, create: bool = True, read_only: bool = False,
@@ -282,7 +284,7 @@ class Store:
             "SELECT max(t) FROM (SELECT max(recorded_at) t FROM runs UNION ALL "
             "SELECT max(recorded_at) FROM actuals)"
         ).fetchall()[0]
-        now = utc_now()
+        now = self.clock()
         if row[0] is not None and row[0] >= now:
             return row[0] + dt.timedelta(microseconds=1)
         return now

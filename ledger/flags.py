@@ -1,0 +1,79 @@
+"""``flags``: run the drift, calibration, value-added and data-quality checks over a ledger.
+
+One call pulls the scored cells once (set-based SQL in :mod:`ledger.scoring`), runs the
+per-group statistics of :mod:`ledger.drift`, :mod:`ledger.coverage`, :mod:`ledger.value` and
+:mod:`ledger.quality`, and returns one row per finding (columns
+:data:`ledger.findings.FINDING_COLUMNS`). A model filter restricts the findings to those
+models; series-level data findings (model '') are kept for the series those models forecast.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Sequence
+
+import pandas as pd
+
+from .coverage import calibration_findings
+from .drift import drift_findings
+from .errors import UnknownName
+from .findings import (
+    KINDS,
+    Finding,
+    FlagOptions,
+    check_models,
+    findings_frame,
+    known_models,
+)
+from .quality import data_findings, series_models
+from .scoring import Selection, interval_cells, score_cells
+from .store import Store
+from .value import value_findings
+
+__all__ = ["flags"]
+
+
+def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, **thresholds) -> pd.DataFrame:
+    """Findings of the given kinds for the models in ``sel`` (all when empty), at ``sel.as_of``.
+
+    ``thresholds`` are the fields of :class:`ledger.findings.FlagOptions`, each with its default.
+    """
+    kinds = _check_kinds(kinds)
+    options = FlagOptions.from_keywords(**thresholds)
+    check_models(store, list(sel.models) + ([options.benchmark] if options.benchmark else []))
+    everyone = dataclasses.replace(sel, models=())
+    seasons, freqs = _series_facts(store)
+    found: list[Finding] = []
+    cells = score_cells(store, everyone) if {"drift", "value"} & set(kinds) else None
+    subjects = list(sel.models) or known_models(store)
+    if "drift" in kinds:
+        found += drift_findings(cells[cells["model"].isin(subjects)], seasons, options)
+    if "calibration" in kinds:
+        found += calibration_findings(interval_cells(store, sel), freqs, options)
+    if "value" in kinds:
+        found += value_findings(cells, subjects, known_models(store), options)
+    if "data" in kinds:
+        found += _data_for(store, sel, options)
+    return findings_frame(found)
+
+
+def _check_kinds(kinds: Sequence[str]) -> list[str]:
+    chosen = [str(k).strip().lower() for k in kinds] or list(KINDS)
+    unknown = [k for k in chosen if k not in KINDS]
+    if unknown:
+        raise UnknownName(f"flags: unknown kind {', '.join(unknown)}; use {', '.join(KINDS)}")
+    return chosen
+
+
+def _series_facts(store: Store) -> tuple[dict[str, int], dict[str, str]]:
+    rows = store.con.execute("SELECT series, season_length, frequency FROM series").fetchall()
+    return {s: int(m) for s, m, _ in rows}, {s: f for s, _, f in rows}
+
+
+def _data_for(store: Store, sel: Selection, options: FlagOptions) -> list[Finding]:
+    found = data_findings(store, sel, options)
+    if not sel.models:
+        return found
+    pairs = series_models(store, sel)
+    wanted = set(pairs.loc[pairs["model"].isin(sel.models), "series"])
+    return [f for f in found if f.model in sel.models or (not f.model and f.series in wanted)]

@@ -1,0 +1,66 @@
+"""The Jinja2 environment: autoescaped templates, the inlined stylesheet and the page security policy.
+
+Every page is one self-contained file: the CSS from ``static/report.css`` is inlined, charts
+are inline SVG, and a Content-Security-Policy meta tag forbids every network load (no
+scripts, fonts, frames or remote images), so a page opened from disk loads nothing else.
+Every value a template prints is HTML-escaped (autoescape); only chart SVG, which
+:mod:`reports.charts` produced and cleaned, is marked safe.
+"""
+
+from __future__ import annotations
+
+import functools
+from importlib import resources
+
+import jinja2
+import markupsafe
+
+from .text import SMALL_SAMPLE, bias_words, num, pct
+
+__all__ = ["CSP", "environment", "render_page"]
+
+#: No network loads of any kind; inline styles only; images only as data: URIs.
+CSP = ("default-src 'none'; style-src 'unsafe-inline'; img-src data:; font-src 'none'; "
+       "script-src 'none'; connect-src 'none'; base-uri 'none'; form-action 'none'")
+
+
+@functools.cache
+def _css() -> markupsafe.Markup:
+    """The stylesheet, marked safe: it is our own package file, and a <style> element's text is
+    not entity-decoded, so escaping it would break the CSS."""
+    text = resources.files("reports").joinpath("static/report.css").read_text(encoding="utf-8")
+    if "</" in text:
+        raise ValueError("report.css must not contain '</'")
+    return markupsafe.Markup(text)
+
+
+def _share(x) -> str:
+    """A 0–1 share as a whole percentage: 0.625 -> '63%'."""
+    return pct(100 * x, 0) if isinstance(x, (int, float)) and x == x else "–"
+
+
+def _pvalue(p) -> str:
+    if not isinstance(p, (int, float)) or p != p:
+        return "–"
+    return "< 0.0001" if p < 0.0001 else f"{p:.2g}"
+
+
+@functools.cache
+def environment() -> jinja2.Environment:
+    """The report's Jinja2 environment (autoescape on for every template)."""
+    env = jinja2.Environment(
+        loader=jinja2.PackageLoader("reports", "templates"),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+    env.filters.update(num=num, pct=pct, bias=bias_words, share=_share, pvalue=_pvalue)
+    env.globals.update(csp=CSP, css=_css, small_sample=SMALL_SAMPLE)
+    return env
+
+
+def render_page(template: str, **context) -> str:
+    """Render one page template with its view-model and the shared context."""
+    return environment().get_template(template).render(**context)

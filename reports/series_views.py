@@ -1,0 +1,239 @@
+"""The view-model of a series page, built from one series' slice of the report data.
+
+The site splits the ledger's frames by series once (a groupby, not a query per series) into
+:class:`SeriesInput` objects; :func:`build_series` turns one into a :class:`SeriesView`, chart
+included. Inputs are plain, picklable values, so series pages can be built in worker processes.
+Gaps in the actuals are kept as NaN slots: the chart breaks the line there and the page lists
+them; nothing is filled in.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Sequence
+
+import numpy as np
+import pandas as pd
+
+from ledger.checks import demand_interval_stats, gaps
+from ledger.periods import index_start, period_label
+
+from . import charts
+from .text import SMALL_SAMPLE, bias_words, is_small, num, plural
+
+__all__ = ["SeriesInput", "SeriesMetric", "LatestRow", "SeriesView", "build_series", "metrics_for", "HISTORY_SHOWN"]
+
+#: Periods of history drawn before the latest forecasts (tables keep every scored cell).
+HISTORY_SHOWN = 72
+
+
+@dataclasses.dataclass(frozen=True)
+class SeriesMetric:
+    model: str
+    href: str
+    n: int
+    mape: float
+    mase: float
+    wape: float
+    bias_pct: float
+    bias_text: str
+    coverage: dict[str, float]   # level label -> observed coverage in %
+    n_unscaled: int
+    small: bool
+
+
+@dataclasses.dataclass(frozen=True)
+class LatestRow:
+    period: str
+    horizon: int
+    points: dict[str, float]                   # model -> point forecast
+    bounds: dict[str, tuple[float, float]]     # level label -> (lower, upper) of the fan model
+
+
+@dataclasses.dataclass
+class SeriesInput:
+    """One series' slice of the report data (see :mod:`reports.site`)."""
+
+    key: str
+    href: str
+    frequency: str
+    season_length: int
+    horizon: int
+    models: list[str]
+    styles: dict[str, dict]
+    model_href: dict[str, str]
+    fan_preference: list[str]
+    actual_index: np.ndarray
+    actual_value: np.ndarray
+    cells: pd.DataFrame        # model, period_index, point, e (at the chosen horizon)
+    latest: pd.DataFrame       # model, origin_index, period_index, horizon, point, lower_L, upper_L
+    metrics: list[SeriesMetric]
+    findings: list             # FindingRow
+    with_chart: bool = True
+
+
+@dataclasses.dataclass(frozen=True)
+class SeriesView:
+    key: str
+    href: str
+    frequency: str
+    season_length: int
+    n_actuals: int
+    first: str
+    last: str
+    horizon: int
+    metrics: list[SeriesMetric]
+    levels: list[str]
+    fan_model: str
+    fan_origin: str
+    latest_models: list[str]
+    latest: list[LatestRow]
+    chart: charts.Chart | None
+    findings: list
+    notes: list[str]
+
+
+def _label(index: int, freq: str) -> str:
+    return period_label(index_start(int(index), freq), freq)
+
+
+def build_series(inp: SeriesInput) -> SeriesView:
+    """Everything the series page shows, chart included (unless ``with_chart`` is False)."""
+    freq = inp.frequency
+    fan_model = _fan_model(inp)
+    fan_rows = inp.latest[inp.latest["model"] == fan_model] if fan_model else inp.latest.iloc[0:0]
+    levels = sorted({c.split("_", 1)[1] for c in fan_rows.columns if c.startswith("lower_")
+                     and fan_rows[c].notna().any()}, key=float)
+    first = _label(inp.actual_index[0], freq) if len(inp.actual_index) else "–"
+    last = _label(inp.actual_index[-1], freq) if len(inp.actual_index) else "–"
+    fan_origin = _label(int(fan_rows["origin_index"].iloc[0]), freq) if len(fan_rows) else "–"
+    return SeriesView(
+        key=inp.key, href=inp.href, frequency=freq, season_length=inp.season_length,
+        n_actuals=int(len(inp.actual_index)), first=first, last=last, horizon=inp.horizon,
+        metrics=inp.metrics, levels=levels, fan_model=fan_model or "", fan_origin=fan_origin,
+        latest_models=sorted(inp.latest["model"].unique().tolist(), key=inp.models.index),
+        latest=_latest_rows(inp, fan_rows, levels), chart=_chart(inp, fan_model, fan_rows, levels) if inp.with_chart else None,
+        findings=inp.findings, notes=_notes(inp))
+
+
+def _fan_model(inp: SeriesInput) -> str | None:
+    """The model whose latest run is drawn as a fan: the preferred model (incumbent, else best), else the first."""
+    present = set(inp.latest["model"])
+    for m in inp.fan_preference + inp.models:
+        if m in present:
+            return m
+    return None
+
+
+def _latest_rows(inp: SeriesInput, fan_rows: pd.DataFrame, levels: list[str]) -> list[LatestRow]:
+    if inp.latest.empty:
+        return []
+    points = inp.latest.pivot_table(index="period_index", columns="model", values="point", aggfunc="first")
+    fan = fan_rows.set_index("period_index")
+    rows = []
+    for idx in points.index:
+        hz = fan.loc[idx, "horizon"] if idx in fan.index else inp.latest.loc[inp.latest["period_index"] == idx, "horizon"].min()
+        rows.append(LatestRow(
+            period=_label(idx, inp.frequency), horizon=int(hz),
+            points={m: float(points.at[idx, m]) for m in points.columns if not pd.isna(points.at[idx, m])},
+            bounds={lv: (float(fan.at[idx, f"lower_{lv}"]), float(fan.at[idx, f"upper_{lv}"]))
+                    for lv in levels if idx in fan.index and not pd.isna(fan.at[idx, f"lower_{lv}"])}))
+    return rows
+
+
+def _chart(inp: SeriesInput, fan_model: str | None, fan_rows: pd.DataFrame, levels: list[str]) -> charts.Chart:
+    freq, h = inp.frequency, inp.horizon
+    ends = [a for a in (inp.actual_index, inp.cells["period_index"].to_numpy(), fan_rows["period_index"].to_numpy()) if len(a)]
+    hi = int(max(a.max() for a in ends)) if ends else 0
+    lo = int(min(a.min() for a in ends)) if ends else 0
+    last_hist = int(inp.actual_index.max()) if len(inp.actual_index) else hi
+    lo = max(lo, last_hist - HISTORY_SHOWN + 1)
+    slots = np.arange(lo, hi + 1)
+    actual = _aligned(slots, inp.actual_index, inp.actual_value)
+    forecasts, errors = {}, {}
+    for model, part in inp.cells.groupby("model", sort=False):
+        idx = part["period_index"].to_numpy()
+        forecasts[model] = _aligned(slots, idx, part["point"].to_numpy(dtype=float))
+        errors[model] = _aligned(slots, idx, part["e"].to_numpy(dtype=float))
+    order = [m for m in inp.models if m in forecasts]
+    fan = None
+    if fan_model and len(fan_rows):
+        fan = charts.Fan(fan_model, fan_rows["period_index"].to_numpy(dtype=float),
+                         fan_rows["point"].to_numpy(dtype=float),
+                         {float(lv): (fan_rows[f"lower_{lv}"].to_numpy(dtype=float),
+                                      fan_rows[f"upper_{lv}"].to_numpy(dtype=float)) for lv in levels})
+    title = f"Actuals, {h}-step forecasts and the latest run"
+    return charts.series_chart(
+        "c-series", title, _chart_summary(inp, slots, actual, order, fan, levels),
+        x=slots, labels=[_label(i, freq) for i in slots], actual=actual,
+        forecasts={m: forecasts[m] for m in order}, errors={m: errors[m] for m in order},
+        fan=fan, styles=inp.styles, horizon=h, season=inp.season_length)
+
+
+def _aligned(slots: np.ndarray, idx: np.ndarray, values: np.ndarray) -> np.ndarray:
+    out = np.full(slots.size, np.nan)
+    keep = (idx >= slots[0]) & (idx <= slots[-1]) if slots.size else np.zeros(idx.size, bool)
+    out[(idx[keep] - slots[0]).astype(int)] = values[keep]
+    return out
+
+
+def _chart_summary(inp: SeriesInput, slots, actual, order, fan, levels) -> str:
+    freq = inp.frequency
+    shown = int(np.isfinite(actual).sum())
+    span = f"The chart spans {_label(slots[0], freq)} to {_label(slots[-1], freq)}. " if len(slots) else ""
+    parts = [f"{span}Actual values for {shown} periods"]
+    if order:
+        parts.append(f"{inp.horizon}-step forecasts of {', '.join(order)}")
+    if fan is not None:
+        parts.append(f"the latest run of {fan.model} for {len(fan.x)} periods"
+                     + (f" with {', '.join(lv + '%' for lv in levels)} intervals" if levels else ""))
+    breaks = len(gaps(inp.actual_index)) if len(inp.actual_index) > 1 else 0
+    text = "; ".join(parts) + "."
+    if breaks:
+        text += f" {plural(breaks, 'gap')} in the actuals shown as breaks."
+    mean_e = {m: float(np.nanmean(inp.cells.loc[inp.cells['model'] == m, 'e'])) for m in order}
+    if mean_e:
+        text += " Mean error (actual − forecast): " + ", ".join(f"{m} {num(v)}" for m, v in mean_e.items()) + "."
+    return text
+
+
+def _notes(inp: SeriesInput) -> list[str]:
+    freq, m = inp.frequency, inp.season_length
+    notes = []
+    for start, length in (gaps(inp.actual_index) if len(inp.actual_index) > 1 else []):
+        span = _label(start, freq) if length == 1 else f"{_label(start, freq)} to {_label(start + length - 1, freq)}"
+        notes.append(f"Missing actual{'s' if length > 1 else ''}: {span} ({plural(length, 'period')}); "
+                     "shown as a break in the chart, not filled in.")
+    zeros = int(np.sum(inp.actual_value == 0))
+    if zeros:
+        notes.append(f"{plural(zeros, 'actual')} equal to zero: MAPE leaves those periods out.")
+    if len(inp.actual_value) < 3 * m:
+        notes.append(f"History of {len(inp.actual_value)} actuals is shorter than three seasons ({3 * m}): "
+                     "seasonal scales and checks are less reliable (common practice, no source).")
+    if len(inp.actual_value) >= 2:
+        d = demand_interval_stats(inp.actual_value)
+        if d.classification not in ("smooth", "too few demands"):
+            notes.append(f"Demand pattern {d.classification} (ADI {num(d.adi)}, CV² {num(d.cv2)}; Syntetos, "
+                         "Boylan & Croston 2005): percentage errors are unreliable here.")
+    unscaled = {s.model: s.n_unscaled for s in inp.metrics if s.n_unscaled}
+    if unscaled:
+        notes.append("Cells without a scale (fewer than m + 1 actuals before their origin, or q = 0), left out of MASE: "
+                     + ", ".join(f"{k} {v}" for k, v in unscaled.items()) + ".")
+    small = [s.model for s in inp.metrics if s.n < SMALL_SAMPLE]
+    if small:
+        notes.append(f"Small samples (fewer than {SMALL_SAMPLE} scored cells): {', '.join(small)}; read their figures with care.")
+    return notes
+
+
+def metrics_for(frame: pd.DataFrame, model_href: dict[str, str], levels: Sequence[str]) -> list[SeriesMetric]:
+    """Series metric rows from a slice of ``Ledger.scores(by=['series', 'model'])``."""
+    out = []
+    for r in frame.to_dict("records"):
+        f = lambda k: float(r[k]) if k in r and not pd.isna(r[k]) else math.nan  # noqa: E731
+        out.append(SeriesMetric(
+            model=str(r["model"]), href=model_href.get(r["model"], ""), n=int(r["n"]), mape=f("mape"),
+            mase=f("mase"), wape=f("wape"), bias_pct=f("bias_pct"), bias_text=bias_words(f("bias_pct")),
+            coverage={lv: 100 * f(f"coverage_{lv}") for lv in levels}, n_unscaled=int(r["n_unscaled"]),
+            small=is_small(int(r["n"]))))
+    return out

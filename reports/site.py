@@ -1,0 +1,251 @@
+"""Render a ledger into a static, self-contained HTML site: :func:`render_report`.
+
+Pages: ``index.html`` (overview), ``findings.html``, ``series.html`` (index of series),
+``methods.html``, one ``m-….html`` per model and one ``s-….html`` per series (names from
+:mod:`reports.names`). The ledger is read once (:func:`reports.data.load`); series pages are
+built from one groupby of those frames and, for large ledgers, rendered in worker processes,
+because their charts are the expensive part.
+"""
+
+from __future__ import annotations
+
+import concurrent.futures as cf
+import dataclasses
+import itertools
+import multiprocessing
+import os
+from collections.abc import Callable
+from pathlib import Path
+
+import pandas as pd
+
+from ledger import Ledger, __version__
+from ledger.store import parse_as_of, utc_now
+
+from . import charts
+from .data import Findings, LedgerData, advise_job, compare_job, flags_job, load, quiet, series_count, standings_job
+from .names import page_names, safe_write
+from .render import render_page
+from .series_views import SeriesInput, SeriesView, build_series, metrics_for
+from .views import (Context, Footer, Link, build_model, build_overview, build_series_index,
+                    finding_rows, levels_of)
+
+__all__ = ["ReportResult", "Progress", "render_report", "build_context", "series_inputs", "build_series_chunk",
+           "FIXED_PAGES"]
+
+#: progress(done, total, what): called after each page (or chunk of series pages) is written.
+Progress = Callable[[int, int, str], None]
+FIXED_PAGES = ("index.html", "findings.html", "series.html", "methods.html")
+_CHUNK = 25
+_SEVERITY = {"alert": 0, "watch": 1, "note": 2}
+_POOL_FROM = 200   # series; below this, the start-up of worker processes costs more than it saves
+
+
+@dataclasses.dataclass(frozen=True)
+class ReportResult:
+    """What :func:`render_report` wrote."""
+
+    out_dir: Path
+    index: Path
+    pages: int
+    model_pages: int
+    series_pages: int
+    findings: int
+    cells_scored: int
+    index_bytes: int
+    state_hash: str
+    as_of: str
+
+
+def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None, until: str | None = None,
+                  title: str | None = None, incumbent: str | None = None, benchmark: str | None = None,
+                  horizon: int = 1, progress: Progress | None = None, workers: int | None = None) -> ReportResult:
+    """Write the report site for the ledger at ``ledger_path`` into ``out_dir``; return what was written.
+
+    ``as_of`` (default now) fixes what the ledger held; the same ledger and as-of give the same
+    numbers. ``since``/``until`` bound the target periods of the accuracy tables and charts.
+    ``incumbent`` (default: the ledger's stored incumbent) enables replacement advice;
+    ``benchmark`` names the value-added reference. ``horizon`` is the horizon of the headline
+    sentences, standings and series charts. ``workers`` (default: up to four CPUs when there
+    are many series; 0 = all in this process) runs the findings and the series charts in
+    worker processes, each with its own read-only connection to the ledger.
+    ``progress(done, total, what)`` is called after each page or chunk of series pages.
+    """
+    stamp = parse_as_of(as_of)
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    path = str(Path(ledger_path).resolve())
+    with quiet(Ledger.open(ledger_path, create=False, read_only=True)) as book, \
+            _executor(_worker_count(series_count(book, stamp), workers)) as pool:
+        flags = pool.submit(flags_job, path, stamp, benchmark)
+        core = load(book, as_of=stamp, since=since, until=until, horizon=horizon,
+                    incumbent=incumbent, benchmark=benchmark, with_findings=False)
+        jobs = _findings_jobs(pool, path, stamp, core)
+        ctx = build_context(core, title or "Forecast accuracy report")
+        inputs = series_inputs(core, ctx)
+        views = [pool.submit(build_series_chunk, inputs[i:i + _CHUNK]) for i in range(0, len(inputs), _CHUNK)]
+        tick = _ticker(progress, 4 + len(core.models) + len(inputs))
+        tick("computing findings", 0)
+        data = dataclasses.replace(core, findings=Findings(flags.result(), *[_result(j) for j in jobs]))
+        overview, rows = _write_fixed(data, ctx, out, tick)
+        _write_series(views, data, ctx, out, tick)
+    return ReportResult(out_dir=out.resolve(), index=out.resolve() / "index.html",
+                        pages=len(FIXED_PAGES) + len(data.models) + len(inputs), model_pages=len(data.models),
+                        series_pages=len(inputs), findings=len(rows), cells_scored=overview.counts["cells_scored"],
+                        index_bytes=(out / "index.html").stat().st_size, state_hash=data.state_hash, as_of=ctx.footer.as_of)
+
+
+def _findings_jobs(pool, path: str, stamp, core: LedgerData) -> list:
+    """Futures of the comparisons (a dict), standings and advice, in Findings' field order."""
+    pairs = list(itertools.combinations(core.models, 2))
+    compare = {pair: pool.submit(compare_job, path, stamp, *pair) for pair in pairs}
+    return [compare, pool.submit(standings_job, path, stamp, core.horizon),
+            pool.submit(advise_job, path, stamp, core.models, core.incumbent)]
+
+
+def _result(job):
+    return {k: f.result() for k, f in job.items()} if isinstance(job, dict) else job.result()
+
+
+def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick):
+    """Overview, findings, series index, methods and model pages."""
+    overview = build_overview(data, ctx)
+    safe_write(out, "index.html", render_page("index.html", v=overview, ctx=ctx, page="index"))
+    tick("overview")
+    rows = sorted(finding_rows(data.findings.flags, ctx), key=lambda f: _SEVERITY.get(f.severity, 1))
+    safe_write(out, "findings.html", render_page("findings.html", rows=rows, ctx=ctx, page="findings"))
+    tick("findings")
+    safe_write(out, "series.html", render_page("series_index.html", rows=build_series_index(data, ctx),
+                                               ctx=ctx, page="series-index"))
+    tick("series index")
+    safe_write(out, "methods.html", render_page("methods.html", ctx=ctx, page="methods"))
+    tick("methods")
+    for model in data.models:
+        view = build_model(data, ctx, model)
+        safe_write(out, view.href, render_page("model.html", v=view, ctx=ctx, page=view.href))
+        tick(f"model {model}")
+    return overview, rows
+
+
+def _ticker(progress: Progress | None, total: int) -> Callable[..., None]:
+    done = 0
+
+    def tick(what: str, n: int = 1) -> None:
+        nonlocal done
+        done += n
+        if progress is not None:
+            progress(done, total, what)
+    return tick
+
+
+def build_context(data: LedgerData, title: str) -> Context:
+    """What every page shares: footer, navigation, page names, chart styles, interval levels."""
+    models = page_names("m", data.models)
+    series = page_names("s", list(data.series["series"]))
+    selection = ", ".join(p for p in (f"target periods from {data.since}" if data.since else "",
+                                      f"up to {data.until}" if data.until else "") if p) or "all target periods"
+    footer = Footer(as_of=f"{data.as_of:%Y-%m-%d %H:%M:%S} UTC", state_hash=data.state_hash,
+                    version=__version__, generated_at=f"{utc_now():%Y-%m-%d %H:%M:%S} UTC", selection=selection)
+    return Context(title=title, footer=footer, models=[Link(m, models[m]) for m in data.models],
+                   model_href=models, series_href=series, styles=charts.model_styles(data.models),
+                   levels=levels_of(data.by_model_h), horizon=data.horizon,
+                   findings_note=_scope_note(data))
+
+
+def _scope_note(data: LedgerData) -> str | None:
+    if not (data.since or data.until):
+        return None
+    return ("Findings, comparisons, standings and advice use every scored period up to the as-of; "
+            "--since/--until narrow the accuracy tables and charts only.")
+
+
+def _groups(frame: pd.DataFrame) -> dict:
+    return {k: g for k, g in frame.groupby("series", sort=False)} if len(frame) else {}
+
+
+def series_inputs(data: LedgerData, ctx: Context, *, with_chart: bool = True) -> list[SeriesInput]:
+    """One :class:`SeriesInput` per series, from one groupby of each frame."""
+    acts, cells, latest = _groups(data.actuals), _groups(data.cells), _groups(data.latest)
+    metrics = _groups(data.by_series_model)
+    flags: dict[str, list] = {}
+    if data.findings is not None:
+        for f in finding_rows(data.findings.flags[data.findings.flags["series"] != ""], ctx):
+            flags.setdefault(f.series, []).append(f)
+    levels = [f"{lv:g}" for lv in ctx.levels]
+    prefer = _fan_preference(data)
+    empty_cells = data.cells.iloc[0:0][["model", "period_index", "point", "e"]]
+    out = []
+    for r in data.series.to_dict("records"):
+        key = r["series"]
+        a = acts.get(key)
+        out.append(SeriesInput(
+            key=key, href=ctx.series_href[key], frequency=r["frequency"], season_length=int(r["season_length"]),
+            horizon=data.horizon, models=data.models, styles=ctx.styles, model_href=ctx.model_href,
+            fan_preference=prefer,
+            actual_index=a["period_index"].to_numpy(dtype="int64") if a is not None else _EMPTY_I,
+            actual_value=a["value"].to_numpy(dtype=float) if a is not None else _EMPTY_F,
+            cells=cells[key][["model", "period_index", "point", "e"]] if key in cells else empty_cells,
+            latest=latest.get(key, data.latest.iloc[0:0]),
+            metrics=metrics_for(metrics[key], ctx.model_href, levels) if key in metrics else [],
+            findings=flags.get(key, []), with_chart=with_chart))
+    return out
+
+
+_EMPTY_I = pd.array([], dtype="int64").to_numpy()
+_EMPTY_F = pd.array([], dtype="float64").to_numpy()
+
+
+def _fan_preference(data: LedgerData) -> list[str]:
+    """Incumbent first, else the model with the lowest MASE at the chosen horizon."""
+    if data.incumbent:
+        return [data.incumbent]
+    part = data.by_model_h[(data.by_model_h["horizon"] == data.horizon) & data.by_model_h["mase"].notna()]
+    return list(part.sort_values(["mase", "model"])["model"][:1])
+
+
+def build_series_chunk(inputs: list[SeriesInput]) -> list[SeriesView]:
+    """Series views, charts included, for a chunk of series (runs in a worker for large sites)."""
+    return [build_series(inp) for inp in inputs]
+
+
+def _worker_count(n_series: int, workers: int | None) -> int:
+    if workers is not None:
+        return max(0, int(workers))
+    if n_series < _POOL_FROM:
+        return 0
+    cpus = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    return min(4, cpus) if cpus > 1 else 0
+
+
+class _Inline:
+    """An executor that runs each job at once in this process (small reports; workers=0)."""
+
+    def submit(self, fn, *args) -> cf.Future:
+        future: cf.Future = cf.Future()
+        future.set_result(fn(*args))
+        return future
+
+    def __enter__(self) -> "_Inline":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        return None
+
+
+def _executor(n: int):
+    # spawn, not fork: the parent holds DuckDB threads, and fork with threads can deadlock.
+    return _Inline() if n == 0 else cf.ProcessPoolExecutor(n, mp_context=multiprocessing.get_context("spawn"))
+
+
+def _write_series(futures: list[cf.Future], data: LedgerData, ctx: Context, out: Path, tick) -> None:
+    """Series pages, each with its findings, in the order their chunks finish."""
+    flags: dict[str, list] = {}
+    for f in finding_rows(data.findings.flags[data.findings.flags["series"] != ""], ctx):
+        flags.setdefault(f.series, []).append(f)
+    pending = {f: None for f in futures}
+    for fut in cf.as_completed(pending):
+        views = fut.result()
+        for view in views:
+            view = dataclasses.replace(view, findings=flags.get(view.key, []))
+            safe_write(out, view.href, render_page("series.html", v=view, ctx=ctx, page=view.href))
+        tick(f"series {views[-1].key}", len(views))

@@ -11,7 +11,7 @@ from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
 from .cli_common import app
 
-__all__ = ["demo"]
+__all__ = ["demo", "summary_lines"]
 
 
 @app.command()
@@ -32,12 +32,18 @@ def demo(
             bar.update(task, completed=done, total=total, description=what[:12])
 
         result = build_demo(out, ledger_path=ledger, progress=progress)
+    for line in summary_lines(result):
+        typer.echo(line)
+
+
+def summary_lines(result) -> list[str]:
+    """What ``backsight demo`` prints after building (a :class:`reports.demo.DemoResult`)."""
     r = result.replay
-    typer.echo(f"Replayed {r.scenario}: {r.runs} runs ({r.cells:,} forecasts), {r.actual_values:,} actuals, "
-               f"{r.revisions} revision(s), {r.superseded} superseded run(s), into {r.ledger_path}")
     found = ", ".join(f"{n} {kind}" for kind, n in sorted(result.findings.items())) or "none"
-    typer.echo(f"Findings: {found}")
-    typer.echo("Lowest MASE by horizon (an estimate from past errors, not a promise):")
-    for row in result.best_by_horizon.itertuples(index=False):
-        typer.echo(f"  h={row.horizon:<2} {row.model:<20} MASE {row.mase:.2f}  ({row.n} cells)")
-    typer.echo(f"Report: {result.report.index}")
+    lines = [f"Replayed {r.scenario}: {r.runs} runs ({r.cells:,} forecasts), {r.actual_values:,} actuals, "
+             f"{r.revisions} revision(s), {r.superseded} superseded run(s), into {r.ledger_path}",
+             f"Findings: {found}",
+             "Lowest MASE by horizon (an estimate from past errors, not a promise):"]
+    lines += [f"  h={row.horizon:<2} {row.model:<20} MASE {row.mase:.2f}  ({row.n} cells)"
+              for row in result.best_by_horizon.itertuples(index=False)]
+    return lines + [f"Report: {result.report.index}"]

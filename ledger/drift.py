@@ -65,8 +65,7 @@ def _merge(found: list[Finding]) -> Finding:
     hs = sorted(f.horizon for f in found)
     listed = horizon_ranges(hs)
     return dataclasses.replace(first, horizons=listed,
-                               evidence=f"{first.evidence}; also flagged at horizon{'s' if len(hs) > 2 else ''} "
-                                        f"{horizon_ranges(hs[1:])} ({len(hs)} of the horizons)")
+                               evidence=f"{first.evidence}; flagged at {len(hs)} horizons in all ({listed})")
 
 
 def horizon_ranges(hs: list[int]) -> str:

@@ -8,4 +8,4 @@ PosixPath('.../out/index.html')
 
 from .site import ReportResult, render_report
 
-__all__ = ["render_report", "ReportResult"]
+__all__ = ["ReportResult", "render_report"]

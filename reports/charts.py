@@ -23,12 +23,26 @@ from html import escape
 import matplotlib
 
 matplotlib.use("Agg")
-import numpy as np  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
-from matplotlib.patches import Polygon  # noqa: E402
+import numpy as np
+from matplotlib.figure import Figure
+from matplotlib.patches import Polygon
+from matplotlib.ticker import MaxNLocator
 
-__all__ = ["Chart", "PALETTE", "INK", "BAND", "model_styles", "lines_chart", "horizon_chart",
-           "calibration_chart", "series_chart", "clean_svg", "CalibrationPoint", "Fan"]
+__all__ = [
+    "BAND",
+    "INK",
+    "PALETTE",
+    "CalibrationPoint",
+    "Chart",
+    "Fan",
+    "calibration_chart",
+    "clean_svg",
+    "horizon_chart",
+    "legend_entries",
+    "lines_chart",
+    "model_styles",
+    "series_chart",
+]
 
 #: Okabe & Ito (2008) colours in the order Backsight assigns them to models.
 PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
@@ -115,20 +129,21 @@ def _short(name: str, limit: int = 26) -> str:
     return name if len(name) <= limit else name[: limit - 1] + "…"
 
 
-_ID = re.compile(r'\bid="([^"]+)"')
+_ID_ATTR = re.compile(r'\bid="')
+_HREF = re.compile(r'\bhref="#')
 
 
 def clean_svg(raw: str, chart_id: str, title: str) -> str:
     """Inline-ready SVG: no prologue, URIs, metadata or global style; ids prefixed; accessible root."""
     svg = raw[raw.index("<svg"):]
-    svg = re.sub(r"<metadata>.*?</metadata>", "", svg, flags=re.S)
-    svg = re.sub(r"<style[^>]*>.*?</style>", "", svg, flags=re.S)
-    svg = re.sub(r"<!--.*?-->", "", svg, flags=re.S)
+    svg = re.sub(r"<metadata>.*?</metadata>", "", svg, flags=re.DOTALL)
+    svg = re.sub(r"<style[^>]*>.*?</style>", "", svg, flags=re.DOTALL)
+    svg = re.sub(r"<!--.*?-->", "", svg, flags=re.DOTALL)
     svg = re.sub(r"<defs>\s*</defs>", "", svg)
-    for name in sorted(set(_ID.findall(svg)), key=len, reverse=True):
-        new = f"{chart_id}-{name}"
-        svg = svg.replace(f'id="{name}"', f'id="{new}"').replace(f"#{name})", f"#{new})")
-        svg = svg.replace(f'href="#{name}"', f'href="#{new}"')
+    # every id, and every reference to one (url(#…), href="#…"), gets the chart's prefix
+    svg = _ID_ATTR.sub(f'id="{chart_id}-', svg)
+    svg = svg.replace("url(#", f"url(#{chart_id}-")
+    svg = _HREF.sub(f'href="#{chart_id}-', svg)
     head_end = svg.index(">")
     head = svg[:head_end]
     view = re.search(r'viewBox="([^"]+)"', head)
@@ -259,11 +274,28 @@ def series_chart(chart_id: str, title: str, summary: str, *, x: Sequence[float],
         return _render(canvas.fig, chart_id, title, summary)
 
 
-_CANVASES: dict[tuple, "_SeriesCanvas"] = {}
+_CSS_DASH = {"-": "solid", "--": "dashed", "-.": "dashed", ":": "dotted"}
+
+
+def legend_entries(models: Sequence[str], styles: Mapping[str, dict], horizon: int,
+                   fan_model: str | None, levels: Sequence[str]) -> list[dict]:
+    """The series chart's legend as data for the page: label, colour, CSS line style, kind."""
+    out = [{"label": "actual", "color": INK, "line": "solid", "kind": "line"}]
+    out += [{"label": f"{m} (h={horizon})", "color": styles[m]["color"],
+             "line": _CSS_DASH.get(styles[m]["linestyle"], "dotted"), "kind": "line"} for m in models]
+    if fan_model:
+        color = styles[fan_model]["color"]
+        out.append({"label": f"{fan_model}, latest run", "color": color, "line": "solid", "kind": "line"})
+        out += [{"label": f"{lv}% interval, latest run", "color": color, "line": "solid", "kind": "band"}
+                for lv in sorted(levels, key=float, reverse=True)]
+    return out
+
+
+_CANVASES: dict[tuple, _SeriesCanvas] = {}
 _MAX_CANVASES = 8
 
 
-def _canvas(key, title, unit, horizon, models, styles, fan_model, levels) -> "_SeriesCanvas":
+def _canvas(key, title, unit, horizon, models, styles, fan_model, levels) -> _SeriesCanvas:
     canvas = _CANVASES.get(key)
     if canvas is None:
         if len(_CANVASES) >= _MAX_CANVASES:
@@ -283,8 +315,8 @@ class _SeriesCanvas:
     """
 
     def __init__(self, title, unit, horizon, models, styles, fan_model, levels):
-        entries = 1 + len(models) + (1 + len(levels) if fan_model else 0)
-        self.fig, (self.top, self.bottom) = _figure(4.4, entries, 2, [2.2, 1])
+        # no legend inside the SVG: the page shows it as text (readable on a phone, and cheaper)
+        self.fig, (self.top, self.bottom) = _figure(4.4, 0, 2, [2.2, 1])
         top, bottom = self.top, self.bottom
         self.bands, self.fan_line, self.origin = {}, None, None
         if fan_model is not None:
@@ -306,7 +338,8 @@ class _SeriesCanvas:
         bottom.axhline(0, color=BAND, linewidth=0.9)
         top.set(title=title, ylabel=f"Value ({unit})")
         bottom.set(ylabel="Error e = y − f", xlabel="Period")
-        _legend(self.fig)
+        for ax, bins in ((top, 5), (bottom, 3)):
+            ax.yaxis.set_major_locator(MaxNLocator(nbins=bins))
 
     def update(self, xs, labels, actual, forecasts, errors, fan: Fan | None, season: int) -> None:
         self.actual.set_data(xs, actual)

@@ -24,8 +24,19 @@ from ledger.periods import SEASON_LENGTHS, index_start, period_label
 from ledger.scoring import Selection, cells_sql
 from ledger.store import latest_actuals_sql, live_runs_sql
 
-__all__ = ["LedgerData", "Findings", "Window", "load", "label_of", "series_count", "quiet", "flags_job", "compare_job",
-           "standings_job", "advise_job"]
+__all__ = [
+    "Findings",
+    "LedgerData",
+    "Window",
+    "advise_job",
+    "compare_job",
+    "flags_job",
+    "label_of",
+    "load",
+    "quiet",
+    "series_count",
+    "standings_job",
+]
 
 @dataclasses.dataclass
 class Findings:
@@ -54,7 +65,7 @@ class LedgerData:
     by_model_h: pd.DataFrame      # scores by model, horizon
     by_model_period: pd.DataFrame  # scores by model, period at the chosen horizon
     by_series_model: pd.DataFrame  # scores by series, model
-    window: "Window"
+    window: Window
     headline: pd.DataFrame        # scores by model at the chosen horizon over the window
     intervals: pd.DataFrame       # model, horizon, level, n, misses (all selected cells)
     headline_intervals: pd.DataFrame  # model, level, n, misses (window, chosen horizon)

@@ -17,7 +17,7 @@ from pathlib import Path
 
 from ledger.errors import LedgerError
 
-__all__ = ["UnsafePath", "NameClash", "page_name", "page_names", "safe_write"]
+__all__ = ["NameClash", "UnsafePath", "page_name", "page_names", "safe_write"]
 
 _SLUG_LEN = 40
 _DIGEST_LEN = 10

@@ -22,7 +22,7 @@ from ledger.periods import index_start, period_label
 from . import charts
 from .text import SMALL_SAMPLE, bias_words, is_small, num, plural
 
-__all__ = ["SeriesInput", "SeriesMetric", "LatestRow", "SeriesView", "build_series", "metrics_for", "HISTORY_SHOWN"]
+__all__ = ["HISTORY_SHOWN", "LatestRow", "SeriesInput", "SeriesMetric", "SeriesView", "build_series", "metrics_for"]
 
 #: Periods of history drawn before the latest forecasts (tables keep every scored cell).
 HISTORY_SHOWN = 72
@@ -90,6 +90,7 @@ class SeriesView:
     latest_models: list[str]
     latest: list[LatestRow]
     chart: charts.Chart | None
+    legend: list[dict]          # label, color, line (CSS style), kind (line or band)
     findings: list
     notes: list[str]
 
@@ -110,10 +111,12 @@ def build_series(inp: SeriesInput) -> SeriesView:
     fan_origin = _label(int(fan_rows["origin_index"].iloc[0]), freq) if len(fan_rows) else "–"
     return SeriesView(
         key=inp.key, href=inp.href, frequency=freq, season_length=inp.season_length,
-        n_actuals=int(len(inp.actual_index)), first=first, last=last, horizon=inp.horizon,
+        n_actuals=len(inp.actual_index), first=first, last=last, horizon=inp.horizon,
         metrics=inp.metrics, levels=levels, fan_model=fan_model or "", fan_origin=fan_origin,
         latest_models=sorted(inp.latest["model"].unique().tolist(), key=inp.models.index),
         latest=_latest_rows(inp, fan_rows, levels), chart=_chart(inp, fan_model, fan_rows, levels) if inp.with_chart else None,
+        legend=charts.legend_entries([m for m in inp.models if m in set(inp.cells["model"])], inp.styles, inp.horizon,
+                                     fan_model if len(fan_rows) else None, levels),
         findings=inp.findings, notes=_notes(inp))
 
 
@@ -127,19 +130,21 @@ def _fan_model(inp: SeriesInput) -> str | None:
 
 
 def _latest_rows(inp: SeriesInput, fan_rows: pd.DataFrame, levels: list[str]) -> list[LatestRow]:
-    if inp.latest.empty:
-        return []
-    points = inp.latest.pivot_table(index="period_index", columns="model", values="point", aggfunc="first")
-    fan = fan_rows.set_index("period_index")
-    rows = []
-    for idx in points.index:
-        hz = fan.loc[idx, "horizon"] if idx in fan.index else inp.latest.loc[inp.latest["period_index"] == idx, "horizon"].min()
-        rows.append(LatestRow(
-            period=_label(idx, inp.frequency), horizon=int(hz),
-            points={m: float(points.at[idx, m]) for m in points.columns if not pd.isna(points.at[idx, m])},
-            bounds={lv: (float(fan.at[idx, f"lower_{lv}"]), float(fan.at[idx, f"upper_{lv}"]))
-                    for lv in levels if idx in fan.index and not pd.isna(fan.at[idx, f"lower_{lv}"])}))
-    return rows
+    """One row per target period of the latest runs: each model's point, the fan model's bounds."""
+    points: dict[int, dict[str, float]] = {}
+    horizons: dict[int, int] = {}
+    for model, idx, hz, point in zip(inp.latest["model"], inp.latest["period_index"], inp.latest["horizon"],
+                                     inp.latest["point"]):
+        points.setdefault(int(idx), {})[model] = float(point)
+        horizons[int(idx)] = min(horizons.get(int(idx), int(hz)), int(hz))
+    bounds: dict[int, dict[str, tuple[float, float]]] = {}
+    for r in fan_rows.to_dict("records"):
+        horizons[int(r["period_index"])] = int(r["horizon"])
+        bounds[int(r["period_index"])] = {lv: (float(r[f"lower_{lv}"]), float(r[f"upper_{lv}"]))
+                                          for lv in levels if not pd.isna(r[f"lower_{lv}"])}
+    return [LatestRow(period=_label(i, inp.frequency), horizon=horizons[i],
+                      points=dict(sorted(points[i].items(), key=lambda kv: inp.models.index(kv[0]))),
+                      bounds=bounds.get(i, {})) for i in sorted(points)]
 
 
 def _chart(inp: SeriesInput, fan_model: str | None, fan_rows: pd.DataFrame, levels: list[str]) -> charts.Chart:
@@ -152,10 +157,14 @@ def _chart(inp: SeriesInput, fan_model: str | None, fan_rows: pd.DataFrame, leve
     slots = np.arange(lo, hi + 1)
     actual = _aligned(slots, inp.actual_index, inp.actual_value)
     forecasts, errors = {}, {}
-    for model, part in inp.cells.groupby("model", sort=False):
-        idx = part["period_index"].to_numpy()
-        forecasts[model] = _aligned(slots, idx, part["point"].to_numpy(dtype=float))
-        errors[model] = _aligned(slots, idx, part["e"].to_numpy(dtype=float))
+    names = inp.cells["model"].to_numpy(dtype=object)
+    idx_all = inp.cells["period_index"].to_numpy(dtype="int64")
+    point_all, e_all = inp.cells["point"].to_numpy(dtype=float), inp.cells["e"].to_numpy(dtype=float)
+    for model in inp.models:
+        mask = names == model
+        if mask.any():
+            forecasts[model] = _aligned(slots, idx_all[mask], point_all[mask])
+            errors[model] = _aligned(slots, idx_all[mask], e_all[mask])
     order = [m for m in inp.models if m in forecasts]
     fan = None
     if fan_model and len(fan_rows):
@@ -192,7 +201,8 @@ def _chart_summary(inp: SeriesInput, slots, actual, order, fan, levels) -> str:
     text = "; ".join(parts) + "."
     if breaks:
         text += f" {plural(breaks, 'gap')} in the actuals shown as breaks."
-    mean_e = {m: float(np.nanmean(inp.cells.loc[inp.cells['model'] == m, 'e'])) for m in order}
+    names, e = inp.cells["model"].to_numpy(dtype=object), inp.cells["e"].to_numpy(dtype=float)
+    mean_e = {m: float(e[names == m].mean()) for m in order}
     if mean_e:
         text += " Mean error (actual − forecast): " + ", ".join(f"{m} {num(v)}" for m, v in mean_e.items()) + "."
     return text
@@ -230,7 +240,8 @@ def metrics_for(frame: pd.DataFrame, model_href: dict[str, str], levels: Sequenc
     """Series metric rows from a slice of ``Ledger.scores(by=['series', 'model'])``."""
     out = []
     for r in frame.to_dict("records"):
-        f = lambda k: float(r[k]) if k in r and not pd.isna(r[k]) else math.nan  # noqa: E731
+        def f(k, r=r) -> float:
+            return float(r[k]) if k in r and not pd.isna(r[k]) else math.nan
         out.append(SeriesMetric(
             model=str(r["model"]), href=model_href.get(r["model"], ""), n=int(r["n"]), mape=f("mape"),
             mase=f("mase"), wape=f("wape"), bias_pct=f("bias_pct"), bias_text=bias_words(f("bias_pct")),

@@ -23,15 +23,40 @@ from ledger import Ledger, __version__
 from ledger.store import parse_as_of, utc_now
 
 from . import charts
-from .data import Findings, LedgerData, advise_job, compare_job, flags_job, load, quiet, series_count, standings_job
+from .data import (
+    Findings,
+    LedgerData,
+    advise_job,
+    compare_job,
+    flags_job,
+    load,
+    quiet,
+    series_count,
+    standings_job,
+)
 from .names import page_names, safe_write
 from .render import render_page
 from .series_views import SeriesInput, SeriesView, build_series, metrics_for
-from .views import (Context, Footer, Link, build_model, build_overview, build_series_index,
-                    finding_rows, levels_of)
+from .views import (
+    Context,
+    Footer,
+    Link,
+    build_model,
+    build_overview,
+    build_series_index,
+    finding_rows,
+    levels_of,
+)
 
-__all__ = ["ReportResult", "Progress", "render_report", "build_context", "series_inputs", "build_series_chunk",
-           "FIXED_PAGES"]
+__all__ = [
+    "FIXED_PAGES",
+    "Progress",
+    "ReportResult",
+    "build_context",
+    "build_series_chunk",
+    "render_report",
+    "series_inputs",
+]
 
 #: progress(done, total, what): called after each page (or chunk of series pages) is written.
 Progress = Callable[[int, int, str], None]
@@ -225,7 +250,7 @@ class _Inline:
         future.set_result(fn(*args))
         return future
 
-    def __enter__(self) -> "_Inline":
+    def __enter__(self) -> _Inline:
         return self
 
     def __exit__(self, *exc) -> None:

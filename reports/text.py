@@ -11,8 +11,17 @@ import math
 import numpy as np
 from scipy import stats
 
-__all__ = ["SMALL_SAMPLE", "num", "pct", "bias_words", "sample_note", "is_small", "tolerance_band",
-           "coverage_words", "plural"]
+__all__ = [
+    "SMALL_SAMPLE",
+    "bias_words",
+    "coverage_words",
+    "is_small",
+    "num",
+    "pct",
+    "plural",
+    "sample_note",
+    "tolerance_band",
+]
 
 #: Below this many cells a figure is labelled "small sample" (common practice, no source).
 SMALL_SAMPLE = 12

@@ -18,12 +18,39 @@ from ledger.calibration import coverage_zone
 
 from . import charts
 from .data import LedgerData
-from .text import bias_words, coverage_words, is_small, num, pct, plural, sample_note, tolerance_band
+from .text import (
+    bias_words,
+    coverage_words,
+    is_small,
+    num,
+    pct,
+    plural,
+    sample_note,
+    tolerance_band,
+)
 
-__all__ = ["Link", "Footer", "CoverageCell", "MetricRow", "HorizonBoard", "FindingRow", "CompareRow",
-           "ComparisonView", "AdviceRow", "Context", "Overview", "ModelView", "SeriesIndexRow",
-           "levels_of", "coverage_cell", "finding_rows", "build_overview",
-           "build_model", "build_series_index", "INDEX_FINDINGS"]
+__all__ = [
+    "INDEX_FINDINGS",
+    "AdviceRow",
+    "CompareRow",
+    "ComparisonView",
+    "Context",
+    "CoverageCell",
+    "FindingRow",
+    "Footer",
+    "HorizonBoard",
+    "Link",
+    "MetricRow",
+    "ModelView",
+    "Overview",
+    "SeriesIndexRow",
+    "build_model",
+    "build_overview",
+    "build_series_index",
+    "coverage_cell",
+    "finding_rows",
+    "levels_of",
+]
 
 #: Findings rows shown on the overview; the findings page lists them all.
 INDEX_FINDINGS = 40

@@ -28,3 +28,11 @@ def table_hashes(path) -> dict[str, str]:
 def write(path, text: str):
     path.write_text(text, encoding="utf-8")
     return path
+
+
+@pytest.fixture(scope="session")
+def demo_site(tmp_path_factory):
+    """The demo built once per test session (replay + report), shared by the demo tests."""
+    from reports.demo import build_demo
+    out = tmp_path_factory.mktemp("demo-site")
+    return out, build_demo(out)

@@ -43,11 +43,10 @@ def _data_files(folder: Path) -> dict[str, Path]:
 
 
 @pytest.fixture(scope="module")
-def demo(tmp_path_factory):
-    path = tmp_path_factory.mktemp("demo") / "demo.duckdb"
-    summary = replay(HISTORY, path)
-    book = Ledger.open(path, create=False, read_only=True)
-    yield summary, book
+def demo(demo_site):
+    _, result = demo_site            # the session's one replay (tests/conftest.py)
+    book = Ledger.open(result.replay.ledger_path, create=False, read_only=True)
+    yield result.replay, book
     book.close()
 
 

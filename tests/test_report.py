@@ -66,7 +66,7 @@ def _forecast_rows(key: str, truth: np.ndarray, months: pd.PeriodIndex, level: f
             fc = {
                 "challenger-ets": (mean + rng.normal(0, 0.3 * sd), 1.0 * sd),
                 # planted: the incumbent's intervals are too narrow, and on North/Hoses it
-                # drifts to forecasts far too high from origin 35 on
+                # drifts to forecasts far too low from origin 38 on (e = y - f > 0)
                 "incumbent-hw": (mean + rng.normal(0, 0.8 * sd) + (-4 * sd if key == "North/Hoses" and o >= 38 else 0), 0.45 * sd),
                 "snaive": (truth[t - 12], 1.6 * sd),   # h <= 6 < 12: last season's actual is known
             }
@@ -320,7 +320,7 @@ def test_planted_problems_are_visible(pages):
     assert "the incumbent incumbent-hw" in index and "too narrow" in index
     assert "Replacement advice" in index
     hoses = page_name("s", "North/Hoses")
-    drift = re.search(r"<td>drift</td>.*?</tr>", index, flags=re.S)
+    drift = re.search(r"<td>drift</td>.*?</tr>", index, flags=re.DOTALL)
     assert drift and hoses in drift.group(0), "the planted drift on North/Hoses links to its series page"
     pots = _series_page(pages, "east/pots")
     assert "Missing actuals: 2024-07 to 2024-08 (2 periods)" in pots
@@ -331,7 +331,7 @@ def test_planted_problems_are_visible(pages):
 def test_gaps_are_breaks_in_the_chart(pages):
     """The actuals line of east/pots is drawn in two pieces: a moveto after the gap, never bridged."""
     svg = _series_page(pages, "east/pots")
-    path = re.search(r'<path d="([^"]+)"[^>]*style="fill: none; stroke: #1f2a36; stroke-width: 1\.9', svg, flags=re.I)
+    path = re.search(r'<path d="([^"]+)"[^>]*style="fill: none; stroke: #1f2a36; stroke-width: 1\.9', svg, flags=re.IGNORECASE)
     assert path, "the actuals line is in the chart"
     assert path.group(1).count("M") == 2
 

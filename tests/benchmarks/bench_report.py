@@ -23,8 +23,8 @@ import pandas as pd
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from ledger import Ledger  # noqa: E402
-from reports import render_report  # noqa: E402
+from ledger import Ledger
+from reports import render_report
 
 
 def _labels(months: np.ndarray) -> np.ndarray:

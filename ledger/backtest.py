@@ -208,7 +208,7 @@ def _history(task: _Task, origin: int, fill: str | None, notes: _Notes) -> np.nd
         return hist
     gap_text = _gap_text((gaps + task.t0).tolist())
     if fill is None:
-        notes.at(origin, f"history has {gap_text}; skipped (pass fill='linear' or fill='previous')")
+        notes.at(origin, f"history has {gap_text}; skipped (fill it explicitly with --fill linear or --fill previous)")
         return None
     notes.at(origin, f"history has {gap_text}, filled by {fill!r}")
     return _fill(hist, fill)

@@ -52,13 +52,11 @@ from statsmodels.tsa.exponential_smoothing.ets import ETSModel
 from statsmodels.tsa.forecasting.theta import ThetaModel
 from statsmodels.tsa.seasonal import seasonal_decompose
 
-from ledger.errors import LedgerError, NotEnoughData, UnknownName
+from ledger.errors import GapInHistory, MethodNotApplicable, NotEnoughData, UnknownName
 
 __all__ = [
     "METHODS",
     "Method",
-    "GapInHistory",
-    "MethodNotApplicable",
     "forecast",
     "format_level",
     "min_history",
@@ -75,14 +73,6 @@ Method = Literal[
 METHODS: tuple[str, ...] = get_args(Method)
 
 Forecast = dict[str, np.ndarray]
-
-
-class GapInHistory(LedgerError, ValueError):
-    """The history given to a reference method contains a missing value (NaN)."""
-
-
-class MethodNotApplicable(LedgerError, ValueError):
-    """A reference method cannot be applied to this history (season length or sign of the data)."""
 
 
 # ---------------------------------------------------------------------------------------------

@@ -15,6 +15,8 @@ __all__ = [
     "UnknownName",
     "NotEnoughData",
     "LedgerBusy",
+    "GapInHistory",
+    "MethodNotApplicable",
 ]
 
 
@@ -60,8 +62,16 @@ class UnknownName(LedgerError):
 
 
 class NotEnoughData(LedgerError):
-    """There are too few scored cells to compute what was asked."""
+    """There is too little data (scored cells, or history for a method) to compute what was asked."""
 
 
 class LedgerBusy(LedgerError):
     """Another process holds the ledger file."""
+
+
+class GapInHistory(LedgerError, ValueError):
+    """The history given to a reference method contains a missing value (NaN)."""
+
+
+class MethodNotApplicable(LedgerError, ValueError):
+    """A reference method cannot be applied to this history (season length or sign of the data)."""

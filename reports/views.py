@@ -374,10 +374,10 @@ def _model_sentences(data: LedgerData, ctx: Context) -> list[str]:
     out = []
     for model in order[:6]:
         r = data.headline[data.headline["model"] == model].iloc[0]
-        role = "the incumbent " if model == data.incumbent else ""
+        who = f"{model}'s (the incumbent)" if model == data.incumbent else f"{model}'s"
         acc = (f"{data.horizon}-step MAPE was {pct(_f(r['mape']))}" if not pd.isna(r["mape"])
                else f"{data.horizon}-step WAPE was {pct(_f(r['wape']))}")
-        text = f"{span}, {role}{model}'s {acc} and MASE {num(_f(r['mase']))} ({sample_note(int(r['n']))}), {bias_words(_f(r['bias_pct']))}"
+        text = f"{span}, {who} {acc} and MASE {num(_f(r['mase']))} ({sample_note(int(r['n']))}), {bias_words(_f(r['bias_pct']))}"
         text += _coverage_clause(data, model) + "."
         out.append(text)
     return out

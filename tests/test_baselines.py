@@ -16,15 +16,13 @@ import ledger.backtest as bt
 from ledger.backtest import backtest
 from ledger.baselines import (
     METHODS,
-    GapInHistory,
-    MethodNotApplicable,
     dominant_period,
     forecast,
     format_level,
     seasonal_test,
     seasonality_check,
 )
-from ledger.errors import InputError, NotEnoughData, UnknownName
+from ledger.errors import GapInHistory, InputError, MethodNotApplicable, NotEnoughData, UnknownName
 
 # A short invented series, T = 8, used for the hand computations.
 Y8 = np.array([10.0, 12.0, 11.0, 14.0, 13.0, 15.0, 17.0, 16.0])
@@ -319,7 +317,7 @@ def test_gap_skips_origins_with_a_note_unless_filled():
     gap_notes = [n for n in notes if "missing" in n]
     assert gap_notes == [
         "Series 'A', origins 32-40 (2 origins): history has 1 missing period(s) (t = 30); "
-        "skipped (pass fill='linear' or fill='previous')."
+        "skipped (fill it explicitly with --fill linear or --fill previous)."
     ]
     filled, notes = backtest(gapped, methods=["mean"], horizon=2, m=12, origins=(32, 32, 1), fill="previous", jobs=1)
     y = clean[clean["series"] == "A"]["actual"].to_numpy()[:33].copy()

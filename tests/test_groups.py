@@ -90,7 +90,7 @@ def test_non_numeric_weight_attribute(book):
 def _random_ledger(book, seed):
     rng = np.random.default_rng(seed)
     keys = [f"s{i}" for i in range(12)]
-    acts, runs = [], []
+    acts = []
     for k in keys:
         level = rng.uniform(5, 500)
         for q in range(16):

@@ -140,7 +140,7 @@ def test_gap_skips_that_series_origin_with_a_note(runner, ledger_path, tmp_path)
                      "--holdout", 6, "--horizon", 6, "--jobs", 1)
     assert result.exit_code == 0, result.output
     gap_note = ("Note: Series 'B', origin 2023-06: history has 1 missing period(s) (2022-05); "
-                "skipped (pass fill='linear' or fill='previous').")
+                "skipped (fill it explicitly with --fill linear or --fill previous).")
     assert gap_note in result.stderr.splitlines()
     with Ledger.open(ledger_path, create=False) as book:
         assert set(book.cells()["series"]) == {"A"}

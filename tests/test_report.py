@@ -317,7 +317,7 @@ def test_safe_write_refuses_paths_that_leave_the_folder(tmp_path):
 
 def test_planted_problems_are_visible(pages):
     index = pages["index.html"]
-    assert "the incumbent incumbent-hw" in index and "too narrow" in index
+    assert "incumbent-hw&#39;s (the incumbent)" in index and "too narrow" in index
     assert "Replacement advice" in index
     hoses = page_name("s", "North/Hoses")
     drift = re.search(r"<td>drift</td>.*?</tr>", index, flags=re.DOTALL)

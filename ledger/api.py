@@ -172,6 +172,12 @@ class Ledger:
         """
         return _flags.flags(self.store, self.selection(as_of=as_of, models=models), kinds=kinds, **thresholds)
 
+    def flag_counts(self, attribute: str, *, kinds: Sequence[str] = KINDS, models: Sequence[str] = (),
+                    as_of=None, **thresholds) -> pd.DataFrame:
+        """Findings per value of a series attribute and kind (``flags --by ATTR``)."""
+        frame = self.flags(kinds=kinds, models=models, as_of=as_of, **thresholds)
+        return _flags.count_by_group(self.store, frame, attribute, parse_as_of(as_of))
+
     def compare(self, a: str, b: str, *, horizons: Sequence[int] = (), as_of=None,
                 alpha: float = 0.05) -> pd.DataFrame:
         """a (incumbent) against b (challenger) per horizon on common cells; verdict in ``.attrs["verdict"]``."""

@@ -8,6 +8,8 @@ option whose default is the library's. ``advise --save`` stores the incumbent in
 
 from __future__ import annotations
 
+import functools
+
 import enum
 from typing import Annotated
 
@@ -72,6 +74,7 @@ def flags(
     value_alpha: Annotated[float, typer.Option("--value-alpha", help="Significance for series-level value findings.")] = _D.value_alpha,
     seasons: Annotated[int, typer.Option("--seasons", help="Report origins with less history than this many seasons.")] = _D.seasons,
     adi: Annotated[float, typer.Option("--adi", help="Average demand interval from which demand is intermittent.")] = _D.adi,
+    by: Annotated[str | None, typer.Option("--by", metavar="ATTR", help="Count findings per value of this series attribute and kind.")] = None,
     fmt: FormatOpt = Format.table,
 ) -> None:
     """Findings: drifting models, miscalibrated intervals, no value added, data problems."""
@@ -80,12 +83,16 @@ def flags(
         raise typer.BadParameter(f"{buckets!r} is not a comma list of horizons such as 1,2,4,7,13", param_hint="--buckets")
     edges = [int(p) for p in parts]
     with open_ledger(ctx) as book, busy("Checking"):
-        frame = book.flags(kinds=[k.value for k in kind or []], models=model or (), as_of=as_of,
+        call = book.flags if by is None else functools.partial(book.flag_counts, by)
+        frame = call(kinds=[k.value for k in kind or []], models=model or (), as_of=as_of,
                            drift_k=drift_k, drift_h=drift_h, reference=reference, ts_window=ts_window,
                            trigg_alpha=trigg_alpha, fdr=fdr, correction=correction.value, min_cells=min_cells,
                            series_calibration=series_calibration, buckets=tuple(edges), zone_watch=zone_watch,
                            zone_out=zone_out, benchmark=benchmark, recent=recent, value_alpha=value_alpha,
                            seasons=seasons, adi=adi)
+    if by is not None:
+        emit(frame, fmt, title=f"Findings by {by} and kind")
+        return
     if fmt is Format.table:
         if frame.empty:
             notice("no findings")

@@ -27,10 +27,11 @@ from .findings import (
 )
 from .quality import data_findings, series_models
 from .scoring import Selection, interval_cells, score_cells
+from .groups import check_attribute, series_attributes
 from .store import Store
 from .value import value_findings
 
-__all__ = ["flags"]
+__all__ = ["flags", "count_by_group"]
 
 
 def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, **thresholds) -> pd.DataFrame:
@@ -77,3 +78,19 @@ def _data_for(store: Store, sel: Selection, options: FlagOptions) -> list[Findin
     pairs = series_models(store, sel)
     wanted = set(pairs.loc[pairs["model"].isin(sel.models), "series"])
     return [f for f in found if f.model in sel.models or (not f.model and f.series in wanted)]
+
+
+def count_by_group(store: Store, frame: pd.DataFrame, attribute: str, as_of) -> pd.DataFrame:
+    """Findings counted per value of a series attribute and kind (notes left out).
+
+    A model-level finding (no series) is counted under "(all series)"; a series without that
+    attribute under "(none)".
+    """
+    check_attribute(store, as_of, attribute, option="flags --by")
+    attrs = series_attributes(store, as_of)
+    groups = dict(zip(attrs["series"], attrs[attribute])) if attribute in attrs.columns else {}
+    found = frame[frame["severity"] != "note"]
+    group = [("(all series)" if not s else groups.get(s) or "(none)") for s in found["series"]]
+    counts = (found.assign(**{attribute: group}).groupby([attribute, "kind"]).size()
+              .rename("findings").reset_index())
+    return counts.sort_values([attribute, "kind"], kind="stable").reset_index(drop=True)

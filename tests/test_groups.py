@@ -168,3 +168,20 @@ def test_direct_total_compared_with_bottom_up(book, runner):
     assert r.stdout.splitlines()[0] == ("region,model,forecast_of,n,mae,rmse,mape,smape,wape,mase,rmsse,"
                                         "bias,bias_pct,n_left_out")
     assert "intervals are not scored for totals" in r.stderr
+
+
+def test_flag_counts_by_attribute(ledger_path, runner):
+    # A zero actual in A's history gives a data finding on a series of region North.
+    with Ledger.open(ledger_path) as b:
+        small(b)
+        b.record_actuals(pd.DataFrame({"series": ["A", "A"], "period": ["2019", "2018"], "actual": [0.0, 80.0]}))
+        frame = b.flags(kinds=["data"])
+        counts = b.flag_counts("region", kinds=["data"])
+    expected = frame[frame["severity"] != "note"].groupby("kind").size()
+    assert counts["region"].tolist() == ["North"] * len(expected)
+    assert dict(zip(counts["kind"], counts["findings"])) == expected.to_dict()
+    r = runner.invoke(app, ["--ledger", str(ledger_path), "flags", "--kind", "data", "--by", "region", "--format", "csv"])
+    assert r.exit_code == 0 and r.stdout.splitlines()[0] == "region,kind,findings"
+    r = runner.invoke(app, ["--ledger", str(ledger_path), "flags", "--by", "zone"])
+    assert r.exit_code == 1
+    assert r.stderr == "Error: flags --by: no attribute named 'zone'; known attributes: region, unit_price\n"

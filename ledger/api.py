@@ -14,8 +14,6 @@ from collections.abc import Sequence
 
 import pandas as pd
 
-from . import flags as _flags
-from . import standings as _standings
 from .findings import KINDS, check_models
 from .groups import AttributesResult, parse_where, series_attributes, write_attributes
 from .ingest import read_actuals, read_forecasts
@@ -29,6 +27,17 @@ from .transfer import ExportFormat, export_ledger, import_ledger
 from .weighted import weighted_scores
 
 __all__ = ["Ledger", "DEFAULT_PATH"]
+
+
+def _flags():
+    # Imported on first use: the findings pull in scipy.stats, which would slow every command's start.
+    from . import flags
+    return flags
+
+
+def _standings():
+    from . import standings
+    return standings
 
 DEFAULT_PATH = "backsight.duckdb"
 
@@ -170,35 +179,35 @@ class Ledger:
         :class:`ledger.findings.FlagOptions` (e.g. ``drift_h=5.5``, ``fdr=0.05``,
         ``benchmark="ref-snaive"``), each with its stated default.
         """
-        return _flags.flags(self.store, self.selection(as_of=as_of, models=models), kinds=kinds, **thresholds)
+        return _flags().flags(self.store, self.selection(as_of=as_of, models=models), kinds=kinds, **thresholds)
 
     def flag_counts(self, attribute: str, *, kinds: Sequence[str] = KINDS, models: Sequence[str] = (),
                     as_of=None, **thresholds) -> pd.DataFrame:
         """Findings per value of a series attribute and kind (``flags --by ATTR``)."""
         frame = self.flags(kinds=kinds, models=models, as_of=as_of, **thresholds)
-        return _flags.count_by_group(self.store, frame, attribute, parse_as_of(as_of))
+        return _flags().count_by_group(self.store, frame, attribute, parse_as_of(as_of))
 
     def compare(self, a: str, b: str, *, horizons: Sequence[int] = (), as_of=None,
                 alpha: float = 0.05) -> pd.DataFrame:
         """a (incumbent) against b (challenger) per horizon on common cells; verdict in ``.attrs["verdict"]``."""
-        return _standings.compare(self.store, self.selection(as_of=as_of), a, b, horizons=horizons, alpha=alpha)
+        return _standings().compare(self.store, self.selection(as_of=as_of), a, b, horizons=horizons, alpha=alpha)
 
     def standings(self, *, horizons: Sequence[int] = (), models: Sequence[str] = (), as_of=None) -> pd.DataFrame:
         """Per evaluation period, each model's MASE, rank and share of series won, on common cells."""
-        return _standings.standings(self.store, self.selection(as_of=as_of, models=models, horizons=horizons))
+        return _standings().standings(self.store, self.selection(as_of=as_of, models=models, horizons=horizons))
 
     def advise(self, incumbent: str | None = None, *, challengers: Sequence[str] = (), window: int = 12,
                horizons: Sequence[int] = (), alpha: float = 0.05, as_of=None) -> pd.DataFrame:
         """Replace the incumbent (None: the stored setting) with a challenger, or not, and why."""
-        return _standings.advise(self.store, self.selection(as_of=as_of), incumbent, challengers=challengers,
+        return _standings().advise(self.store, self.selection(as_of=as_of), incumbent, challengers=challengers,
                                  window=window, horizons=horizons, alpha=alpha)
 
     def set_incumbent(self, model: str) -> None:
         """Store ``model`` as the incumbent (ledger setting "incumbent"), used by :meth:`advise`."""
         check_models(self.store, [model])
-        self.store.set_setting(_standings.INCUMBENT_KEY, model)
+        self.store.set_setting(_standings().INCUMBENT_KEY, model)
 
     @property
     def incumbent(self) -> str | None:
         """The stored incumbent model, or None."""
-        return self.store.get_setting(_standings.INCUMBENT_KEY)
+        return self.store.get_setting(_standings().INCUMBENT_KEY)

@@ -13,7 +13,6 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from scipy import signal
 
 from ledger.errors import InputError, UnknownName
 
@@ -143,6 +142,8 @@ def trigg_signal(e, *, alpha: float = 0.1, init: int = 6) -> np.ndarray:
         return e.copy()
     m0 = np.mean(np.abs(e[..., :init]), axis=-1, keepdims=True)
     b, a = [alpha], [1.0, alpha - 1.0]
+    from scipy import signal  # imported here: scipy.signal costs a second at start-up for every command
+
     smoothed = signal.lfilter(b, a, e, axis=-1, zi=np.zeros_like(m0))[0]
     mad = signal.lfilter(b, a, np.abs(e), axis=-1, zi=(1.0 - alpha) * m0)[0]
     with np.errstate(divide="ignore", invalid="ignore"):

@@ -35,8 +35,9 @@ def report(
     incumbent: Annotated[str | None, typer.Option("--incumbent", help="The model in use; enables replacement advice (default: the ledger's stored incumbent).")] = None,
     benchmark: Annotated[str | None, typer.Option("--benchmark", help="Benchmark model for the value-added findings.")] = None,
     horizon: Annotated[int, typer.Option("--horizon", min=1, help="Horizon of the headline sentences, standings and series charts.")] = 1,
+    group_by: Annotated[str | None, typer.Option("--group-by", metavar="ATTR", help="Add groups.html: accuracy (unweighted and volume-weighted), group totals, findings and series per value of this series attribute (e.g. region).")] = None,
 ) -> None:
-    """Render the static HTML report (overview, findings, a page per model and per series, methods) into OUTDIR."""
+    """Render the static HTML report (overview, findings, a page per model and per series, methods; with --group-by a groups page) into OUTDIR."""
     from reports import render_report
 
     console = Console(stderr=True, highlight=False)
@@ -49,5 +50,6 @@ def report(
             bar.update(task, completed=done, total=total, description=what[:40])
 
         result = render_report(ctx.obj["ledger"], out_dir, as_of=as_of, since=since, until=until, title=title,
-                               incumbent=incumbent, benchmark=benchmark, horizon=horizon, progress=progress)
+                               incumbent=incumbent, benchmark=benchmark, horizon=horizon, progress=progress,
+                               group_by=group_by)
     typer.echo(str(result.index))

@@ -30,25 +30,26 @@ with fewer than ``min_cells`` cells are not tested and say "not enough data to j
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
 
 import numpy as np
 import pandas as pd
 from scipy import stats
 
-from .calibration import (
-    IndependenceTest,
-    ZoneResult,
-    benjamini_hochberg,
-    coverage_zone,
-    holm,
-    independence_from_counts,
-    kupiec_pof,
-)
+from . import calibration as _calibration
+from .calibration import IndependenceTest, ZoneResult, benjamini_hochberg, holm
 from .findings import Finding, FlagOptions, about, label, pval
 from .ingest import format_level
 
 __all__ = ["calibration_findings", "bucket_labels"]
+
+# The tests are pure functions of a few integers and levels, and thousands of per-series groups
+# share the same counts (n cells, x misses), so each distinct call is computed once; the
+# results are frozen dataclasses, safe to share.
+coverage_zone = functools.lru_cache(maxsize=65536)(_calibration.coverage_zone)
+kupiec_pof = functools.lru_cache(maxsize=65536)(_calibration.kupiec_pof)
+independence_from_counts = functools.lru_cache(maxsize=65536)(_calibration.independence_from_counts)
 
 
 def bucket_labels(horizons, edges) -> np.ndarray:

@@ -39,6 +39,7 @@ def drift_findings(cells: pd.DataFrame, seasons: dict[str, int], options: FlagOp
     short: dict[str, list] = {}
     ordered = cells.sort_values(["model", "series", "horizon", "period_index"], kind="stable").reset_index(drop=True)
     cols = _columns(ordered)
+    judged = []
     for (model, series, horizon), idx in ordered.groupby(["model", "series", "horizon"], sort=True).indices.items():
         m = int(seasons.get(series, 1))
         ref = options.reference or reference_length(m)
@@ -47,6 +48,11 @@ def drift_findings(cells: pd.DataFrame, seasons: dict[str, int], options: FlagOp
         counts[2].add(ref)
         if idx.size <= ref:
             counts[0] += 1
+            continue
+        judged.append((model, series, horizon, idx, m, ref))
+    maybe = _screen(cols, [(j[3], j[5]) for j in judged], options)
+    for (model, series, horizon, idx, m, ref), candidate in zip(judged, maybe):
+        if not candidate:
             continue
         result = _run(cols, idx, m, ref, options)
         if result.flagged:
@@ -88,6 +94,65 @@ def _columns(cells: pd.DataFrame) -> dict[str, np.ndarray]:
         s = np.where(q > 0, np.abs(e) / q, np.nan)
     return {"e": e, "s": s, "period_index": cells["period_index"].to_numpy(),
             "frequency": cells["frequency"].to_numpy(dtype=object)}
+
+
+#: Screen margin in reference standard deviations: far above the rounding differences between
+#: the batched and the per-sequence arithmetic (~1e-12), far below any meaningful CUSUM step.
+_SCREEN_MARGIN = 1e-6
+
+
+def _screen(cols: dict, seqs: list[tuple[np.ndarray, int]], options: FlagOptions) -> np.ndarray:
+    """Which sequences might alarm: a batched, conservative pre-check before the exact test.
+
+    Sequences of equal length and reference window are stacked and their bias and deterioration
+    CUSUMs computed at once, with the arithmetic of :func:`ledger.checks.drift_test` (default
+    floor, centring, transform and autocorrelation widening). A sequence is a candidate when
+    either CUSUM comes within :data:`_SCREEN_MARGIN` of h, or when anything is not finite or a
+    scaled error is missing (those cases go to the exact test unscreened). Only candidates run
+    :func:`ledger.checks.drift_test`, whose result alone decides a finding, so the screen saves
+    time without changing any finding: it can pass extra sequences, never drop an alarming one.
+    """
+    out = np.ones(len(seqs), dtype=bool)
+    buckets: dict[tuple[int, int], list[int]] = {}
+    for i, (idx, ref) in enumerate(seqs):
+        buckets.setdefault((idx.size, ref), []).append(i)
+    for (_, ref), members in buckets.items():
+        rows = np.stack([seqs[i][0] for i in members])
+        peak = np.maximum(_peak(cols["e"][rows], ref, options.drift_k, centre=False, side="two-sided"),
+                          _peak(np.sqrt(cols["s"][rows]), ref, options.drift_k, centre=True, side="upper"))
+        out[members] = ~(peak < options.drift_h - _SCREEN_MARGIN)
+    return out
+
+
+def _peak(x: np.ndarray, ref: int, k: float, *, centre: bool, side: str) -> np.ndarray:
+    """Highest monitored CUSUM value per row of x (NaN when a row cannot be screened)."""
+    base = x[:, :ref]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sd = base.std(axis=1, ddof=1) * _ar1_widening(base)
+        sigma = np.maximum(sd, 0.05 * np.abs(base).mean(axis=1))
+        z = (x[:, ref:] - (base.mean(axis=1, keepdims=True) if centre else 0.0)) / sigma[:, None]
+    peak = _cusum_max(z - k)
+    if side == "two-sided":
+        peak = np.maximum(peak, _cusum_max(-z - k))
+    bad = ~(sigma > 0) | np.isnan(x).any(axis=1) | ~np.isfinite(peak)
+    return np.where(bad, np.nan, peak)
+
+
+def _ar1_widening(base: np.ndarray) -> np.ndarray:
+    """sqrt((1 + r) / (1 - r)), r the clipped lag-1 autocorrelation (as in ledger.checks._lag1)."""
+    if base.shape[1] < 4:
+        return np.ones(base.shape[0])
+    d = base - base.mean(axis=1, keepdims=True)
+    den = np.einsum("ij,ij->i", d, d)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r = np.where(den > 0, np.clip(np.einsum("ij,ij->i", d[:, 1:], d[:, :-1]) / den, 0.0, 0.9), 0.0)
+    return np.sqrt((1 + r) / (1 - r))
+
+
+def _cusum_max(step: np.ndarray) -> np.ndarray:
+    """max_t of C_t = max(0, C_{t-1} + step_t), C_0 = 0, per row (closed form, as in cusum_path)."""
+    total = np.cumsum(step, axis=1)
+    return (total - np.minimum(0.0, np.minimum.accumulate(total, axis=1))).max(axis=1)
 
 
 def _run(cols: dict, idx: np.ndarray, m: int, ref: int, options: FlagOptions) -> DriftResult:

@@ -26,7 +26,7 @@ from .findings import (
     known_models,
 )
 from .quality import data_findings, series_models
-from .scoring import Selection, interval_cells, score_cells
+from .scoring import Selection, interval_misses, score_cells
 from .groups import check_attribute, series_attributes
 from .store import Store
 from .value import value_findings
@@ -34,10 +34,13 @@ from .value import value_findings
 __all__ = ["flags", "count_by_group"]
 
 
-def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, **thresholds) -> pd.DataFrame:
+def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: pd.DataFrame | None = None,
+          **thresholds) -> pd.DataFrame:
     """Findings of the given kinds for the models in ``sel`` (all when empty), at ``sel.as_of``.
 
     ``thresholds`` are the fields of :class:`ledger.findings.FlagOptions`, each with its default.
+    ``cells``: the scored cells of ``sel`` for every model (``score_cells`` of ``sel`` with no
+    model filter) when the caller already holds them; None reads them here.
     """
     kinds = _check_kinds(kinds)
     options = FlagOptions.from_keywords(**thresholds)
@@ -45,12 +48,13 @@ def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, **thres
     everyone = dataclasses.replace(sel, models=())
     seasons, freqs = _series_facts(store)
     found: list[Finding] = []
-    cells = score_cells(store, everyone) if {"drift", "value"} & set(kinds) else None
+    if cells is None and {"drift", "value"} & set(kinds):
+        cells = score_cells(store, everyone)
     subjects = list(sel.models) or known_models(store)
     if "drift" in kinds:
         found += drift_findings(cells[cells["model"].isin(subjects)], seasons, options)
     if "calibration" in kinds:
-        found += calibration_findings(interval_cells(store, sel), freqs, options)
+        found += calibration_findings(interval_misses(store, sel), freqs, options)
     if "value" in kinds:
         found += value_findings(cells, subjects, known_models(store), options)
     if "data" in kinds:

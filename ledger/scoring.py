@@ -26,7 +26,7 @@ from .periods import index_start, parse_label, period_index, period_label
 from .groups import attributes_sql, check_attribute, known_attributes
 from .store import Store, latest_actuals_sql, live_runs_sql
 
-__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "forecasts_sql", "score_cells", "interval_cells", "scores", "POINT_COLUMNS"]
+__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "forecasts_sql", "score_cells", "interval_cells", "interval_misses", "scores", "POINT_COLUMNS"]
 
 GroupKey = Literal["series", "model", "horizon", "origin", "period"]
 GROUP_KEYS: tuple[str, ...] = get_args(GroupKey)
@@ -170,6 +170,21 @@ def interval_cells(store: Store, sel: Selection) -> pd.DataFrame:
         SELECT c.model, c.series, c.origin, c.origin_index, c.period, c.period_index, c.horizon,
                b.level, b.lower, b.upper, c.actual, c.actual < b.lower AS below,
                c.actual > b.upper AS above, c.q
+        FROM ({sql}) c
+        JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index
+        ORDER BY c.model, b.level, c.series, c.horizon, c.period_index""", params).df()
+
+
+def interval_misses(store: Store, sel: Selection) -> pd.DataFrame:
+    """The rows of :func:`interval_cells`, in its order, with only what calibration tests use.
+
+    Columns: model, series, period_index, horizon, level, below, above (fewer columns to
+    transfer: the findings of a large ledger read millions of these rows).
+    """
+    sql, params = cells_sql(sel)
+    return store.con.execute(f"""
+        SELECT c.model, c.series, c.period_index, c.horizon, b.level,
+               c.actual < b.lower AS below, c.actual > b.upper AS above
         FROM ({sql}) c
         JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index
         ORDER BY c.model, b.level, c.series, c.horizon, c.period_index""", params).df()

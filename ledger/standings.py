@@ -86,16 +86,18 @@ def _p_band(ps: Sequence[float]) -> str:
 
 
 def compare(store: Store, sel: Selection, a: str, b: str, *, horizons: Sequence[int] = (),
-            alpha: float = 0.05) -> pd.DataFrame:
+            alpha: float = 0.05, cells: pd.DataFrame | None = None) -> pd.DataFrame:
     """Per horizon, on common cells: n, MAE, MASE, relative MAE, win share, DM-HLN, verdict.
 
     Columns :data:`COMPARE_COLUMNS`. ``win_share_b`` is b's share of series won (series MAE over
     the common cells at that horizon; ties count half). ``better`` names the model that is
     significantly more accurate at level ``alpha`` (two-sided), '' if neither. The overall
-    verdict sentence is in ``frame.attrs["verdict"]``.
+    verdict sentence is in ``frame.attrs["verdict"]``. ``cells``: the scored cells of ``sel``
+    (from :func:`ledger.scoring.score_cells`, any models and horizons) when the caller already
+    holds them, so that one query serves several comparisons; None reads them here.
     """
     _two_models(store, a, b)
-    cells = score_cells(store, dataclasses.replace(sel, models=(a, b), horizons=tuple(horizons)))
+    cells = _cells_for(store, dataclasses.replace(sel, models=(a, b), horizons=tuple(horizons)), cells)
     pairs = paired(cells, a, b)
     hs = sorted({int(h) for h in horizons} or set(pairs["horizon"].astype(int)))
     rows = [_compare_row(pairs[pairs["horizon"] == h], h, a, b, alpha) for h in hs]
@@ -103,6 +105,19 @@ def compare(store: Store, sel: Selection, a: str, b: str, *, horizons: Sequence[
     frame["better"] = frame["better"].astype(object)
     frame.attrs["verdict"] = _verdict(rows, a, b)
     return frame
+
+
+def _cells_for(store: Store, sel: Selection, cells: pd.DataFrame | None) -> pd.DataFrame:
+    """score_cells(store, sel), or the rows of the given cells (of sel without its model and
+    horizon filters) that those filters keep, in the same order."""
+    if cells is None:
+        return score_cells(store, sel)
+    keep = np.ones(len(cells), dtype=bool)
+    if sel.models:
+        keep &= cells["model"].isin(list(sel.models)).to_numpy()
+    if sel.horizons:
+        keep &= cells["horizon"].isin([int(h) for h in sel.horizons]).to_numpy()
+    return cells if keep.all() else cells[keep]
 
 
 def _two_models(store: Store, a: str, b: str) -> None:
@@ -156,7 +171,7 @@ def _verdict(rows: list[dict], a: str, b: str) -> str:
 # ---------------------------------------------------------------- standings
 
 
-def standings(store: Store, sel: Selection) -> pd.DataFrame:
+def standings(store: Store, sel: Selection, *, cells: pd.DataFrame | None = None) -> pd.DataFrame:
     """Per evaluation (target) period, each model's MASE, rank and share of series won.
 
     Common cells per period: the (series, horizon) cells, with a scale, that every model present
@@ -164,9 +179,10 @@ def standings(store: Store, sel: Selection) -> pd.DataFrame:
     ``mase`` = mean |e|/q over those cells; ``rank`` 1 = lowest MASE (ties share the better
     rank); ``series_won`` = share of the period's series where the model had the lowest mean
     scaled error (ties split). Columns :data:`STANDINGS_COLUMNS`, ordered by period then rank.
+    ``cells``: as in :func:`compare`.
     """
     check_models(store, sel.models)
-    cells = score_cells(store, sel)
+    cells = _cells_for(store, sel, cells)
     cells = cells[cells["q"].notna() & (cells["q"] > 0)]
     if cells.empty:
         return pd.DataFrame(columns=list(STANDINGS_COLUMNS))
@@ -203,7 +219,7 @@ def _series_won(common: pd.DataFrame) -> pd.DataFrame:
 
 def advise(store: Store, sel: Selection, incumbent: str | None = None, *,
            challengers: Sequence[str] = (), window: int = 12, horizons: Sequence[int] = (),
-           alpha: float = 0.05) -> pd.DataFrame:
+           alpha: float = 0.05, cells: pd.DataFrame | None = None) -> pd.DataFrame:
     """For each challenger: replace the incumbent or not, and why (columns :data:`ADVICE_COLUMNS`).
 
     A replacement is recommended only when, on common cells, (1) the challenger is better over
@@ -214,6 +230,7 @@ def advise(store: Store, sel: Selection, incumbent: str | None = None, *,
     the advice says why not: not enough data (fewer common periods than the window, or a horizon
     the test cannot judge), mixed by horizon, not better, not significant, or mixed by series.
     ``incumbent`` None uses the ledger setting "incumbent" (``Ledger.set_incumbent``).
+    ``cells``: as in :func:`compare`.
     """
     incumbent = incumbent or store.get_setting(INCUMBENT_KEY)
     if not incumbent:
@@ -222,7 +239,7 @@ def advise(store: Store, sel: Selection, incumbent: str | None = None, *,
     check_models(store, [incumbent, *challengers])
     if window < 2:
         raise LedgerError(f"advise: window = {window} must be at least 2 evaluation periods")
-    cells = score_cells(store, dataclasses.replace(sel, models=(), horizons=tuple(horizons)))
+    cells = _cells_for(store, dataclasses.replace(sel, models=(), horizons=tuple(horizons)), cells)
     others = list(challengers) or [m for m in known_models(store) if m != incumbent and (cells["model"] == m).any()]
     rows = [_advice(paired(cells, incumbent, c), incumbent, c, window, tuple(horizons), alpha)
             for c in others if c != incumbent]

@@ -68,7 +68,7 @@ def weighted_scores(store: Store, sel: Selection, by: Sequence[str], *, weight: 
     w, label = _weights(store, sel, weight)
     per_series["_w"] = per_series["series"].map(w).fillna(0.0).to_numpy(dtype=float)
     rows = []
-    groups = per_series.groupby(keys, sort=False) if keys else [((), per_series)]
+    groups = per_series.groupby(keys, sort=False, dropna=False) if keys else [((), per_series)]
     for key, part in groups:
         row = dict(zip(keys, key if isinstance(key, tuple) else (key,)))
         row["weight_total"] = float(part["_w"].sum())

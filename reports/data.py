@@ -21,21 +21,21 @@ import pandas as pd
 from ledger import Ledger
 from ledger.errors import UnknownName
 from ledger.periods import SEASON_LENGTHS, index_start, period_label
-from ledger.scoring import Selection, cells_sql
+from ledger import standings as _standings
+from ledger.flags import flags as _flag_cells
+from ledger.scoring import Selection, cells_sql, score_cells
 from ledger.store import latest_actuals_sql, live_runs_sql
 
 __all__ = [
     "Findings",
     "LedgerData",
     "Window",
-    "advise_job",
-    "compare_job",
-    "flags_job",
+    "findings_job",
     "label_of",
     "load",
     "quiet",
+    "report_models",
     "series_count",
-    "standings_job",
 ]
 
 @dataclasses.dataclass
@@ -115,6 +115,11 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
         actuals=_actuals(book, sel), latest=_latest(book, sel), pending=_pending(book, sel),
         findings=_findings(book, models, as_of, horizon, incumbent, benchmark) if with_findings else None,
     )
+
+
+def report_models(book: Ledger, as_of: dt.datetime, since: str | None, until: str | None) -> list[str]:
+    """The models with a scored cell in the report's selection (those ``load`` reports on)."""
+    return _models(book, book.selection(as_of=as_of, since=since, until=until))
 
 
 def _models(book: Ledger, sel: Selection) -> list[str]:
@@ -221,18 +226,18 @@ def series_count(book: Ledger, as_of: dt.datetime) -> int:
                                       {"as_of": as_of}).fetchall()[0][0])
 
 
-def _flags(book: Ledger, as_of, benchmark) -> pd.DataFrame:
-    return book.flags(as_of=as_of, **({"benchmark": benchmark} if benchmark else {}))
-
-
-def _advice(book: Ledger, models: list[str], as_of, incumbent) -> pd.DataFrame | None:
-    return book.advise(incumbent=incumbent, as_of=as_of) if incumbent and len(models) > 1 else None
-
-
 def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, benchmark) -> Findings:
-    comparisons = {(a, b): book.compare(a, b, as_of=as_of) for a, b in itertools.combinations(models, 2)}
-    return Findings(_flags(book, as_of, benchmark), comparisons,
-                    book.standings(horizons=[horizon], as_of=as_of), _advice(book, models, as_of, incumbent))
+    """The same frames as ``Ledger.flags``, ``compare``, ``standings`` and ``advise`` at ``as_of``
+    (no model, horizon or period filter), from one read of the scored cells shared by all."""
+    store, sel = book.store, book.selection(as_of=as_of)
+    cells = score_cells(store, sel)
+    found = _flag_cells(store, sel, cells=cells, **({"benchmark": benchmark} if benchmark else {}))
+    comparisons = {(a, b): _standings.compare(store, sel, a, b, cells=cells)
+                   for a, b in itertools.combinations(models, 2)}
+    ranks = _standings.standings(store, dataclasses.replace(sel, horizons=(horizon,)), cells=cells)
+    advice = (_standings.advise(store, sel, incumbent, cells=cells)
+              if incumbent and len(models) > 1 else None)
+    return Findings(found, comparisons, ranks, advice)
 
 
 # Jobs for worker processes: each opens the ledger read-only (DuckDB allows many readers).
@@ -247,24 +252,11 @@ def quiet(book: Ledger) -> Ledger:
     return book
 
 
-def flags_job(path: str, as_of: dt.datetime, benchmark: str | None) -> pd.DataFrame:
+def findings_job(path: str, as_of: dt.datetime, models: list[str], horizon: int, incumbent: str | None,
+                 benchmark: str | None) -> Findings:
+    """All findings of a report in one worker, sharing one read of the scored cells."""
     with _open(path) as book:
-        return _flags(book, as_of, benchmark)
-
-
-def compare_job(path: str, as_of: dt.datetime, a: str, b: str) -> pd.DataFrame:
-    with _open(path) as book:
-        return book.compare(a, b, as_of=as_of)
-
-
-def standings_job(path: str, as_of: dt.datetime, horizon: int) -> pd.DataFrame:
-    with _open(path) as book:
-        return book.standings(horizons=[horizon], as_of=as_of)
-
-
-def advise_job(path: str, as_of: dt.datetime, models: list[str], incumbent: str | None) -> pd.DataFrame | None:
-    with _open(path) as book:
-        return _advice(book, models, as_of, incumbent)
+        return _findings(book, models, as_of, horizon, incumbent, benchmark)
 
 
 def label_of(index: int, freq: str) -> str:

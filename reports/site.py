@@ -2,7 +2,8 @@
 
 Pages: ``index.html`` (overview), ``findings.html``, ``series.html`` (index of series),
 ``methods.html``, one ``m-….html`` per model and one ``s-….html`` per series (names from
-:mod:`reports.names`). The ledger is read once (:func:`reports.data.load`); series pages are
+:mod:`reports.names`), and with ``group_by`` a ``groups.html`` (:mod:`reports.group_views`),
+linked from every page's navigation. The ledger is read once (:func:`reports.data.load`); series pages are
 built from one groupby of those frames and, for large ledgers, rendered in worker processes,
 because their charts are the expensive part.
 """
@@ -11,7 +12,6 @@ from __future__ import annotations
 
 import concurrent.futures as cf
 import dataclasses
-import itertools
 import multiprocessing
 import os
 from collections.abc import Callable
@@ -23,17 +23,8 @@ from ledger import Ledger, __version__
 from ledger.store import parse_as_of, utc_now
 
 from . import charts
-from .data import (
-    Findings,
-    LedgerData,
-    advise_job,
-    compare_job,
-    flags_job,
-    load,
-    quiet,
-    series_count,
-    standings_job,
-)
+from .data import LedgerData, findings_job, load, quiet, report_models, series_count
+from .group_views import GROUPS_PAGE, GroupData, build_groups, check_group_by, count_findings, load_groups
 from .names import page_names, safe_write
 from .render import render_page
 from .series_views import SeriesInput, SeriesView, build_series, metrics_for
@@ -84,7 +75,8 @@ class ReportResult:
 
 def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None, until: str | None = None,
                   title: str | None = None, incumbent: str | None = None, benchmark: str | None = None,
-                  horizon: int = 1, progress: Progress | None = None, workers: int | None = None) -> ReportResult:
+                  horizon: int = 1, progress: Progress | None = None, workers: int | None = None,
+                  group_by: str | None = None) -> ReportResult:
     """Write the report site for the ledger at ``ledger_path`` into ``out_dir``; return what was written.
 
     ``as_of`` (default now) fixes what the ledger held; the same ledger and as-of give the same
@@ -95,6 +87,9 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
     are many series; 0 = all in this process) runs the findings and the series charts in
     worker processes, each with its own read-only connection to the ledger.
     ``progress(done, total, what)`` is called after each page or chunk of series pages.
+    ``group_by`` (a series attribute, e.g. "region") adds ``groups.html``: accuracy, totals and
+    findings per value of the attribute; an attribute not recorded at the as-of raises
+    :class:`ledger.errors.UnknownName`.
     """
     stamp = parse_as_of(as_of)
     out = Path(out_dir)
@@ -102,54 +97,56 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
     path = str(Path(ledger_path).resolve())
     with quiet(Ledger.open(ledger_path, create=False, read_only=True)) as book, \
             _executor(_worker_count(series_count(book, stamp), workers)) as pool:
-        flags = pool.submit(flags_job, path, stamp, benchmark)
+        group_by = check_group_by(book, group_by, stamp) if group_by is not None else None
+        # Started first, on the models and incumbent load() will find, so that the findings
+        # (the longest single job) run while this process reads the report's frames.
+        found = pool.submit(findings_job, path, stamp, report_models(book, stamp, since, until),
+                            horizon, incumbent or book.incumbent, benchmark)
         core = load(book, as_of=stamp, since=since, until=until, horizon=horizon,
                     incumbent=incumbent, benchmark=benchmark, with_findings=False)
-        jobs = _findings_jobs(pool, path, stamp, core)
+        groups = load_groups(book, group_by, as_of=stamp, since=since, until=until) if group_by else None
         ctx = build_context(core, title or "Forecast accuracy report")
         inputs = series_inputs(core, ctx)
         views = [pool.submit(build_series_chunk, inputs[i:i + _CHUNK]) for i in range(0, len(inputs), _CHUNK)]
-        tick = _ticker(progress, 4 + len(core.models) + len(inputs))
+        extra = 1 if groups is not None else 0
+        nav = {"groups_page": GROUPS_PAGE if groups is not None else None}
+        tick = _ticker(progress, 4 + extra + len(core.models) + len(inputs))
         tick("computing findings", 0)
-        data = dataclasses.replace(core, findings=Findings(flags.result(), *[_result(j) for j in jobs]))
-        overview, rows = _write_fixed(data, ctx, out, tick)
-        _write_series(views, data, ctx, out, tick)
+        data = dataclasses.replace(core, findings=found.result())
+        overview, rows = _write_fixed(data, ctx, out, tick, nav)
+        if groups is not None:
+            _write_groups(count_findings(book, groups, data.findings.flags, stamp), ctx, out, tick)
+        _write_series(views, data, ctx, out, tick, nav)
     return ReportResult(out_dir=out.resolve(), index=out.resolve() / "index.html",
-                        pages=len(FIXED_PAGES) + len(data.models) + len(inputs), model_pages=len(data.models),
+                        pages=len(FIXED_PAGES) + extra + len(data.models) + len(inputs), model_pages=len(data.models),
                         series_pages=len(inputs), findings=len(rows), cells_scored=overview.counts["cells_scored"],
                         index_bytes=(out / "index.html").stat().st_size, state_hash=data.state_hash, as_of=ctx.footer.as_of)
 
 
-def _findings_jobs(pool, path: str, stamp, core: LedgerData) -> list:
-    """Futures of the comparisons (a dict), standings and advice, in Findings' field order."""
-    pairs = list(itertools.combinations(core.models, 2))
-    compare = {pair: pool.submit(compare_job, path, stamp, *pair) for pair in pairs}
-    return [compare, pool.submit(standings_job, path, stamp, core.horizon),
-            pool.submit(advise_job, path, stamp, core.models, core.incumbent)]
-
-
-def _result(job):
-    return {k: f.result() for k, f in job.items()} if isinstance(job, dict) else job.result()
-
-
-def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick):
-    """Overview, findings, series index, methods and model pages."""
+def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict):
+    """Overview, findings, series index, methods and model pages (``nav``: optional navigation links)."""
     overview = build_overview(data, ctx)
-    safe_write(out, "index.html", render_page("index.html", v=overview, ctx=ctx, page="index"))
+    safe_write(out, "index.html", render_page("index.html", v=overview, ctx=ctx, page="index", **nav))
     tick("overview")
     rows = sorted(finding_rows(data.findings.flags, ctx), key=lambda f: _SEVERITY.get(f.severity, 1))
-    safe_write(out, "findings.html", render_page("findings.html", rows=rows, ctx=ctx, page="findings"))
+    safe_write(out, "findings.html", render_page("findings.html", rows=rows, ctx=ctx, page="findings", **nav))
     tick("findings")
     safe_write(out, "series.html", render_page("series_index.html", rows=build_series_index(data, ctx),
-                                               ctx=ctx, page="series-index"))
+                                               ctx=ctx, page="series-index", **nav))
     tick("series index")
-    safe_write(out, "methods.html", render_page("methods.html", ctx=ctx, page="methods"))
+    safe_write(out, "methods.html", render_page("methods.html", ctx=ctx, page="methods", **nav))
     tick("methods")
     for model in data.models:
         view = build_model(data, ctx, model)
-        safe_write(out, view.href, render_page("model.html", v=view, ctx=ctx, page=view.href))
+        safe_write(out, view.href, render_page("model.html", v=view, ctx=ctx, page=view.href, **nav))
         tick(f"model {model}")
     return overview, rows
+
+
+def _write_groups(groups: GroupData, ctx: Context, out: Path, tick) -> None:
+    view = build_groups(groups, ctx)
+    safe_write(out, GROUPS_PAGE, render_page("groups.html", v=view, ctx=ctx, page="groups", groups_page=GROUPS_PAGE))
+    tick(f"groups by {groups.attribute}")
 
 
 def _ticker(progress: Progress | None, total: int) -> Callable[..., None]:
@@ -262,7 +259,7 @@ def _executor(n: int):
     return _Inline() if n == 0 else cf.ProcessPoolExecutor(n, mp_context=multiprocessing.get_context("spawn"))
 
 
-def _write_series(futures: list[cf.Future], data: LedgerData, ctx: Context, out: Path, tick) -> None:
+def _write_series(futures: list[cf.Future], data: LedgerData, ctx: Context, out: Path, tick, nav: dict) -> None:
     """Series pages, each with its findings, in the order their chunks finish."""
     flags: dict[str, list] = {}
     for f in finding_rows(data.findings.flags[data.findings.flags["series"] != ""], ctx):
@@ -272,5 +269,5 @@ def _write_series(futures: list[cf.Future], data: LedgerData, ctx: Context, out:
         views = fut.result()
         for view in views:
             view = dataclasses.replace(view, findings=flags.get(view.key, []))
-            safe_write(out, view.href, render_page("series.html", v=view, ctx=ctx, page=view.href))
+            safe_write(out, view.href, render_page("series.html", v=view, ctx=ctx, page=view.href, **nav))
         tick(f"series {views[-1].key}", len(views))

@@ -27,6 +27,7 @@ from ledger.scoring import Selection, cells_sql, score_cells
 from ledger.store import latest_actuals_sql, live_runs_sql
 
 __all__ = [
+    "check_roles",
     "Findings",
     "LedgerData",
     "Window",
@@ -92,10 +93,7 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
     sel = book.selection(as_of=as_of, since=since, until=until)
     models = _models(book, sel)
     incumbent = incumbent or book.incumbent
-    for name, role in ((incumbent, "--incumbent"), (benchmark, "--benchmark")):
-        if name is not None and name not in models:
-            raise UnknownName(f"{role} {name!r} has no scored run in the ledger at {as_of:%Y-%m-%d %H:%M}; "
-                              f"models: {', '.join(models) or 'none'}")
+    check_roles(models, incumbent, benchmark, as_of)
     q = dict(as_of=as_of, since=since, until=until)
     by_model_period = book.scores(by=["model", "period"], horizons=[horizon], **q)
     window = _window(by_model_period, _main_frequency(book, sel))
@@ -115,6 +113,14 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
         actuals=_actuals(book, sel), latest=_latest(book, sel), pending=_pending(book, sel),
         findings=_findings(book, models, as_of, horizon, incumbent, benchmark) if with_findings else None,
     )
+
+
+def check_roles(models: list[str], incumbent: str | None, benchmark: str | None, as_of: dt.datetime) -> None:
+    """Raise :class:`UnknownName` when the incumbent or benchmark has no scored run among ``models``."""
+    for name, role in ((incumbent, "--incumbent"), (benchmark, "--benchmark")):
+        if name is not None and name not in models:
+            raise UnknownName(f"{role} {name!r} has no scored run in the ledger at {as_of:%Y-%m-%d %H:%M}; "
+                              f"models: {', '.join(models) or 'none'}")
 
 
 def report_models(book: Ledger, as_of: dt.datetime, since: str | None, until: str | None) -> list[str]:

@@ -23,7 +23,7 @@ from ledger import Ledger, __version__
 from ledger.store import parse_as_of, utc_now
 
 from . import charts
-from .data import LedgerData, findings_job, load, quiet, report_models, series_count
+from .data import LedgerData, check_roles, findings_job, load, quiet, report_models, series_count
 from .group_views import GROUPS_PAGE, GroupData, build_groups, check_group_by, count_findings, load_groups
 from .names import page_names, safe_write
 from .render import render_page
@@ -100,8 +100,9 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
         group_by = check_group_by(book, group_by, stamp) if group_by is not None else None
         # Started first, on the models and incumbent load() will find, so that the findings
         # (the longest single job) run while this process reads the report's frames.
-        found = pool.submit(findings_job, path, stamp, report_models(book, stamp, since, until),
-                            horizon, incumbent or book.incumbent, benchmark)
+        models, chosen = report_models(book, stamp, since, until), incumbent or book.incumbent
+        check_roles(models, chosen, benchmark, stamp)
+        found = pool.submit(findings_job, path, stamp, models, horizon, chosen, benchmark)
         core = load(book, as_of=stamp, since=since, until=until, horizon=horizon,
                     incumbent=incumbent, benchmark=benchmark, with_findings=False)
         groups = load_groups(book, group_by, as_of=stamp, since=since, until=until) if group_by else None

@@ -131,14 +131,60 @@ def test_ets_wrappers_match_statsmodels(method):
 
 
 @pytest.mark.parametrize("m", [1, 12])
-def test_theta_matches_statsmodels(m):
+@pytest.mark.parametrize("levels", [(), (80,)])
+def test_theta_points_match_statsmodels(m, levels):
     y = _seasonal(60, 12, seed=5)
-    out = forecast(y, method="theta", h=8, m=m, levels=(80,))
+    out = forecast(y, method="theta", h=8, m=m, levels=levels)
     fit = ThetaModel(y, period=m, deseasonalize=m > 1).fit()
-    np.testing.assert_allclose(out["forecast"], fit.forecast(8), rtol=1e-9)
-    bounds = fit.prediction_intervals(8, alpha=0.2)
-    np.testing.assert_allclose(out["lower_80"], bounds["lower"], rtol=1e-9)
-    np.testing.assert_allclose(out["upper_80"], bounds["upper"], rtol=1e-9)
+    np.testing.assert_allclose(out["forecast"], fit.forecast(8), rtol=1e-12)
+
+
+def _ses_errors(x: np.ndarray, alpha: float) -> list[float]:
+    # SES started at the first value (ThetaModel's initial_level=y[0], "known"): l_1 = x_1.
+    level, errors = x[0], []
+    for value in x[1:]:
+        errors.append(value - level)
+        level = level + alpha * (value - level)
+    return errors
+
+
+def test_theta_intervals_are_ets_ann_on_the_adjusted_scale_by_hand():
+    # Hyndman, Koehler, Ord & Snyder (2008), Forecasting with Exponential Smoothing, Table 6.1,
+    # class 1 (from memory): ETS(A,N,N) h-step variance sigma^2 (1 + (h - 1) alpha^2).
+    y, h, T = _seasonal(60, 12, seed=5), 14, 60
+    fit = ThetaModel(y, period=12, deseasonalize=True).fit()
+    comp = fit.forecast_components(h)
+    assert fit.model.method == "mul" and np.ptp(comp["seasonal"]) > 0.05  # reseasonalised case
+    alpha = float(fit.params["alpha"])
+    season = seasonal_decompose(y, model="multiplicative", period=12).seasonal
+    e = _ses_errors(y / season, alpha)
+    sigma = math.sqrt(sum(x * x for x in e) / (T - 2))  # FPP3 eq. (5.1): K = 1 (alpha), M = 1
+    out = forecast(y, method="theta", h=h, m=12, levels=(80, 95))
+    for j in range(h):
+        centre = comp["ses"].iloc[j] + comp["trend"].iloc[j] / 2  # theta = 2
+        s = comp["seasonal"].iloc[j]
+        half = sigma * math.sqrt(1 + j * alpha**2)  # j = h - 1
+        assert out["forecast"][j] == pytest.approx(centre * s, rel=1e-12)
+        assert out["lower_95"][j] == pytest.approx((centre - Z95 * half) * s, rel=1e-12)
+        assert out["upper_80"][j] == pytest.approx((centre + Z80 * half) * s, rel=1e-12)
+
+
+def test_theta_interval_spread_equals_statsmodels_ets_ann_for_the_same_alpha_and_sigma():
+    # Outside check of the variance formula: statsmodels' ETSModel ETS(A,N,N) with Theta's own
+    # alpha and the same known start level. Its sigma^2 is the mean of all T squared errors
+    # (e_1 = 0 included), ours divides by T - 2, hence the factor sqrt(T / (T - 2)).
+    y, h, T = _seasonal(50, 1, seed=13, trend=0.5, noise=3.0), 10, 50
+    fit = ThetaModel(y, period=1, deseasonalize=False).fit()
+    alpha = float(fit.params["alpha"])
+    ets = ETSModel(pd.Series(y), error="add", initialization_method="known", initial_level=y[0]).smooth([alpha])
+    out = forecast(y, method="theta", h=h, m=1, levels=(80, 95))
+    for level in (80, 95):
+        ref = ets.get_prediction(start=T, end=T + h - 1).summary_frame(alpha=1 - level / 100)
+        ours = out[f"upper_{level}"] - out["forecast"]
+        theirs = (ref["pi_upper"] - ref["mean"]).to_numpy() * math.sqrt(T / (T - 2))
+        np.testing.assert_allclose(ours, theirs, rtol=1e-9)
+        np.testing.assert_allclose(out["forecast"] - out[f"lower_{level}"], theirs, rtol=1e-9)
+    assert np.all(np.diff(out["upper_95"] - out["forecast"]) > 0)  # alpha > 0: the spread grows
 
 
 def test_shd_is_the_equal_weight_mean_of_its_members():

@@ -20,7 +20,7 @@ import pandas as pd
 from ledger.backtest import backtest
 
 FAST = ("naive", "snaive", "drift", "theta")
-SLOW = ("ses", "holt", "damped", "hw")
+SLOW = ("ses", "holt", "damped", "hw", "hw-damped")
 LENGTH, FIRST, LAST, HORIZON = 144, 96, 119, 18
 
 
@@ -49,15 +49,15 @@ def report(label: str, history: pd.DataFrame, methods, jobs: int, levels) -> flo
     for method in methods:
         seconds, fits = time_method(history, method, jobs, levels)
         total += seconds
-        print(f"  {method:8s} {fits:7d} fits {seconds:8.2f} s {fits / seconds:10.1f} fits/s")
-    print(f"  total    {total:.2f} s")
+        print(f"  {method:9s} {fits:7d} fits {seconds:8.2f} s {fits / seconds:10.1f} fits/s")
+    print(f"  total     {total:.2f} s")
     return total
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--series", type=int, default=1000, help="series for naive/snaive/drift/theta")
-    parser.add_argument("--ets-series", type=int, default=20, help="series for ses/holt/damped/hw")
+    parser.add_argument("--ets-series", type=int, default=10, help="series for the ETS methods")
     parser.add_argument("--jobs", type=int, default=os.cpu_count(), help="worker processes")
     parser.add_argument("--levels", default="80,95", help="comma-separated levels; empty for points only")
     parser.add_argument("--seed", type=int, default=20260401)

@@ -35,7 +35,7 @@ REFUSED = {
     "dates_us_slash.csv": NOT_PERIOD.format("01/31/2026"),
     "dates_eu_dot.csv": NOT_PERIOD.format("31.01.2026"),
     "dates_month_name.csv": NOT_PERIOD.format("Jan 2026"),
-    "excel_serial.csv": "row 1 column period: '46053' is not a period (it looks like a spreadsheet date serial "
+    "spreadsheet_serial.csv": "row 1 column period: '46053' is not a period (it looks like a spreadsheet date serial "
                         "number; export dates as text); " + ISO_HINT,
     "year_too_big.csv": NOT_PERIOD.format("10000-01"),
     "horizon_huge.csv": "row 1 column period: target period is 95,688 periods after the origin; "
@@ -45,7 +45,7 @@ REFUSED = {
     "nan_upper.csv": "row 1 column forecast: 'NAN' is not a finite number",
     "na_r.csv": "row 1 column forecast: 'NA' is not a finite number",
     "null_word.csv": "row 1 column forecast: 'NULL' is not a finite number",
-    "excel_error.csv": "row 1 column forecast: '#N/A' is not a finite number",
+    "spreadsheet_error.csv": "row 1 column forecast: '#N/A' is not a finite number",
     "inf_spellings.csv": "row 1 column forecast: 'Infinity' is not a finite number",
     "neg_inf.csv": "row 1 column forecast: '-inf' is not a finite number",
     "huge_number.csv": "row 1 column forecast: '1e400' is not a finite number",

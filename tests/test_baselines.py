@@ -403,8 +403,8 @@ def test_bad_arguments_are_refused_with_clear_messages():
     clean = _history()
     with pytest.raises(UnknownName, match="not both"):
         backtest(clean, methods=["naive"], horizon=2, m=12, holdout=2, origins=(1, 2, 1))
-    with pytest.raises(UnknownName, match="prophet"):
-        backtest(clean, methods=["prophet"], horizon=2, m=12, holdout=2)
+    with pytest.raises(UnknownName, match="tea-leaves"):
+        backtest(clean, methods=["tea-leaves"], horizon=2, m=12, holdout=2)
     with pytest.raises(UnknownName, match="'B' has no season length"):
         backtest(clean, methods=["naive"], horizon=2, m={"A": 12}, holdout=2)
     with pytest.raises(InputError, match="missing column"):

@@ -42,7 +42,7 @@ __all__ = [
     "horizon_text",
     "known_models",
     "check_models",
-    "shorten",
+    "list_names",
 ]
 
 FindingKind = Literal["drift", "calibration", "value", "data"]
@@ -217,7 +217,7 @@ def horizon_text(horizons: Sequence[int]) -> str:
     return f"horizons {', '.join(parts)}"
 
 
-def shorten(names: Sequence[str], limit: int = 5) -> str:
+def list_names(names: Sequence[str], limit: int = 5) -> str:
     """'a, b, c' or 'a, b, c, d, e and 7 more'."""
     names = list(names)
     if len(names) <= limit:
@@ -235,5 +235,5 @@ def check_models(store: Store, names: Iterable[str]) -> None:
     known = known_models(store)
     unknown = [n for n in names if n not in known]
     if unknown:
-        listed = shorten(known, 20) if known else "none (record a run first)"
+        listed = list_names(known, 20) if known else "none (record a run first)"
         raise UnknownName(f"unknown model {', '.join(map(repr, unknown))}; known models: {listed}")

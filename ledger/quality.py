@@ -21,7 +21,7 @@ from __future__ import annotations
 import pandas as pd
 
 from .checks import demand_interval_stats, gaps
-from .findings import Finding, FlagOptions, label, shorten
+from .findings import Finding, FlagOptions, label, list_names
 from .scoring import Selection
 from .store import Store, latest_actuals_sql, live_runs_sql
 
@@ -160,7 +160,7 @@ def _overdue_findings(rows: pd.DataFrame) -> list[Finding]:
     out = []
     for (run_id, model, freq, origin), g in rows.groupby(["run_id", "model", "frequency", "origin_index"], sort=False):
         missing, upto = int(g["missing"].sum()), label(int(g["last_due"].max()), freq)
-        names = shorten(sorted(g["series"].astype(str)))
+        names = list_names(sorted(g["series"].astype(str)))
         text = (f"run {run_id} ({model} at {label(origin, freq)}): {missing} forecasts for periods up to {upto} "
                 f"came due after their series' last actual and have none (series {names})")
         out.append(_data("", str(model), label(int(g["first_due"].min()), freq), missing, text,

@@ -20,7 +20,7 @@ import pandas as pd
 
 from .errors import InputError
 
-__all__ = ["read_csv_strings", "shorten"]
+__all__ = ["read_csv_strings", "shorten", "list_names"]
 
 _BOMS = ((codecs.BOM_UTF8, "utf-8-sig"), (codecs.BOM_UTF16_LE, "utf-16"), (codecs.BOM_UTF16_BE, "utf-16"))
 _FIELDS = re.compile(r"Expected (\d+) fields in line (\d+), saw (\d+)")
@@ -31,6 +31,14 @@ def shorten(value: str, limit: int = 40) -> str:
     """A value fit to quote in a one-line message."""
     text = str(value)
     return text if len(text) <= limit else text[:limit] + f"… ({len(text):,} characters)"
+
+
+def list_names(names, limit: int = 5) -> str:
+    """'a, b, c' or 'a, b, c, d, e and 7 more': a list fit for a one-line message."""
+    names = [str(n) for n in names]
+    if len(names) <= limit:
+        return ", ".join(names)
+    return f"{', '.join(names[:limit])} and {len(names) - limit:,} more"
 
 
 def _decode(raw: bytes, source: str) -> str:
@@ -66,7 +74,7 @@ def _check_header(names: list[str], source: str) -> None:
     counts = Counter(n.strip().lstrip("\ufeff").strip().lower() for n in names)
     dupes = sorted(n for n, k in counts.items() if k > 1)
     if dupes:
-        shown = ", ".join(shorten(d) for d in dupes[:5]) + (f" and {len(dupes) - 5} more" if len(dupes) > 5 else "")
+        shown = list_names([shorten(d) for d in dupes])
         raise InputError(source, f"the header names {shown} more than once (column names are case-insensitive)")
 
 

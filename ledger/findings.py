@@ -21,6 +21,7 @@ from typing import Literal, get_args
 import pandas as pd
 
 from .checks import DRIFT_H
+from .csvread import list_names
 from .errors import UnknownName
 from .periods import index_start, period_label
 from .store import Store
@@ -215,14 +216,6 @@ def horizon_text(horizons: Sequence[int]) -> str:
             parts.append(f"{run[0]}–{run[-1]}" if len(run) > 1 else str(run[0]))
             start = i
     return f"horizons {', '.join(parts)}"
-
-
-def list_names(names: Sequence[str], limit: int = 5) -> str:
-    """'a, b, c' or 'a, b, c, d, e and 7 more'."""
-    names = list(names)
-    if len(names) <= limit:
-        return ", ".join(names)
-    return f"{', '.join(names[:limit])} and {len(names) - limit} more"
 
 
 def known_models(store: Store) -> list[str]:

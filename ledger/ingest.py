@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .csvread import read_csv_strings, shorten
+from .csvread import list_names, read_csv_strings, shorten
 from .errors import FrequencyError, InputError
 from .periods import FREQUENCIES, check_frequency, parse_label, period_index, period_label, period_start
 
@@ -265,9 +265,7 @@ def _extra_columns(frame: pd.DataFrame, known: set[str], source: str) -> list[st
 
 
 def _ignored(source: str, extras: list[str]) -> str:
-    shown = ", ".join(shorten(c) for c in extras[:10])
-    if len(extras) > 10:
-        shown += f" and {len(extras) - 10:,} more"
+    shown = list_names([shorten(c) for c in extras], 10)
     return f"{source}: ignored column{'s' if len(extras) > 1 else ''} {shown}"
 
 

@@ -71,21 +71,25 @@ class Ledger:
     def __exit__(self, *exc) -> None:
         self.close()
 
-    def _recorded_frequencies(self) -> dict[str, str]:
-        return dict(self.store.con.execute("SELECT series, frequency FROM series").fetchall())
-
     def snapshot(self, data, *, model: str | None = None, origin: str | None = None,
                  freq: str | None = None, note: str | None = None, supersede: bool = False,
-                 name: str | None = None) -> SnapshotResult:
-        """Record the forecast run(s) in a file or DataFrame (see README, Input files)."""
-        frame = read_forecasts(data, model=model, origin=origin, freq=freq,
-                               recorded=self._recorded_frequencies(), name=name)
-        return write_runs(self.store, frame, note=note, supersede=supersede)
+                 name: str | None = None, progress=None) -> SnapshotResult:
+        """Record the forecast run(s) in a file or DataFrame (see README, Input files).
 
-    def record_actuals(self, data, *, freq: str | None = None, name: str | None = None) -> ActualsResult:
-        """Record actuals; a changed value becomes a new revision, an unchanged one is skipped."""
-        frame = read_actuals(data, freq=freq, recorded=self._recorded_frequencies(), name=name)
-        return write_actuals(self.store, frame)
+        ``progress(done, total)`` is called as the input is read (bytes of a CSV file, rows otherwise).
+        """
+        with read_forecasts(self.store, data, model=model, origin=origin, freq=freq, name=name,
+                            progress=progress) as frame:
+            return write_runs(self.store, frame, note=note, supersede=supersede)
+
+    def record_actuals(self, data, *, freq: str | None = None, name: str | None = None,
+                       progress=None) -> ActualsResult:
+        """Record actuals; a changed value becomes a new revision, an unchanged one is skipped.
+
+        ``progress(done, total)`` as for :meth:`snapshot`.
+        """
+        with read_actuals(self.store, data, freq=freq, name=name, progress=progress) as frame:
+            return write_actuals(self.store, frame)
 
     def backtest(self, data, *, methods: Sequence[str], horizon: int | None = None,
                  holdout: int | None = None, origins: str | None = None,

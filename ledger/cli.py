@@ -13,6 +13,7 @@ import typer
 
 from .cli_common import (
     AsOfOpt,
+    read_share,
     Format,
     FormatOpt,
     FreqOpt,
@@ -38,8 +39,9 @@ def snapshot(
     supersede: Annotated[bool, typer.Option("--supersede", help="Replace a different run of the same model and origin (the old one is kept).")] = False,
 ) -> None:
     """Record a forecast run (or a back-fill of many runs) in the ledger."""
-    with open_ledger(ctx, create=True) as book, busy(f"Recording {file.name}"):
-        result = book.snapshot(file, model=model, origin=origin, freq=freq, note=note, supersede=supersede)
+    with open_ledger(ctx, create=True) as book, busy(f"Recording {file.name}") as say:
+        result = book.snapshot(file, model=model, origin=origin, freq=freq, note=note, supersede=supersede,
+                               progress=lambda done, total: say(read_share(done, total)))
     for w in result.warnings:
         notice(f"Warning: {w}")
     for run in result.runs:
@@ -57,8 +59,8 @@ def actuals(
     freq: FreqOpt = None,
 ) -> None:
     """Record actuals; a changed value is kept as a new revision."""
-    with open_ledger(ctx, create=True) as book, busy(f"Recording {file.name}"):
-        result = book.record_actuals(file, freq=freq)
+    with open_ledger(ctx, create=True) as book, busy(f"Recording {file.name}") as say:
+        result = book.record_actuals(file, freq=freq, progress=lambda done, total: say(read_share(done, total)))
     for w in result.warnings:
         notice(f"Warning: {w}")
     typer.echo(f"{result.new} new, {result.revised} revised, {result.unchanged} unchanged")

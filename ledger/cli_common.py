@@ -92,12 +92,22 @@ def open_ledger(ctx: typer.Context, *, create: bool = False) -> Ledger:
 
 @contextlib.contextmanager
 def busy(message: str):
-    """A spinner on stderr while slow work runs (only on a terminal)."""
+    """A spinner on stderr while slow work runs (only on a terminal).
+
+    Yields ``say(text)``, which replaces the text after the message (e.g. how much is read).
+    """
     if _stderr.is_terminal:
-        with _stderr.status(message):
-            yield
+        with _stderr.status(message) as status:
+            yield lambda text: status.update(f"{message}: {text}")
     else:
-        yield
+        yield lambda text: None
+
+
+def read_share(done: int, total: int) -> str:
+    """'37% read', then 'checking and writing': the words for an import's progress callback."""
+    if total and done >= total:
+        return "read; checking and writing"
+    return f"{100 * done / total:.0f}% read" if total else "reading"
 
 
 def notice(text: str) -> None:

@@ -48,6 +48,12 @@ class InputError(LedgerError):
         super().__init__(f"{where}: {message}")
         self.source, self.row, self.column, self.detail = source, row, column, message
 
+    def shifted(self, rows: int) -> "InputError":
+        """The same error with its row moved down by ``rows`` (for a check run on a chunk)."""
+        if self.row is None or not rows:
+            return self
+        return type(self)(self.source, self.detail, row=self.row + rows, column=self.column)
+
 
 class FrequencyError(LedgerError):
     """A period's frequency is ambiguous or contradicts what the ledger recorded."""

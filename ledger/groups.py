@@ -16,7 +16,7 @@ import pandas as pd
 
 from .csvread import shorten
 from .errors import InputError, UnknownName
-from .ingest import read_table
+from .sources import read_table
 from .store import Store
 
 __all__ = ["AttributesResult", "TOTAL_OF", "write_attributes", "attributes_sql", "known_attributes", "check_attribute",

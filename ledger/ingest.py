@@ -2,28 +2,33 @@
 
 Everything here is checked before anything is written: a file goes in whole or not at all.
 Errors name the file, the 1-based data row (header excluded) and the column.
+
+Files are read in chunks (:mod:`sources`): each chunk's rows are checked and appended to a
+staging table (:mod:`staging`); what needs the whole file (frequency, duplicates, horizons)
+is checked there in SQL. Memory stays flat whatever the file's size.
 """
 
 from __future__ import annotations
 
 import dataclasses
-from collections import Counter
 import datetime as dt
-import os
 import re
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
-from .csvread import list_names, read_csv_strings, shorten
+from .csvread import list_names, shorten
 from .errors import FrequencyError, InputError
-from .periods import FREQUENCIES, check_frequency, parse_label, period_index, period_label, period_start
+from .periods import FREQUENCIES, check_frequency, parse_label
+from .sources import Chunk, open_table
+from .staging import Stage
+from .store import Store
 
 __all__ = [
     "ForecastFrame",
     "ActualsFrame",
-    "read_table",
     "read_forecasts",
     "read_actuals",
     "format_level",
@@ -45,62 +50,47 @@ def format_level(level: float) -> str:
 
 @dataclasses.dataclass
 class ForecastFrame:
-    """A validated forecast file: one row per (model, origin, series, target period)."""
+    """A validated forecast file, staged in the ledger's connection until it is written.
+
+    The ready table holds one row per (model, origin, series, target period): row, model,
+    origin, origin_index, series, period, period_index, point, and ``lo_<i>``/``hi_<i>`` per
+    level ``levels[i]`` and ``q_<j>`` per quantile ``taus[j]`` (NULL where absent).
+    """
 
     source: str
     frequency: str
-    cells: pd.DataFrame  # model, origin, origin_index, series, period, period_index, horizon, point
-    bounds: dict[float, tuple[np.ndarray, np.ndarray]]  # level -> (lower, upper), NaN where absent
-    quantiles: dict[float, np.ndarray]  # tau -> values, NaN where absent
+    stage: Stage
+    levels: list[float]
+    taus: list[float]
     warnings: list[str]
+
+    def __enter__(self) -> "ForecastFrame":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.stage.close()
 
 
 @dataclasses.dataclass
 class ActualsFrame:
-    """A validated actuals file: one row per (series, period)."""
+    """A validated actuals file, staged: row, series, period, period_index, value."""
 
     source: str
     frequency: str
-    values: pd.DataFrame  # series, period, period_index, value
+    stage: Stage
     warnings: list[str]
 
+    def __enter__(self) -> "ActualsFrame":
+        return self
 
-def read_table(data: str | os.PathLike | pd.DataFrame, *, name: str | None = None) -> tuple[str, pd.DataFrame]:
-    """Read a CSV or Parquet file (or take a DataFrame) with lower-cased, trimmed column names."""
-    if isinstance(data, pd.DataFrame):
-        source, frame = name or "<DataFrame>", data.copy()
-    else:
-        path = Path(data)
-        source = name or path.name
-        frame = _read_file(path, source)
-    frame.columns = [str(c).strip().lstrip("\ufeff").strip().lower() for c in frame.columns]
-    counts = Counter(frame.columns)
-    dupes = sorted(c for c, k in counts.items() if k > 1)
-    if dupes:
-        raise InputError(source, f"the header names {', '.join(dupes)} more than once (column names are case-insensitive)")
-    if len(frame) == 0:
-        raise InputError(source, "the file has a header but no data rows")
-    return source, frame.reset_index(drop=True)
+    def __exit__(self, *exc) -> None:
+        self.stage.close()
 
 
-def _read_file(path: Path, source: str) -> pd.DataFrame:
-    if not path.exists():
-        raise InputError(source, f"no such file: {path}")
-    if path.is_dir():
-        raise InputError(source, f"{path} is a folder, not a file")
-    if path.suffix.lower() not in (".parquet", ".pq"):
-        return read_csv_strings(path, source)
-    try:
-        return pd.read_parquet(path)
-    except (ValueError, OSError) as exc:
-        first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-        raise InputError(source, f"cannot be read as Parquet: {first}") from None
-
-
-def _require(source: str, frame: pd.DataFrame, required: tuple[str, ...]) -> None:
-    missing = [c for c in required if c not in frame.columns]
+def _require(source: str, columns: list[str], required: tuple[str, ...]) -> None:
+    missing = [c for c in required if c not in columns]
     if missing:
-        found = ", ".join(frame.columns[:12]) + (" …" if len(frame.columns) > 12 else "")
+        found = ", ".join(columns[:12]) + (" …" if len(columns) > 12 else "")
         raise InputError(
             source,
             f"missing required column {', '.join(missing)}; expected {', '.join(required)} "
@@ -108,11 +98,24 @@ def _require(source: str, frame: pd.DataFrame, required: tuple[str, ...]) -> Non
         )
 
 
-def _as_text(col: pd.Series) -> pd.Series:
-    """Column values as stripped strings; datetimes as ISO dates, missing as ''."""
+def _as_text(col: pd.Series) -> pa.Array:
+    """Column values as stripped Arrow strings; datetimes as ISO dates, missing as ''.
+
+    Arrow strings because the checks below are then vectorised C++ (strip, compare, length,
+    cast, dictionary encoding) instead of Python loops over each cell.
+    """
     if pd.api.types.is_datetime64_any_dtype(col):
-        return col.dt.strftime("%Y-%m-%d").fillna("")
-    return col.astype("string").fillna("").str.strip()
+        col = col.dt.strftime("%Y-%m-%d")
+    try:
+        text = pa.array(col.to_numpy(dtype=object), pa.string(), from_pandas=True)
+    except (pa.ArrowTypeError, pa.ArrowInvalid):  # numbers, or text mixed with numbers
+        text = pa.array(col.astype("str").where(col.notna(), None).to_numpy(dtype=object), pa.string(),
+                        from_pandas=True)
+    return pc.utf8_trim_whitespace(pc.fill_null(text, ""))
+
+
+def _mask(array: pa.Array) -> np.ndarray:
+    return array.to_numpy(zero_copy_only=False)
 
 
 def _numbers(source: str, frame: pd.DataFrame, column: str, *, allow_blank: bool) -> np.ndarray:
@@ -124,7 +127,7 @@ def _numbers(source: str, frame: pd.DataFrame, column: str, *, allow_blank: bool
         text = None
     else:
         text = _as_text(raw)
-        blank = (text == "").to_numpy()
+        blank = _mask(pc.equal(text, ""))
         values = _parse_floats(text, blank)
     bad = ~np.isfinite(values) & ~blank
     if text is not None:
@@ -133,7 +136,7 @@ def _numbers(source: str, frame: pd.DataFrame, column: str, *, allow_blank: bool
         bad |= blank
     if bad.any():
         i = int(np.argmax(bad))
-        shown = "" if text is None else text.iloc[i]
+        shown = "" if text is None else text[i].as_py()
         what = "is empty" if blank[i] else f"{shorten(shown or values[i])!r} is not a finite number{_number_hint(shown)}"
         raise InputError(source, what, row=i + 1, column=column)
     return values
@@ -151,54 +154,69 @@ def _number_hint(text: str) -> str:
     return ""
 
 
-def _parse_floats(text: pd.Series, blank: np.ndarray) -> np.ndarray:
+def _parse_floats(text: pa.Array, blank: np.ndarray) -> np.ndarray:
     """Fast vectorised cast; only when it fails, the slower element-wise parse that marks bad cells."""
+    present = pc.if_else(pa.array(blank), pa.scalar(None, pa.string()), text)
     try:
-        return text.where(~blank, None).astype("float64").to_numpy(dtype="float64", na_value=np.nan)
-    except (ValueError, TypeError):
-        return pd.to_numeric(text.where(~blank, None), errors="coerce").to_numpy(dtype="float64", na_value=np.nan)
+        return pc.cast(present, pa.float64()).to_numpy(zero_copy_only=False)
+    except (pa.ArrowInvalid, ValueError):
+        cells = pd.Series(present.to_numpy(zero_copy_only=False), dtype=object)
+        return pd.to_numeric(cells, errors="coerce").to_numpy(dtype="float64", na_value=np.nan)
 
 
 MAX_KEY_LENGTH = 200
 MAX_HORIZON = 1000
 
 
-def _keys(source: str, frame: pd.DataFrame, column: str) -> np.ndarray:
+def _keys(source: str, frame: pd.DataFrame, column: str) -> pa.Array:
     text = _as_text(frame[column])
-    empty = (text == "").to_numpy()
+    empty = _mask(pc.equal(text, ""))
     if empty.any():
         raise InputError(source, "is empty", row=int(np.argmax(empty)) + 1, column=column)
-    long = (text.str.len() > MAX_KEY_LENGTH).to_numpy()
+    long = _mask(pc.greater(pc.utf8_length(text), MAX_KEY_LENGTH))
     if long.any():
         i = int(np.argmax(long))
-        raise InputError(source, f"{shorten(text.iloc[i])!r} is longer than {MAX_KEY_LENGTH} characters",
+        raise InputError(source, f"{shorten(text[i].as_py())!r} is longer than {MAX_KEY_LENGTH} characters",
                          row=i + 1, column=column)
-    return text.to_numpy(dtype=object)
+    return text
 
 
-def _labels(source: str, text: np.ndarray, column: str) -> tuple[dict[str, tuple[str | None, dt.date]], pd.Series]:
-    """Parse each distinct label once (files repeat few labels many times)."""
-    series = pd.Series(text, dtype=object)
-    parsed: dict[str, tuple[str | None, dt.date]] = {}
-    for label in pd.unique(series):
-        try:
-            parsed[label] = parse_label(label)
-        except ValueError as exc:
-            row = int(np.argmax((series == label).to_numpy())) + 1
-            raise InputError(source, str(exc), row=row, column=column) from None
-    return parsed, series
+class _Labels:
+    """Period labels seen in one column: each distinct label parsed once, with its first row."""
+
+    def __init__(self, column: str, parsed: dict[str, tuple[str | None, dt.date]]):
+        self.column = column
+        self.parsed = parsed          # shared by the columns of one file
+        self.first: dict[str, int] = {}
+
+    def learn(self, source: str, text: pa.Array, offset: int) -> None:
+        """Parse the labels of one chunk (rows ``offset + 1`` …) that were not seen before."""
+        encoded = text.dictionary_encode()
+        codes, uniques = encoded.indices.to_numpy(zero_copy_only=False), encoded.dictionary.to_pylist()
+        new = [i for i, label in enumerate(uniques) if label not in self.first]
+        if not new:
+            return
+        first_pos = np.unique(codes, return_index=True)[1]  # codes number labels by first appearance
+        for i in new:
+            label = uniques[i]
+            if label not in self.parsed:
+                try:
+                    self.parsed[label] = parse_label(label)
+                except ValueError as exc:  # row within the chunk: the caller shifts it
+                    raise InputError(source, str(exc), row=int(first_pos[i]) + 1, column=self.column) from None
+            self.first[label] = offset + int(first_pos[i]) + 1
+
+    def kinds(self) -> dict[str, int]:
+        """Each label kind (frequency) found in the column, with the first row holding one."""
+        out: dict[str, int] = {}
+        for label, row in self.first.items():
+            kind = self.parsed[label][0]
+            if kind is not None and row < out.get(kind, row + 1):
+                out[kind] = row
+        return out
 
 
-def _first_row(series: pd.Series, labels) -> int:
-    return int(np.argmax(series.isin(list(labels)).to_numpy())) + 1
-
-
-def _decide_frequency(
-    source: str,
-    parsed: list[tuple[str, dict, pd.Series]],
-    freq: str | None,
-    known: set[str],
-) -> str:
+def _decide_frequency(source: str, columns: list[_Labels], freq: str | None, known: set[str]) -> str:
     """The file's one frequency: from --freq, from its labels, or from the series' record."""
     said_by = None
     if freq is not None:
@@ -207,51 +225,29 @@ def _decide_frequency(
         except ValueError as exc:
             raise FrequencyError(f"--freq: {exc}") from None
         said_by = f"--freq is {freq}"
-    for column, labels, text in parsed:
-        kinds = {k for k, _ in labels.values() if k is not None}
+    for labels in columns:
+        kinds = labels.kinds()
         if len(kinds) > 1:
             second = sorted(kinds)[1]
-            row = _first_row(text, [lab for lab, (k, _) in labels.items() if k == second])
             raise InputError(source, f"mixes {' and '.join(sorted(kinds))} labels; one file holds one frequency",
-                             row=row, column=column)
+                             row=kinds[second], column=labels.column)
         if kinds:
-            kind = kinds.pop()
+            kind, row = kinds.popitem()
             if freq is not None and kind != freq:
-                row = _first_row(text, [lab for lab, (k, _) in labels.items() if k == kind])
-                raise InputError(source, f"is a {kind} label but {said_by}", row=row, column=column)
-            freq, said_by = kind, f"column {column} holds {kind} labels"
+                raise InputError(source, f"is a {kind} label but {said_by}", row=row, column=labels.column)
+            freq, said_by = kind, f"column {labels.column} holds {kind} labels"
     if freq is None and len(known) == 1:
         freq = next(iter(known))
     if freq is None:
         raise InputError(source, "holds bare dates, which fit several frequencies; say which with "
-                         f"--freq ({', '.join(FREQUENCIES)})", row=1, column=parsed[0][0])
+                         f"--freq ({', '.join(FREQUENCIES)})", row=1, column=columns[0].column)
     return freq
 
 
-def _check_recorded(source: str, keys: np.ndarray, freq: str, recorded: dict[str, str]) -> None:
-    codes, uniques = pd.factorize(keys)
-    clashing = np.array([recorded.get(k, freq) != freq for k in uniques], dtype=bool)
-    if clashing.any():
-        i = int(np.argmax(clashing[codes]))
-        key = keys[i]
-        raise FrequencyError(
-            f"{source} row {i + 1} column series: series {key!r} is recorded as {recorded[key]}, "
-            f"but this file is {freq}; a series keeps the frequency it was first recorded with"
-        )
-
-
-def _indices(labels: dict[str, tuple[str | None, dt.date]], text: pd.Series, freq: str) -> tuple[np.ndarray, np.ndarray]:
-    """Period start dates (datetime64[D]) and indices, computed once per distinct label."""
-    codes, uniques = pd.factorize(text)
-    starts = np.array([period_start(labels[u][1], freq) for u in uniques], dtype="datetime64[D]")
-    index = np.array([period_index(labels[u][1], freq) for u in uniques], dtype="int64")
-    return starts[codes], index[codes]
-
-
-def _extra_columns(frame: pd.DataFrame, known: set[str], source: str) -> list[str]:
+def _extra_columns(columns: list[str], known: set[str], source: str) -> list[str]:
     """Refuse columns that look like misspelt bounds or quantiles; warn about the rest."""
     extras = []
-    for col in frame.columns:
+    for col in columns:
         if col in known or _BOUND.match(col) or _QUANTILE.match(col):
             continue
         if m := _BOUND_LIKE.match(col):
@@ -269,9 +265,9 @@ def _ignored(source: str, extras: list[str]) -> str:
     return f"{source}: ignored column{'s' if len(extras) > 1 else ''} {shown}"
 
 
-def _bound_columns(frame: pd.DataFrame, source: str) -> dict[float, tuple[str, str]]:
+def _bound_columns(columns: list[str], source: str) -> dict[float, tuple[str, str]]:
     levels: dict[float, dict[str, str]] = {}
-    for col in frame.columns:
+    for col in columns:
         if m := _BOUND.match(col):
             level = float(m[2])
             if not 0 < level < 100:
@@ -285,9 +281,9 @@ def _bound_columns(frame: pd.DataFrame, source: str) -> dict[float, tuple[str, s
     return {level: (sides["lower"], sides["upper"]) for level, sides in sorted(levels.items())}
 
 
-def _quantile_columns(frame: pd.DataFrame, source: str) -> dict[float, str]:
+def _quantile_columns(columns: list[str], source: str) -> dict[float, str]:
     taus = {}
-    for col in frame.columns:
+    for col in columns:
         if m := _QUANTILE.match(col):
             digits = m[1]
             tau = float(digits) if "." in digits else float("0." + digits)
@@ -297,20 +293,20 @@ def _quantile_columns(frame: pd.DataFrame, source: str) -> dict[float, str]:
     return dict(sorted(taus.items()))
 
 
-def _model_origin(source, frame, model, origin) -> tuple[np.ndarray, np.ndarray]:
+def _model_origin(source, frame, model, origin) -> tuple[pa.Array, pa.Array]:
     n = len(frame)
     out = []
     for column, option in (("model", model), ("origin", origin)):
         if column in frame.columns:
             values = _keys(source, frame, column)
             if option is not None:
-                differ = values != str(option).strip()
+                differ = _mask(pc.not_equal(values, str(option).strip()))
                 if differ.any():
                     i = int(np.argmax(differ))
-                    raise InputError(source, f"{values[i]!r} differs from --{column} {option}; give one or the other",
+                    raise InputError(source, f"{values[i].as_py()!r} differs from --{column} {option}; give one or the other",
                                      row=i + 1, column=column)
         elif option is not None:
-            values = np.full(n, str(option).strip(), dtype=object)
+            values = pa.array(np.full(n, str(option).strip(), dtype=object), pa.string())
         else:
             raise InputError(source, f"has no {column} column and no --{column} was given")
         out.append(values)
@@ -318,73 +314,73 @@ def _model_origin(source, frame, model, origin) -> tuple[np.ndarray, np.ndarray]
 
 
 def read_forecasts(
+    store: Store,
     data,
     *,
     model: str | None = None,
     origin: str | None = None,
     freq: str | None = None,
-    recorded: dict[str, str] | None = None,
     name: str | None = None,
+    progress=None,
 ) -> ForecastFrame:
-    """Read and validate a forecast file. ``recorded`` maps known series to their frequency."""
-    recorded = recorded or {}
-    source, frame = read_table(data, name=name)
-    _require(source, frame, ("series", "period", "forecast"))
-    bound_cols = _bound_columns(frame, source)
-    quant_cols = _quantile_columns(frame, source)
-    extras = _extra_columns(frame, {"series", "period", "forecast", "model", "origin"}, source)
+    """Read and validate a forecast file chunk by chunk into a staging table of ``store``.
+
+    Use the result in a ``with`` block (it drops the staging table). Series the ledger already
+    knows must keep their recorded frequency. ``progress(done, total)``: see :func:`sources.open_table`.
+    """
+    table = open_table(data, name=name, progress=progress)
+    source, columns = table.source, table.columns
+    _require(source, columns, ("series", "period", "forecast"))
+    bound_cols = _bound_columns(columns, source)
+    quant_cols = _quantile_columns(columns, source)
+    extras = _extra_columns(columns, {"series", "period", "forecast", "model", "origin"}, source)
     warnings = [_ignored(source, extras)] if extras else []
+    levels, taus = list(bound_cols), list(quant_cols)
+    numbers = {"point": "DOUBLE"} | {f"{side}_{i}": "DOUBLE" for i in range(len(levels)) for side in ("lo", "hi")}
+    numbers |= {f"q_{j}": "DOUBLE" for j in range(len(taus))}
+    stage = Stage(store.con, {"model": "VARCHAR", "origin": "VARCHAR", "series": "VARCHAR", "period": "VARCHAR"}
+                  | numbers)
+    try:
+        parsed: dict[str, tuple[str | None, dt.date]] = {}
+        periods, origins = _Labels("period", parsed), _Labels("origin", parsed)
+        outside = _Outside(source)
+        for chunk in table.chunks:
+            try:
+                staged = _forecast_chunk(source, chunk, model, origin, periods, origins, bound_cols, quant_cols)
+            except InputError as exc:
+                raise exc.shifted(chunk.offset) from None
+            outside.add(chunk.offset, staged, levels)
+            stage.append(chunk.offset, staged)
+        frequency = _decide_frequency(source, [periods, origins], freq, stage.known_frequencies())
+        stage.check_recorded(source, frequency)
+        stage.resolve({label: day for label, (_, day) in parsed.items()}, frequency, ["period", "origin"])
+        stage.check_horizons(source, frequency, MAX_HORIZON)
+        stage.check_unique(source, ["model", "origin_index", "series", "period_index"], "period",
+                           "a second forecast for the same series, period, model and origin")
+    except BaseException:
+        stage.close()
+        raise
+    return ForecastFrame(source, frequency, stage, levels, taus, warnings + outside.warnings(levels))
 
-    models, origins = _model_origin(source, frame, model, origin)
+
+def _forecast_chunk(source, chunk: Chunk, model, origin, periods: _Labels, origins: _Labels,
+                    bound_cols, quant_cols) -> dict[str, np.ndarray]:
+    """One chunk's checked columns, rows numbered from 1 within the chunk."""
+    frame = chunk.frame
+    models, origin_text = _model_origin(source, frame, model, origin)
     keys = _keys(source, frame, "series")
-    period_labels, period_text = _labels(source, _keys(source, frame, "period"), "period")
-    origin_labels, origin_text = _labels(source, origins, "origin")
-    known = {recorded[k] for k in pd.unique(keys) if k in recorded}
-    frequency = _decide_frequency(source, [("period", period_labels, period_text),
-                                           ("origin", origin_labels, origin_text)], freq, known)
-    _check_recorded(source, keys, frequency, recorded)
-    period, p_index = _indices(period_labels, period_text, frequency)
-    origin_day, o_index = _indices(origin_labels, origin_text, frequency)
-
-    cells = pd.DataFrame({
-        "model": models, "origin": origin_day, "origin_index": o_index,
-        "series": keys, "period": period, "period_index": p_index,
-    })
-    cells["horizon"] = cells["period_index"] - cells["origin_index"]
-    _check_after_origin(source, cells, frequency)
-    _check_unique(source, cells, ["model", "origin_index", "series", "period_index"], "period",
-                  "a second forecast for the same series, period, model and origin")
-    cells["point"] = _numbers(source, frame, "forecast", allow_blank=False)
-    bounds = {lv: _bounds(source, frame, lo, hi) for lv, (lo, hi) in bound_cols.items()}
+    period_text = _keys(source, frame, "period")
+    periods.learn(source, period_text, chunk.offset)
+    origins.learn(source, origin_text, chunk.offset)
+    out = {"model": models, "origin": origin_text, "series": keys, "period": period_text,
+           "point": _numbers(source, frame, "forecast", allow_blank=False)}
+    for i, (lo, hi) in enumerate(bound_cols.values()):
+        out[f"lo_{i}"], out[f"hi_{i}"] = _bounds(source, frame, lo, hi)
     quantiles = {tau: _numbers(source, frame, col, allow_blank=True) for tau, col in quant_cols.items()}
     _check_quantile_order(source, quantiles, quant_cols)
-    warnings += _point_outside(source, cells["point"].to_numpy(), bounds)
-    return ForecastFrame(source, frequency, cells, bounds, quantiles, warnings)
-
-
-def _check_after_origin(source: str, cells: pd.DataFrame, freq: str) -> None:
-    far = (cells["horizon"] > MAX_HORIZON).to_numpy()
-    if far.any():
-        i = int(np.argmax(far))
-        raise InputError(source, f"target period is {cells['horizon'].iloc[i]:,} periods after the origin; "
-                         f"Backsight accepts horizons up to {MAX_HORIZON}", row=i + 1, column="period")
-    bad = (cells["horizon"] < 1).to_numpy()
-    if bad.any():
-        i = int(np.argmax(bad))
-        target, origin = (pd.Timestamp(cells[c].iloc[i]).date() for c in ("period", "origin"))
-        raise InputError(source, f"target period {period_label(target, freq)} is not after "
-                         f"the origin {period_label(origin, freq)}", row=i + 1, column="period")
-
-
-def _check_unique(source: str, frame: pd.DataFrame, keys: list[str], column: str, what: str) -> None:
-    dup = frame.duplicated(subset=keys, keep="first").to_numpy()
-    if dup.any():
-        i = int(np.argmax(dup))
-        first = frame.loc[:i - 1] if i else frame.iloc[:0]
-        mask = (first[keys] == frame.loc[i, keys]).all(axis=1).to_numpy()
-        earlier = int(np.argmax(mask)) + 1 if mask.any() else None
-        tail = f" (first at row {earlier})" if earlier else ""
-        raise InputError(source, f"{what}{tail}", row=i + 1, column=column)
+    for j, values in enumerate(quantiles.values()):
+        out[f"q_{j}"] = values
+    return out
 
 
 def _bounds(source, frame, lower_col, upper_col) -> tuple[np.ndarray, np.ndarray]:
@@ -413,32 +409,56 @@ def _check_quantile_order(source, quantiles: dict[float, np.ndarray], columns: d
                              f"{columns[b]} = {quantiles[b][i]:g}", row=i + 1, column=columns[b])
 
 
-def _point_outside(source: str, point: np.ndarray, bounds) -> list[str]:
-    out = []
-    for level, (lower, upper) in bounds.items():
-        outside = (point < lower) | (point > upper)
-        if outside.any():
-            i = int(np.argmax(outside))
-            out.append(f"{source}: {int(outside.sum())} point forecast(s) lie outside their own "
-                       f"{format_level(level)}% interval (first at row {i + 1})")
-    return out
+class _Outside:
+    """Counts point forecasts outside their own interval, level by level, across chunks."""
+
+    def __init__(self, source: str):
+        self.source = source
+        self.count: dict[int, int] = {}
+        self.first: dict[int, int] = {}
+
+    def add(self, offset: int, staged: dict[str, np.ndarray], levels: list[float]) -> None:
+        point = staged["point"]
+        for i in range(len(levels)):
+            outside = (point < staged[f"lo_{i}"]) | (point > staged[f"hi_{i}"])
+            if outside.any():
+                self.first.setdefault(i, offset + int(np.argmax(outside)) + 1)
+                self.count[i] = self.count.get(i, 0) + int(outside.sum())
+
+    def warnings(self, levels: list[float]) -> list[str]:
+        return [f"{self.source}: {self.count[i]} point forecast(s) lie outside their own "
+                f"{format_level(levels[i])}% interval (first at row {self.first[i]})" for i in sorted(self.count)]
 
 
-def read_actuals(data, *, freq: str | None = None, recorded: dict[str, str] | None = None,
-                 name: str | None = None) -> ActualsFrame:
-    """Read and validate an actuals file (series, period, actual)."""
-    recorded = recorded or {}
-    source, frame = read_table(data, name=name)
-    _require(source, frame, ("series", "period", "actual"))
-    extras = [c for c in frame.columns if c not in ("series", "period", "actual")]
+def read_actuals(store: Store, data, *, freq: str | None = None, name: str | None = None,
+                 progress=None) -> ActualsFrame:
+    """Read and validate an actuals file (series, period, actual) chunk by chunk into a staging table.
+
+    Use the result in a ``with`` block (it drops the staging table).
+    """
+    table = open_table(data, name=name, progress=progress)
+    source, columns = table.source, table.columns
+    _require(source, columns, ("series", "period", "actual"))
+    extras = [c for c in columns if c not in ("series", "period", "actual")]
     warnings = [_ignored(source, extras)] if extras else []
-    keys = _keys(source, frame, "series")
-    labels, text = _labels(source, _keys(source, frame, "period"), "period")
-    known = {recorded[k] for k in pd.unique(keys) if k in recorded}
-    frequency = _decide_frequency(source, [("period", labels, text)], freq, known)
-    _check_recorded(source, keys, frequency, recorded)
-    period, p_index = _indices(labels, text, frequency)
-    values = pd.DataFrame({"series": keys, "period": period, "period_index": p_index})
-    _check_unique(source, values, ["series", "period_index"], "period", "a second actual for the same series and period")
-    values["value"] = _numbers(source, frame, "actual", allow_blank=False)
-    return ActualsFrame(source, frequency, values, warnings)
+    stage = Stage(store.con, {"series": "VARCHAR", "period": "VARCHAR", "value": "DOUBLE"})
+    try:
+        parsed: dict[str, tuple[str | None, dt.date]] = {}
+        periods = _Labels("period", parsed)
+        for chunk in table.chunks:
+            try:
+                keys = _keys(source, chunk.frame, "series")
+                text = _keys(source, chunk.frame, "period")
+                periods.learn(source, text, chunk.offset)
+                value = _numbers(source, chunk.frame, "actual", allow_blank=False)
+            except InputError as exc:
+                raise exc.shifted(chunk.offset) from None
+            stage.append(chunk.offset, {"series": keys, "period": text, "value": value})
+        frequency = _decide_frequency(source, [periods], freq, stage.known_frequencies())
+        stage.check_recorded(source, frequency)
+        stage.resolve({label: day for label, (_, day) in parsed.items()}, frequency, ["period"])
+        stage.check_unique(source, ["series", "period_index"], "period", "a second actual for the same series and period")
+    except BaseException:
+        stage.close()
+        raise
+    return ActualsFrame(source, frequency, stage, warnings)

@@ -14,7 +14,7 @@ import pandas as pd
 
 from .ingest import format_level
 from .record import run_content_hash
-from .store import SCHEMA_VERSION, Store
+from .store import SCHEMA_VERSION, Store, bounded_memory
 
 __all__ = ["Problem", "verify"]
 
@@ -60,11 +60,12 @@ _ORPHANS = {
 def verify(store: Store, *, progress=None) -> list[Problem]:
     """Every problem found in the ledger; an empty list means the ledger is sound."""
     problems = _schema(store)
-    for check, sql in _ORPHANS.items():
-        count = store.con.execute(sql).fetchall()[0][0]
-        if count:
-            problems.append(Problem(check, f"{count} row(s)"))
-    problems += _run_hashes(store, progress)
+    with bounded_memory(store.con):
+        for check, sql in _ORPHANS.items():
+            count = store.con.execute(sql).fetchall()[0][0]
+            if count:
+                problems.append(Problem(check, f"{count} row(s)"))
+        problems += _run_hashes(store, progress)
     return problems
 
 

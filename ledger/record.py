@@ -59,7 +59,7 @@ def run_content_hash(model: str, frequency: str, origin_index: int, part: pd.Dat
     """
     part = part.sort_values(["series", "period_index"], kind="stable")
     digest = hashlib.sha256(f"backsight-run-v1\x00{model}\x00{frequency}\x00{origin_index}".encode())
-    digest.update("\x1f".join(part["series"].astype(str)).encode())
+    digest.update("\x1f".join(part["series"].astype(str).tolist()).encode())
     for col in _canonical_columns(part):
         digest.update(f"\x00{col}\x00".encode())
         digest.update(np.ascontiguousarray(part[col].to_numpy(dtype="<f8", na_value=np.nan)).tobytes())
@@ -78,35 +78,56 @@ def _canonical_columns(part: pd.DataFrame) -> list[str]:
     return cols
 
 
-def _wide(frame: ForecastFrame) -> pd.DataFrame:
-    wide = frame.cells.copy()
-    for level, (lower, upper) in frame.bounds.items():
-        wide[f"lower_{format_level(level)}"] = lower
-        wide[f"upper_{format_level(level)}"] = upper
-    for tau, values in frame.quantiles.items():
-        wide[f"q_{tau:g}"] = values
-    return wide
+def _run_parts(frame: ForecastFrame):
+    """Each run's rows in canonical order, one run at a time: (model, origin index, origin, part).
+
+    Streams the ready table sorted by run; only one run is held in memory at a time.
+    """
+    stage = frame.stage
+    names = {f"lo_{i}": f"lower_{format_level(lv)}" for i, lv in enumerate(frame.levels)}
+    names |= {f"hi_{i}": f"upper_{format_level(lv)}" for i, lv in enumerate(frame.levels)}
+    names |= {f"q_{j}": f"q_{tau:g}" for j, tau in enumerate(frame.taus)}
+    select = ", ".join(["model", "origin_index", "origin", "series", "period_index", "point", *names])
+    pieces: list[pd.DataFrame] = []
+    for batch in stage.batches(select, "model, origin_index, series, period_index"):
+        batch = batch.rename(columns=names)
+        model, o_index = batch["model"].to_numpy(dtype=object), batch["origin_index"].to_numpy()
+        starts = np.flatnonzero(np.r_[True, (model[1:] != model[:-1]) | (o_index[1:] != o_index[:-1])])
+        for a, b in zip(starts, np.r_[starts[1:], len(batch)]):
+            piece = batch.iloc[a:b]
+            if pieces and (pieces[0]["model"].iat[0], pieces[0]["origin_index"].iat[0]) != \
+                    (piece["model"].iat[0], piece["origin_index"].iat[0]):
+                yield _run_of(pieces)
+                pieces = []
+            pieces.append(piece)
+    if pieces:
+        yield _run_of(pieces)
+
+
+def _run_of(pieces: list[pd.DataFrame]):
+    part = pd.concat(pieces, ignore_index=True) if len(pieces) > 1 else pieces[0].reset_index(drop=True)
+    return str(part["model"].iat[0]), int(part["origin_index"].iat[0]), part["origin"].iat[0], part
 
 
 def write_runs(store: Store, frame: ForecastFrame, *, note: str | None = None,
                supersede: bool = False) -> SnapshotResult:
     """Record every run in ``frame`` (one per model and origin) in one transaction."""
-    wide = _wide(frame).sort_values(["model", "origin_index", "series", "period_index"], kind="stable")
+    # Hash every run before writing: the stream must finish before the connection runs anything else.
+    runs = [(model, o_index, origin, len(part), run_content_hash(model, frame.frequency, o_index, part))
+            for model, o_index, origin, part in _run_parts(frame)]
     results: list[RunResult] = []
-    new_ids: dict[tuple, str] = {}
+    new_ids: list[tuple[str, int, str]] = []
     with store.transaction() as con:
         now = store.next_timestamp()
-        _register_series(store, frame.cells["series"], frame.frequency, now)
-        for (model, o_index), part in wide.groupby(["model", "origin_index"], sort=False):
-            chash = run_content_hash(model, frame.frequency, int(o_index), part)
-            origin = pd.Timestamp(part["origin"].iloc[0]).date()
+        _register_series(store, frame.stage.ready, frame.frequency, now)
+        for model, o_index, origin, n, chash in runs:
             label = period_label(origin, frame.frequency)
             previous = con.execute(
                 "SELECT run_id, content_hash FROM runs WHERE model = ? AND frequency = ? AND origin_index = ? "
-                "ORDER BY recorded_at DESC LIMIT 1", [model, frame.frequency, int(o_index)]).fetchall()
+                "ORDER BY recorded_at DESC LIMIT 1", [model, frame.frequency, o_index]).fetchall()
             previous = previous[0] if previous else None
             if previous and previous[1] == chash:
-                results.append(RunResult(previous[0], model, label, len(part), "unchanged"))
+                results.append(RunResult(previous[0], model, label, n, "unchanged"))
                 continue
             if previous and not supersede:
                 raise RunConflict(
@@ -114,80 +135,63 @@ def write_runs(store: Store, frame: ForecastFrame, *, note: str | None = None,
                     f"(run {previous[0]}); to replace it (the old run is kept), use --supersede")
             run_id = chash[:16]
             con.execute("INSERT INTO runs VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, NULL)",
-                        [run_id, model, frame.frequency, origin, int(o_index), now, frame.source, note,
-                         chash, len(part)])
+                        [run_id, model, frame.frequency, origin, o_index, now, frame.source, note, chash, n])
             if previous:
                 con.execute("UPDATE runs SET superseded_by = ? WHERE run_id = ?", [run_id, previous[0]])
-            new_ids[(model, int(o_index))] = run_id
-            results.append(RunResult(run_id, model, label, len(part),
+            new_ids.append((model, o_index, run_id))
+            results.append(RunResult(run_id, model, label, n,
                                      f"superseded {previous[0]}" if previous else "recorded"))
         if new_ids:
-            _insert_cells(con, wide, new_ids, frame)
+            _insert_cells(con, frame, new_ids)
     return SnapshotResult(results, list(frame.warnings))
 
 
-def _insert_cells(con, wide: pd.DataFrame, new_ids: dict[tuple, str], frame: ForecastFrame) -> None:
-    """One INSERT per table for all new runs (set-based, not a loop over runs)."""
-    keys = pd.MultiIndex.from_arrays([wide["model"], wide["origin_index"].astype("int64")])
-    run_ids = pd.Series(new_ids, dtype=object).reindex(keys).to_numpy()
-    keep = pd.notna(run_ids)
-    part = wide[keep]
-    cells = pd.DataFrame({
-        "run_id": run_ids[keep].astype(str), "series": part["series"].to_numpy(),
-        "period": part["period"].to_numpy(), "period_index": part["period_index"].to_numpy("int32"),
-        "horizon": part["horizon"].to_numpy("int32"), "point": part["point"].to_numpy("float64"),
-    })
-    _insert(con, "forecasts", cells, "run_id, series, period, period_index, horizon, point")
-    ids = cells[["run_id", "series", "period_index"]]
-    for level in frame.bounds:
-        name = format_level(level)
-        b = ids.assign(level=level, lower=part[f"lower_{name}"].to_numpy(), upper=part[f"upper_{name}"].to_numpy())
-        _insert(con, "bounds", b[b["lower"].notna()], "run_id, series, period_index, level, lower, upper")
-    for tau in frame.quantiles:
-        q = ids.assign(tau=tau, value=part[f"q_{tau:g}"].to_numpy())
-        _insert(con, "quantiles", q[q["value"].notna()], "run_id, series, period_index, tau, value")
-
-
-def _insert(con, table: str, rows: pd.DataFrame, columns: str) -> None:
-    con.register("_rows", rows)
+def _insert_cells(con, frame: ForecastFrame, new_ids: list[tuple[str, int, str]]) -> None:
+    """One INSERT per table for all new runs, straight from the staging table (set-based)."""
+    con.register("_new_ids", pd.DataFrame(new_ids, columns=["model", "origin_index", "run_id"]))
     try:
-        con.execute(f"INSERT INTO {table} SELECT {columns} FROM _rows")
+        ready = f"{frame.stage.ready} r JOIN _new_ids n ON n.model = r.model AND n.origin_index = r.origin_index"
+        order = "ORDER BY r.model, r.origin_index, r.series, r.period_index"
+        con.execute(f"INSERT INTO forecasts SELECT n.run_id, r.series, r.period, r.period_index, "
+                    f"r.period_index - r.origin_index, r.point FROM {ready} {order}")
+        for i, level in enumerate(frame.levels):
+            con.execute(f"INSERT INTO bounds SELECT n.run_id, r.series, r.period_index, ?, r.lo_{i}, r.hi_{i} "
+                        f"FROM {ready} WHERE r.lo_{i} IS NOT NULL {order}", [level])
+        for j, tau in enumerate(frame.taus):
+            con.execute(f"INSERT INTO quantiles SELECT n.run_id, r.series, r.period_index, ?, r.q_{j} "
+                        f"FROM {ready} WHERE r.q_{j} IS NOT NULL {order}", [tau])
     finally:
-        con.unregister("_rows")
+        con.unregister("_new_ids")
 
 
-def _register_series(store: Store, keys: pd.Series, frequency: str, now) -> None:
-    new = pd.DataFrame({"series": pd.unique(keys.astype(str))})
-    store.con.register("_new_series", new)
+def _register_series(store: Store, table: str, frequency: str, now) -> None:
     store.con.execute(
-        "INSERT INTO series SELECT n.series, ?, ?, ? FROM _new_series n "
-        "WHERE n.series NOT IN (SELECT series FROM series)",
+        f"INSERT INTO series SELECT n.series, ?, ?, ? FROM (SELECT DISTINCT series FROM {table}) n "
+        "WHERE n.series NOT IN (SELECT series FROM series) ORDER BY n.series",
         [frequency, SEASON_LENGTHS[frequency], now])
-    store.con.unregister("_new_series")
 
 
 def write_actuals(store: Store, frame: ActualsFrame) -> ActualsResult:
     """Append new actuals and changed values (as new revisions) in one transaction."""
-    values = frame.values.assign(period_index=frame.values["period_index"].astype("int32"))
     with store.transaction() as con:
         now = store.next_timestamp()
-        _register_series(store, values["series"], frame.frequency, now)
-        con.register("_act", values)
-        con.execute("""
+        _register_series(store, frame.stage.ready, frame.frequency, now)
+        con.execute(f"""
             CREATE TEMP TABLE _act_diff AS
             SELECT n.series, n.period, n.period_index, n.value,
                    coalesce(o.revision, 0) + 1 AS revision, o.revision IS NULL AS is_new,
                    o.value IS NOT NULL AND o.value = n.value AS same
-            FROM _act n LEFT JOIN (
+            FROM {frame.stage.ready} n LEFT JOIN (
                 SELECT series, period_index, value, revision FROM (
                     SELECT *, row_number() OVER (PARTITION BY series, period_index ORDER BY revision DESC) rn
                     FROM actuals) t WHERE rn = 1
             ) o ON o.series = n.series AND o.period_index = n.period_index""")
-        con.unregister("_act")
-        new, revised, same = con.execute(
-            "SELECT count(*) FILTER (is_new), count(*) FILTER (NOT is_new AND NOT same), "
-            "count(*) FILTER (same) FROM _act_diff").fetchall()[0]
-        con.execute("INSERT INTO actuals SELECT series, period, period_index, value, revision, ?, ? "
-                    "FROM _act_diff WHERE NOT same", [now, frame.source])
-        con.execute("DROP TABLE _act_diff")
+        try:
+            new, revised, same = con.execute(
+                "SELECT count(*) FILTER (is_new), count(*) FILTER (NOT is_new AND NOT same), "
+                "count(*) FILTER (same) FROM _act_diff").fetchall()[0]
+            con.execute("INSERT INTO actuals SELECT series, period, period_index, value, revision, ?, ? "
+                        "FROM _act_diff WHERE NOT same ORDER BY series, period_index", [now, frame.source])
+        finally:
+            con.execute("DROP TABLE _act_diff")
     return ActualsResult(int(new), int(revised), int(same), list(frame.warnings))

@@ -147,10 +147,6 @@ def _origin_indices(text: str, freq: str) -> tuple[int, int, int]:
 # ledger reads
 
 
-def _recorded_frequencies(store: Store) -> dict[str, str]:
-    return dict(store.con.execute("SELECT series, frequency FROM series").fetchall())
-
-
 def _latest_history(store: Store, keys: Sequence[str]) -> tuple[pd.DataFrame, dict[str, int]]:
     """Newest revision of every actual of these series (series, t, actual) and their season lengths."""
     store.con.register("_bt_keys", pd.DataFrame({"series": pd.unique(pd.Series(keys, dtype=object))}))
@@ -251,11 +247,12 @@ def run_backtest(
     methods = list(methods)
     check_options(methods=methods, horizon=horizon, holdout=holdout, origins=origins, levels=levels,
                   jobs=jobs, fill=fill)
-    actuals = read_actuals(history, freq=freq, recorded=_recorded_frequencies(store), name=name)
-    span = None if origins is None else _origin_indices(origins, actuals.frequency)
-    steps = int(horizon) if horizon is not None else SEASON_LENGTHS[actuals.frequency]
-    written = write_actuals(store, actuals)
-    frame, seasons = _latest_history(store, actuals.values["series"].to_numpy())
+    with read_actuals(store, history, freq=freq, name=name) as actuals:
+        span = None if origins is None else _origin_indices(origins, actuals.frequency)
+        steps = int(horizon) if horizon is not None else SEASON_LENGTHS[actuals.frequency]
+        written = write_actuals(store, actuals)
+        keys = actuals.stage.series()
+    frame, seasons = _latest_history(store, keys)
     forecasts, notes = backtest(frame, methods=methods, horizon=steps, m=seasons, levels=levels,
                                 holdout=holdout, origins=span, jobs=jobs, fill=fill, progress=progress)
     notes = [_relabel(n, actuals.frequency) for n in notes]
@@ -268,8 +265,7 @@ def _snapshot(store: Store, forecasts: pd.DataFrame, freq: str, source: str, fil
               supersede: bool) -> tuple[list[RunResult], list[str]]:
     if forecasts.empty:
         return [], []
-    frame = read_forecasts(_run_frame(forecasts, freq), freq=freq, recorded=_recorded_frequencies(store),
-                           name=f"backtest:{source}")
     note = None if fill is None else f"fill={fill}"
-    result = write_runs(store, frame, note=note, supersede=supersede)
+    with read_forecasts(store, _run_frame(forecasts, freq), freq=freq, name=f"backtest:{source}") as frame:
+        result = write_runs(store, frame, note=note, supersede=supersede)
     return result.runs, list(result.warnings)

@@ -32,6 +32,7 @@ __all__ = [
     "live_runs_sql",
     "latest_actuals_sql",
     "DEFAULT_WAIT",
+    "bounded_memory",
 ]
 
 # History of the schema (bump on any change to DDL and add the step to MIGRATIONS):
@@ -179,6 +180,23 @@ def latest_actuals_sql() -> str:
             PARTITION BY series, period_index ORDER BY revision DESC) AS rn
         FROM actuals a WHERE recorded_at <= $as_of) t
     WHERE rn = 1"""
+
+
+#: DuckDB's memory limit for work that scans whole tables (imports, verify): beyond it DuckDB
+#: spills to LEDGER.tmp/ beside the file. The usual limit (most of the machine) is restored after.
+BOUNDED_MEMORY = "1GB"
+
+
+@contextlib.contextmanager
+def bounded_memory(con: duckdb.DuckDBPyConnection, limit: str = BOUNDED_MEMORY) -> Iterator[None]:
+    """Cap DuckDB's memory for the block, so a multi-GB import or check stays under 2 GB of RSS."""
+    before = con.execute("SELECT current_setting('memory_limit')").fetchone()[0]
+    con.execute(f"SET memory_limit = '{limit}'")
+    try:
+        yield
+    finally:
+        with contextlib.suppress(duckdb.Error):
+            con.execute(f"SET memory_limit = '{before}'")
 
 
 class Store:

@@ -1,0 +1,118 @@
+"""Benchmark: import a multi-GB forecast CSV and an actuals CSV; print time and peak memory.
+
+    python tests/benchmarks/bench_import.py [--gb 2.5] [--keep DIR]
+
+Writes (or, with --keep DIR, reuses) a synthetic monthly forecast file of about GB gigabytes —
+models × origins × series × 12 horizons, a point and 80% / 95% bounds per row (invented data) —
+and an actuals file for the same series, then runs ``backsight actuals`` and ``backsight
+snapshot`` on a new ledger, each in a fresh process, and prints each one's wall time, rows per
+second and peak resident memory (the child's own ru_maxrss).
+Target (issue 7): peak RSS under 2 GB however large the file, because imports stream.
+"""
+
+from __future__ import annotations
+
+import argparse
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+_CHILD = """
+import resource, sys
+from ledger.cli import app
+sys.argv[0] = "backsight"
+try:
+    app()
+finally:
+    print(round(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024), file=sys.stderr, flush=True)
+"""
+MODELS, ORIGINS, HORIZONS = 4, 24, 12
+BYTES_PER_ROW = 79  # measured on this generator's rows; used only to size the file
+
+
+def _labels(months: np.ndarray) -> np.ndarray:
+    return np.array([f"{m // 12}-{m % 12 + 1:02d}" for m in months])
+
+
+def write_files(folder: Path, gigabytes: float, seed: int = 11) -> tuple[Path, Path, int, int]:
+    """The forecast and actuals CSVs, written a run at a time so that writing stays small too."""
+    n_series = max(1, int(gigabytes * 1e9 / BYTES_PER_ROW / (MODELS * ORIGINS * HORIZONS)))
+    rng = np.random.default_rng(seed)
+    first = 12 * 2024
+    months = np.arange(first - 24, first + ORIGINS + HORIZONS)
+    labels = _labels(months)
+    keys = np.array([f"region-{i % 9}/item-{i:06d}" for i in range(n_series)])
+    level = rng.uniform(50, 500, n_series)
+    forecasts, actuals = folder / "forecasts.csv", folder / "actuals.csv"
+    rows = 0
+    with open(forecasts, "w", encoding="utf-8", newline="") as out:
+        out.write("model,origin,series,period,forecast,lower_80,upper_80,lower_95,upper_95\n")
+        for mi in range(MODELS):
+            for o in range(ORIGINS):
+                origin = first + o
+                target = origin + np.arange(1, HORIZONS + 1) - months[0]
+                point = np.repeat(level, HORIZONS) * (1 + 0.05 * rng.standard_normal(n_series * HORIZONS))
+                w80 = 0.10 * np.repeat(level, HORIZONS)
+                pd.DataFrame({
+                    "model": f"model-{mi}", "origin": labels[origin - months[0]],
+                    "series": np.repeat(keys, HORIZONS), "period": np.tile(labels[target], n_series),
+                    "forecast": point.round(2), "lower_80": (point - w80).round(2), "upper_80": (point + w80).round(2),
+                    "lower_95": (point - 1.5 * w80).round(2), "upper_95": (point + 1.5 * w80).round(2),
+                }).to_csv(out, index=False, header=False)
+                rows += n_series * HORIZONS
+    seen = months <= first + ORIGINS
+    pd.DataFrame({
+        "series": np.repeat(keys, seen.sum()), "period": np.tile(labels[seen], n_series),
+        "actual": (np.repeat(level, seen.sum()) * (1 + 0.05 * rng.standard_normal(n_series * seen.sum()))).round(2),
+    }).to_csv(actuals, index=False)
+    return forecasts, actuals, rows, n_series
+
+
+def _run(ledger: Path, *args: str) -> tuple[float, int]:
+    t = time.perf_counter()
+    child = subprocess.run([sys.executable, "-c", _CHILD, "--ledger", str(ledger), *args],
+                           stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    seconds = time.perf_counter() - t
+    if child.returncode:
+        sys.exit(f"backsight {' '.join(args)} failed:\n{child.stderr}")
+    return seconds, int(child.stderr.strip().splitlines()[-1])
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--gb", type=float, default=2.5, help="size of the forecast file (default 2.5)")
+    parser.add_argument("--keep", type=Path, default=None, help="write the files in this folder and reuse them")
+    args = parser.parse_args()
+
+    folder = args.keep or Path(tempfile.mkdtemp(prefix="bench-import-"))
+    folder.mkdir(parents=True, exist_ok=True)
+    forecasts, actuals = folder / "forecasts.csv", folder / "actuals.csv"
+    t = time.perf_counter()
+    if args.keep and forecasts.exists() and actuals.exists():
+        rows = sum(1 for _ in open(forecasts, "rb")) - 1
+        print(f"reusing {forecasts} ({rows:,} rows)")
+    else:
+        forecasts, actuals, rows, n_series = write_files(folder, args.gb)
+        print(f"wrote {rows:,} forecast rows ({n_series:,} series × {MODELS} models × {ORIGINS} origins × "
+              f"{HORIZONS} horizons) in {time.perf_counter() - t:.0f} s")
+    size = forecasts.stat().st_size
+    print(f"forecast file: {size / 1e9:.2f} GB; actuals file: {actuals.stat().st_size / 1e6:.0f} MB", flush=True)
+    ledger = folder / "bench.duckdb"
+    ledger.unlink(missing_ok=True)
+    seconds, rss = _run(ledger, "actuals", str(actuals))
+    print(f"backsight actuals: {seconds:.1f} s, peak RSS {rss:,} MB", flush=True)
+    seconds, rss = _run(ledger, "snapshot", str(forecasts))
+    print(f"backsight snapshot: {seconds:.1f} s = {rows / seconds:,.0f} rows/s ({size / 1e6 / seconds:.0f} MB/s), "
+          f"peak RSS {rss:,} MB (target: under 2,048 MB)")
+    seconds, rss = _run(ledger, "verify")
+    print(f"backsight verify: {seconds:.1f} s, peak RSS {rss:,} MB", flush=True)
+    print(f"ledger file: {ledger.stat().st_size / 1e9:.2f} GB in {folder}", flush=True)
+
+
+if __name__ == "__main__":
+    main()

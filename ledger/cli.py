@@ -49,7 +49,7 @@ def snapshot(
             notice(f"run {run.run_id} ({run.model} at {run.origin}) is already in the ledger; nothing written")
         else:
             extra = f"; {run.status}" if run.status.startswith("superseded") else ""
-            typer.echo(f"run {run.run_id}  {run.model} at {run.origin}: {run.cells} cells recorded{extra}")
+            typer.echo(f"run {run.run_id}  {run.model} at {run.origin}: {run.cells:,} cells recorded{extra}")
 
 
 @app.command()

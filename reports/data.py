@@ -88,10 +88,15 @@ class Window:
 
 
 def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | None, horizon: int,
-         incumbent: str | None, benchmark: str | None, with_findings: bool = True) -> LedgerData:
-    """Read every frame the report needs, at ``as_of`` (findings only ``with_findings``)."""
+         incumbent: str | None, benchmark: str | None, with_findings: bool = True,
+         models: list[str] | None = None) -> LedgerData:
+    """Read every frame the report needs, at ``as_of`` (findings only ``with_findings``).
+
+    ``models``: what :func:`report_models` returned for the same as-of and periods, if the
+    caller has it (finding them reads every scored cell once more).
+    """
     sel = book.selection(as_of=as_of, since=since, until=until)
-    models = _models(book, sel)
+    models = _models(book, sel) if models is None else models
     incumbent = incumbent or book.incumbent
     check_roles(models, incumbent, benchmark, as_of)
     q = dict(as_of=as_of, since=since, until=until)
@@ -107,8 +112,7 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
         by_series_model=book.scores(by=["series", "model"], **q),
         window=window,
         headline=book.scores(by=["model"], horizons=[horizon], **head_q),
-        intervals=_interval_counts(book, sel, ["model", "horizon"]),
-        headline_intervals=_interval_counts(book, book.selection(horizons=[horizon], **head_q), ["model"]),
+        **_interval_counts(book, sel, book.selection(horizons=[horizon], **head_q)),
         cells=book.cells(horizons=[horizon], **q),
         actuals=_actuals(book, sel), latest=_latest(book, sel), pending=_pending(book, sel),
         findings=_findings(book, models, as_of, horizon, incumbent, benchmark) if with_findings else None,
@@ -167,17 +171,25 @@ def _live_runs(book: Ledger, sel: Selection) -> pd.DataFrame:
         {"as_of": sel.as_of}).df()
 
 
-def _interval_counts(book: Ledger, sel: Selection, keys: list[str]) -> pd.DataFrame:
-    """n cells with bounds and misses (actual outside) per key and level."""
+def _interval_counts(book: Ledger, sel: Selection, head: Selection) -> dict[str, pd.DataFrame]:
+    """n cells with bounds and misses (actual outside): per model, horizon and level over ``sel``
+    (``intervals``), and per model and level over ``head`` (``headline_intervals``: one horizon
+    from the window's first period on, a subset of ``sel``), from one read of the cells."""
     sql, params = cells_sql(sel)
-    cols = ", ".join(f"c.{k}" for k in keys)
+    (horizon,) = head.horizons
+    since = head.params().get("since")
+    params.update(head_h=int(horizon), **({"head_since": since} if since is not None else {}))
+    in_head = "c.horizon = $head_h" + (" AND c.period >= $head_since" if since is not None else "")
     frame = book.store.con.execute(f"""
-        SELECT {cols}, b.level, count(*) AS n,
+        SELECT c.model, c.horizon, b.level, ({in_head}) AS in_head, count(*) AS n,
                sum(CASE WHEN c.actual < b.lower OR c.actual > b.upper THEN 1 ELSE 0 END) AS misses
         FROM ({sql}) c
         JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index
-        GROUP BY {cols}, b.level ORDER BY {cols}, b.level""", params).df()
-    return frame.astype({"n": "int64", "misses": "int64"})
+        GROUP BY ALL ORDER BY c.model, c.horizon, b.level""", params).df()
+    frame = frame.astype({"n": "int64", "misses": "int64"})
+    totals = frame.groupby(["model", "horizon", "level"], as_index=False, sort=True)[["n", "misses"]].sum()
+    heads = frame[frame["in_head"]].groupby(["model", "level"], as_index=False, sort=True)[["n", "misses"]].sum()
+    return {"intervals": totals, "headline_intervals": heads}
 
 
 def _actuals(book: Ledger, sel: Selection) -> pd.DataFrame:

@@ -17,7 +17,7 @@ import markupsafe
 
 from .text import SMALL_SAMPLE, bias_words, num, pct
 
-__all__ = ["CSP", "environment", "render_page"]
+__all__ = ["CSP", "environment", "findings_table", "render_page"]
 
 #: No network loads of any kind; inline styles only; images only as data: URIs.
 CSP = ("default-src 'none'; style-src 'unsafe-inline'; img-src data:; font-src 'none'; "
@@ -64,3 +64,8 @@ def environment() -> jinja2.Environment:
 def render_page(template: str, **context) -> str:
     """Render one page template with its view-model and the shared context."""
     return environment().get_template(template).render(**context)
+
+
+def findings_table(rows, caption: str) -> markupsafe.Markup:
+    """The findings table of ``macros.html`` on its own (a series page's, filled in after its chart)."""
+    return environment().get_template("macros.html").module.findings_table(rows, caption)

@@ -4,8 +4,9 @@ Pages: ``index.html`` (overview), ``findings.html``, ``series.html`` (index of s
 ``methods.html``, one ``m-….html`` per model and one ``s-….html`` per series (names from
 :mod:`reports.names`), and with ``group_by`` a ``groups.html`` (:mod:`reports.group_views`),
 linked from every page's navigation. The ledger is read once (:func:`reports.data.load`); series pages are
-built from one groupby of those frames and, for large ledgers, rendered in worker processes,
-because their charts are the expensive part.
+built from one pass over those frames and, for large ledgers, rendered in worker processes,
+because their charts are the expensive part. The findings, the longest single job, run in a
+worker meanwhile; each series page leaves a slot for its findings table, filled in here.
 """
 
 from __future__ import annotations
@@ -17,7 +18,9 @@ import os
 from collections.abc import Callable
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
+from markupsafe import Markup
 
 from ledger import Ledger, __version__
 from ledger.store import parse_as_of, utc_now
@@ -26,8 +29,8 @@ from . import charts
 from .data import LedgerData, check_roles, findings_job, load, quiet, report_models, series_count
 from .group_views import GROUPS_PAGE, GroupData, build_groups, check_group_by, count_findings, load_groups
 from .names import page_names, safe_write
-from .render import render_page
-from .series_views import SeriesInput, SeriesView, build_series, metrics_for
+from .render import findings_table, render_page
+from .series_views import Columns, SeriesInput, build_series, metrics_for
 from .views import (
     Context,
     Footer,
@@ -40,13 +43,14 @@ from .views import (
 )
 
 __all__ = [
+    "FINDINGS_SLOT",
     "FIXED_PAGES",
     "Progress",
     "ReportResult",
     "build_context",
-    "build_series_chunk",
     "render_report",
     "series_inputs",
+    "series_pages_chunk",
 ]
 
 #: progress(done, total, what): called after each page (or chunk of series pages) is written.
@@ -104,20 +108,20 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
         check_roles(models, chosen, benchmark, stamp)
         found = pool.submit(findings_job, path, stamp, models, horizon, chosen, benchmark)
         core = load(book, as_of=stamp, since=since, until=until, horizon=horizon,
-                    incumbent=incumbent, benchmark=benchmark, with_findings=False)
+                    incumbent=incumbent, benchmark=benchmark, with_findings=False, models=models)
         groups = load_groups(book, group_by, as_of=stamp, since=since, until=until) if group_by else None
         ctx = build_context(core, title or "Forecast accuracy report")
         inputs = series_inputs(core, ctx)
-        views = [pool.submit(build_series_chunk, inputs[i:i + _CHUNK]) for i in range(0, len(inputs), _CHUNK)]
-        extra = 1 if groups is not None else 0
         nav = {"groups_page": GROUPS_PAGE if groups is not None else None}
+        pages = [pool.submit(series_pages_chunk, inputs[i:i + _CHUNK], ctx, nav) for i in range(0, len(inputs), _CHUNK)]
+        extra = 1 if groups is not None else 0
         tick = _ticker(progress, 4 + extra + len(core.models) + len(inputs))
         tick("computing findings", 0)
         data = dataclasses.replace(core, findings=found.result())
         overview, rows = _write_fixed(data, ctx, out, tick, nav)
         if groups is not None:
             _write_groups(count_findings(book, groups, data.findings.flags, stamp), ctx, out, tick)
-        _write_series(views, data, ctx, out, tick, nav)
+        _write_series(pages, data, ctx, out, tick)
     return ReportResult(out_dir=out.resolve(), index=out.resolve() / "index.html",
                         pages=len(FIXED_PAGES) + extra + len(data.models) + len(inputs), model_pages=len(data.models),
                         series_pages=len(inputs), findings=len(rows), cells_scored=overview.counts["cells_scored"],
@@ -182,40 +186,55 @@ def _scope_note(data: LedgerData) -> str | None:
             "--since/--until narrow the accuracy tables and charts only.")
 
 
-def _groups(frame: pd.DataFrame) -> dict:
-    return {k: g for k, g in frame.groupby("series", sort=False)} if len(frame) else {}
+_CELL_COLUMNS = ["model", "period_index", "point", "e"]
+
+
+def _by_series(frame: pd.DataFrame, columns: list[str]) -> tuple[dict[str, Columns], Columns]:
+    """NumPy columns of ``frame`` per series, rows in frame order (one stable sort), and an empty slice."""
+    arrays = {c: frame[c].to_numpy(dtype=object if c == "model" else None) for c in columns}
+    empty = {c: v[:0] for c, v in arrays.items()}
+    if not len(frame):
+        return {}, empty
+    keys = frame["series"].to_numpy(dtype=object)
+    order = np.argsort(keys, kind="stable")
+    keys = keys[order]
+    arrays = {c: v[order] for c, v in arrays.items()}
+    starts = np.flatnonzero(np.r_[True, keys[1:] != keys[:-1]])
+    ends = np.r_[starts[1:], len(keys)]
+    return {keys[a]: {c: v[a:b] for c, v in arrays.items()} for a, b in zip(starts, ends)}, empty
 
 
 def series_inputs(data: LedgerData, ctx: Context, *, with_chart: bool = True) -> list[SeriesInput]:
-    """One :class:`SeriesInput` per series, from one groupby of each frame."""
-    acts, cells, latest = _groups(data.actuals), _groups(data.cells), _groups(data.latest)
-    metrics = _groups(data.by_series_model)
+    """One :class:`SeriesInput` per series, from one pass over each frame."""
+    acts, _ = _by_series(data.actuals, ["period_index", "value"])
+    cells, empty_cells = _by_series(data.cells, _CELL_COLUMNS)
+    latest, empty_latest = _by_series(data.latest, [c for c in data.latest.columns if c != "series"])
+    levels = [f"{lv:g}" for lv in ctx.levels]
+    metrics: dict[str, list] = {}
+    for key, row in zip(data.by_series_model["series"].tolist(), metrics_for(data.by_series_model, ctx.model_href, levels)):
+        metrics.setdefault(key, []).append(row)
     flags: dict[str, list] = {}
     if data.findings is not None:
         for f in finding_rows(data.findings.flags[data.findings.flags["series"] != ""], ctx):
             flags.setdefault(f.series, []).append(f)
-    levels = [f"{lv:g}" for lv in ctx.levels]
     prefer = _fan_preference(data)
-    empty_cells = data.cells.iloc[0:0][["model", "period_index", "point", "e"]]
     out = []
-    for r in data.series.to_dict("records"):
-        key = r["series"]
+    for key, freq, season in zip(data.series["series"].tolist(), data.series["frequency"].tolist(),
+                                 data.series["season_length"].tolist()):
         a = acts.get(key)
         out.append(SeriesInput(
-            key=key, href=ctx.series_href[key], frequency=r["frequency"], season_length=int(r["season_length"]),
+            key=key, href=ctx.series_href[key], frequency=freq, season_length=int(season),
             horizon=data.horizon, models=data.models, styles=ctx.styles, model_href=ctx.model_href,
             fan_preference=prefer,
-            actual_index=a["period_index"].to_numpy(dtype="int64") if a is not None else _EMPTY_I,
-            actual_value=a["value"].to_numpy(dtype=float) if a is not None else _EMPTY_F,
-            cells=cells[key][["model", "period_index", "point", "e"]] if key in cells else empty_cells,
-            latest=latest.get(key, data.latest.iloc[0:0]),
-            metrics=metrics_for(metrics[key], ctx.model_href, levels) if key in metrics else [],
-            findings=flags.get(key, []), with_chart=with_chart))
+            actual_index=a["period_index"].astype("int64") if a is not None else _EMPTY_I,
+            actual_value=a["value"].astype(float) if a is not None else _EMPTY_F,
+            cells=cells.get(key, empty_cells), latest=latest.get(key, empty_latest),
+            metrics=metrics.get(key, []), findings=flags.get(key, []), with_chart=with_chart))
     return out
 
 
-_EMPTY_I = pd.array([], dtype="int64").to_numpy()
-_EMPTY_F = pd.array([], dtype="float64").to_numpy()
+_EMPTY_I = np.zeros(0, dtype="int64")
+_EMPTY_F = np.zeros(0, dtype=float)
 
 
 def _fan_preference(data: LedgerData) -> list[str]:
@@ -226,9 +245,21 @@ def _fan_preference(data: LedgerData) -> list[str]:
     return list(part.sort_values(["mase", "model"])["model"][:1])
 
 
-def build_series_chunk(inputs: list[SeriesInput]) -> list[SeriesView]:
-    """Series views, charts included, for a chunk of series (runs in a worker for large sites)."""
-    return [build_series(inp) for inp in inputs]
+#: Where a series page's findings table goes. Pages are rendered in the workers, before the
+#: findings are known; this process fills the slot in. No page text can contain it: every
+#: value a template prints is escaped, so a "<" in the page comes from the templates.
+FINDINGS_SLOT = "<!-- findings table -->"
+
+
+def series_pages_chunk(inputs: list[SeriesInput], ctx: Context, nav: dict) -> list[tuple[str, str, str]]:
+    """(key, file name, HTML with :data:`FINDINGS_SLOT`) of each series page of a chunk, chart
+    included (runs in a worker for large sites, so that only the findings table is left to this process)."""
+    out = []
+    for inp in inputs:
+        view = build_series(inp)
+        out.append((view.key, view.href, render_page("series.html", v=view, ctx=ctx, page=view.href,
+                                                     findings_slot=Markup(FINDINGS_SLOT), **nav)))
+    return out
 
 
 def _worker_count(n_series: int, workers: int | None) -> int:
@@ -260,15 +291,14 @@ def _executor(n: int):
     return _Inline() if n == 0 else cf.ProcessPoolExecutor(n, mp_context=multiprocessing.get_context("spawn"))
 
 
-def _write_series(futures: list[cf.Future], data: LedgerData, ctx: Context, out: Path, tick, nav: dict) -> None:
-    """Series pages, each with its findings, in the order their chunks finish."""
+def _write_series(futures: list[cf.Future], data: LedgerData, ctx: Context, out: Path, tick) -> None:
+    """Series pages, each with its findings table, in the order their chunks finish."""
     flags: dict[str, list] = {}
     for f in finding_rows(data.findings.flags[data.findings.flags["series"] != ""], ctx):
         flags.setdefault(f.series, []).append(f)
-    pending = {f: None for f in futures}
-    for fut in cf.as_completed(pending):
-        views = fut.result()
-        for view in views:
-            view = dataclasses.replace(view, findings=flags.get(view.key, []))
-            safe_write(out, view.href, render_page("series.html", v=view, ctx=ctx, page=view.href, **nav))
-        tick(f"series {views[-1].key}", len(views))
+    for fut in cf.as_completed(futures):
+        pages = fut.result()
+        for key, name, html in pages:
+            table = findings_table(flags.get(key, []), f"Findings for {key}")
+            safe_write(out, name, html.replace(FINDINGS_SLOT, table, 1))
+        tick(f"series {pages[-1][0]}", len(pages))

@@ -375,6 +375,23 @@ def test_cli_report_prints_the_index_path_and_renders_reproducibly(runner, tiny,
         assert stamp.sub("", a) == stamp.sub("", b), name
 
 
+def test_worker_processes_write_the_same_pages(pages, ledger_file, tmp_path):
+    """Large reports render series pages in worker processes and fill in their findings tables
+    afterwards; the pages equal those written in one process (the module's site)."""
+    from reports.site import FINDINGS_SLOT
+
+    result = render_report(ledger_file, tmp_path / "pool", as_of=AS_OF, title="Invented review <i>Q4</i>",
+                           incumbent=INCUMBENT, benchmark="snaive", workers=2)
+    names = sorted(p.name for p in result.out_dir.iterdir())
+    assert names == sorted(pages)
+    stamp = re.compile(r"<dt>Generated</dt><dd>[^<]*</dd>")
+    for name in names:
+        text = (result.out_dir / name).read_text(encoding="utf-8")
+        assert FINDINGS_SLOT not in text
+        assert stamp.sub("", text) == stamp.sub("", pages[name]), name
+    assert "<td>drift</td>" in _series_page(pages, "North/Hoses"), "a series page shows its findings"
+
+
 def test_cli_report_refuses_an_unknown_incumbent(runner, tiny, tmp_path):
     from ledger import cli_report  # noqa: F401
     from ledger.cli_common import app

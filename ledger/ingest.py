@@ -48,8 +48,20 @@ def format_level(level: float) -> str:
     return f"{level:g}"
 
 
+class _Staged:
+    """A ``with`` block over a validated input drops its staging table at the end."""
+
+    stage: Stage
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.stage.close()
+
+
 @dataclasses.dataclass
-class ForecastFrame:
+class ForecastFrame(_Staged):
     """A validated forecast file, staged in the ledger's connection until it is written.
 
     The ready table holds one row per (model, origin, series, target period): row, model,
@@ -64,27 +76,15 @@ class ForecastFrame:
     taus: list[float]
     warnings: list[str]
 
-    def __enter__(self) -> "ForecastFrame":
-        return self
-
-    def __exit__(self, *exc) -> None:
-        self.stage.close()
-
 
 @dataclasses.dataclass
-class ActualsFrame:
+class ActualsFrame(_Staged):
     """A validated actuals file, staged: row, series, period, period_index, value."""
 
     source: str
     frequency: str
     stage: Stage
     warnings: list[str]
-
-    def __enter__(self) -> "ActualsFrame":
-        return self
-
-    def __exit__(self, *exc) -> None:
-        self.stage.close()
 
 
 def _require(source: str, columns: list[str], required: tuple[str, ...]) -> None:

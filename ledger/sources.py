@@ -8,6 +8,7 @@ and trimmed once, from the header, and checked for duplicates.
 from __future__ import annotations
 
 import dataclasses
+import itertools
 import os
 from collections import Counter
 from collections.abc import Iterator
@@ -65,17 +66,12 @@ def open_table(data: str | os.PathLike | pd.DataFrame, *, name: str | None = Non
 
 def _chunks(first: pd.DataFrame, rest: Iterator[pd.DataFrame], columns: list[str]) -> Iterator[Chunk]:
     offset = 0
-    for frame in _prepend(first, rest):
+    for frame in itertools.chain([first], rest):
         if len(frame) == 0:
             continue
         frame = frame.set_axis(columns, axis=1).reset_index(drop=True)
         yield Chunk(offset, frame)
         offset += len(frame)
-
-
-def _prepend(first, rest):
-    yield first
-    yield from rest
 
 
 def _frame_slices(data: pd.DataFrame, rows: int, report) -> Iterator[pd.DataFrame]:

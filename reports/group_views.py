@@ -185,13 +185,18 @@ def _anchors(data: GroupData) -> dict[str, str]:
     return {g: f"g-{i}" for i, g in enumerate(ordered)}
 
 
+def _row_keys(r: dict, data: GroupData, ctx: Context, anchors: dict[str, str]) -> dict[str, str]:
+    """Group, its section anchor, model and its page link: the first fields of every group row."""
+    group, model = _label(r[data.attribute]), str(r["model"])
+    return {"group": group, "anchor": anchors.get(group, ""), "model": model,
+            "model_href": ctx.model_href.get(model, "")}
+
+
 def _metric_rows(data: GroupData, ctx: Context, anchors: dict[str, str]) -> list[GroupMetric]:
     out = []
     for r in data.scores.to_dict("records"):
-        group, model = _label(r[data.attribute]), str(r["model"])
         out.append(GroupMetric(
-            group=group, anchor=anchors.get(group, ""), model=model, model_href=ctx.model_href.get(model, ""),
-            n=int(r["n"]), mape=_f(r["mape"]), mase=_f(r["mase"]), wape=_f(r["wape"]),
+            **_row_keys(r, data, ctx, anchors), n=int(r["n"]), mape=_f(r["mape"]), mase=_f(r["mase"]), wape=_f(r["wape"]),
             bias_pct=_f(r["bias_pct"]), bias_text=bias_words(_f(r["bias_pct"])), wmape=_f(r["wmape"]),
             wmase=_f(r["wmase"]), wbias_pct=_f(r["wbias_pct"]), wbias_text=bias_words(_f(r["wbias_pct"])),
             weight_total=_f(r["weight_total"]), small=is_small(int(r["n"]))))
@@ -201,10 +206,8 @@ def _metric_rows(data: GroupData, ctx: Context, anchors: dict[str, str]) -> list
 def _total_rows(data: GroupData, ctx: Context, anchors: dict[str, str]) -> list[TotalRow]:
     out = []
     for r in data.totals.to_dict("records"):
-        group, model = _label(r[data.attribute]), str(r["model"])
         out.append(TotalRow(
-            group=group, anchor=anchors.get(group, ""), model=model, model_href=ctx.model_href.get(model, ""),
-            forecast_of=str(r["forecast_of"]), n=int(r["n"]), mape=_f(r["mape"]), mase=_f(r["mase"]),
+            **_row_keys(r, data, ctx, anchors), forecast_of=str(r["forecast_of"]), n=int(r["n"]), mape=_f(r["mape"]), mase=_f(r["mase"]),
             wape=_f(r["wape"]), bias_pct=_f(r["bias_pct"]), bias_text=bias_words(_f(r["bias_pct"])),
             n_left_out=int(r["n_left_out"]), small=is_small(int(r["n"]))))
     return out

@@ -16,7 +16,7 @@ How the forecasts are made (each origin uses only the actuals known when its run
   are too narrow by the factors 0.78 and 0.77.
 * ``challenger-damped`` -- damped additive Holt-Winters, ETS(A,Ad,A), every weight (alpha, beta,
   gamma, phi) re-chosen at every origin from a wide grid; its own normal intervals.
-* ``seasonal-naive`` -- ``ledger.baselines.forecast(method="snaive")`` with its standard intervals.
+* ``seasonal-naive`` -- ``ledger.methods.forecasters.forecast(method="snaive")`` with its standard intervals.
 * ``planner-override`` -- the incumbent's point forecast raised by a noisy 8% (mean 0.08, sd 0.05
   per cell), rounded to whole units; no intervals.
 
@@ -49,7 +49,7 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # this checkout's ledger package
-from ledger.baselines import forecast as reference_forecast
+from ledger.methods.forecasters import forecast as reference_forecast
 
 SEED = 20260101
 SCENARIO = "Fernhollow Garden Supply (invented)"
@@ -381,7 +381,7 @@ def _vintages(truth) -> list[tuple[set[int], np.ndarray]]:
 
 
 def snaive_runs(truth) -> dict[int, dict[str, np.ndarray]]:
-    """Seasonal naive with its standard intervals (ledger.baselines, FPP3 Table 5.2)."""
+    """Seasonal naive with its standard intervals (ledger.methods.forecasters, FPP3 Table 5.2)."""
     out = {}
     for t in range(FIRST_ORIGIN, LAST_ORIGIN + 1):
         data = known_at(truth, t)

@@ -14,29 +14,29 @@ from collections.abc import Sequence
 
 import pandas as pd
 
-from .findings import KINDS, check_models
-from .groups import AttributesResult, parse_where, series_attributes, write_attributes
-from .ingest import read_actuals, read_forecasts
+from .findings.base import KINDS, check_models
+from .scoring.attributes import AttributesResult, parse_where, series_attributes, write_attributes
+from .intake.ingest import read_actuals, read_forecasts
 from .integrity import Problem, verify
 from .periods import period_label
-from .record import ActualsResult, SnapshotResult, write_actuals, write_runs
-from .scoring import Selection, interval_cells, score_cells, scores
+from .intake.record import ActualsResult, SnapshotResult, write_actuals, write_runs
+from .scoring.cells import Selection, interval_cells, score_cells, scores
 from .store import Store, parse_as_of
-from .totals import totals
+from .scoring.totals import totals
 from .transfer import ExportFormat, export_ledger, import_ledger
-from .weighted import weighted_scores
+from .scoring.weighted import weighted_scores
 
 __all__ = ["Ledger", "DEFAULT_PATH"]
 
 
 def _flags():
     # Imported on first use: the findings pull in scipy.stats, which would slow every command's start.
-    from . import flags
+    from .findings import flags
     return flags
 
 
 def _standings():
-    from . import standings
+    from .findings import standings
     return standings
 
 DEFAULT_PATH = "backsight.duckdb"
@@ -99,10 +99,10 @@ class Ledger:
         """Record a history file as actuals and snapshot reference backtests as ``ref-<method>`` runs.
 
         Exactly one of ``holdout=K`` or ``origins="FIRST:LAST[:STEP]"``; see
-        :func:`ledger.reference.run_backtest` for every option. Returns a
-        :class:`ledger.reference.BacktestResult`.
+        :func:`ledger.methods.recorded.run_backtest` for every option. Returns a
+        :class:`ledger.methods.recorded.BacktestResult`.
         """
-        from .reference import run_backtest
+        from .methods.recorded import run_backtest
 
         return run_backtest(self, data, methods=methods, horizon=horizon, holdout=holdout, origins=origins,
                             levels=levels, freq=freq, jobs=jobs, fill=fill, progress=progress, name=name,
@@ -121,7 +121,7 @@ class Ledger:
 
         ``by`` takes series, model, horizon, origin, period and any attribute name; ``where``
         takes "ATTR=VALUE" filters; ``weight`` ("volume" or a numeric attribute) adds the
-        weighted columns of :mod:`ledger.weighted`.
+        weighted columns of :mod:`ledger.scoring.weighted`.
         """
         sel = self.selection(as_of=as_of, models=models, series=series, horizons=horizons,
                              since=since, until=until)
@@ -137,7 +137,7 @@ class Ledger:
         return totals(self.store, sel, attribute)
 
     def record_attributes(self, data, *, name: str | None = None, total_of: str | None = None) -> AttributesResult:
-        """Record series attributes (a changed value becomes a new version); see :mod:`ledger.groups`."""
+        """Record series attributes (a changed value becomes a new version); see :mod:`ledger.scoring.attributes`."""
         return write_attributes(self.store, data, name=name, total_of=total_of)
 
     def attributes(self, *, as_of=None) -> pd.DataFrame:
@@ -180,7 +180,7 @@ class Ledger:
 
         Columns: kind, series, model, horizon, level, since, figure, evidence, check, severity,
         zone, horizons, raised, measure, p_value, n. ``thresholds``: the fields of
-        :class:`ledger.findings.FlagOptions` (e.g. ``drift_h=5.5``, ``fdr=0.05``,
+        :class:`ledger.findings.base.FlagOptions` (e.g. ``drift_h=5.5``, ``fdr=0.05``,
         ``benchmark="ref-snaive"``), each with its stated default.
         """
         return _flags().flags(self.store, self.selection(as_of=as_of, models=models), kinds=kinds, **thresholds)

@@ -12,8 +12,8 @@ import dataclasses
 
 import pandas as pd
 
-from .ingest import format_level
-from .record import run_content_hash
+from .intake.ingest import format_level
+from .intake.record import run_content_hash
 from .store import SCHEMA_VERSION, Store, bounded_memory
 
 __all__ = ["Problem", "verify"]
@@ -92,7 +92,7 @@ def _run_hashes(store: Store, progress) -> list[Problem]:
 
 
 def run_rows(store: Store, run_id: str) -> pd.DataFrame:
-    """A run's rows in the wide form that :func:`ledger.record.run_content_hash` reads."""
+    """A run's rows in the wide form that :func:`ledger.intake.record.run_content_hash` reads."""
     con = store.con
     part = con.execute("SELECT series, period_index, point FROM forecasts WHERE run_id = ?", [run_id]).df()
     bounds = con.execute("SELECT series, period_index, level, lower, upper FROM bounds WHERE run_id = ?", [run_id]).df()

@@ -2,7 +2,7 @@
 
 Most figures come from the public :class:`ledger.Ledger` API. Three reads have no API method
 yet and are done here with the ledger's own as-of views (``ledger.store.live_runs_sql``,
-``latest_actuals_sql``) and cell query (``ledger.scoring.cells_sql``): the actuals history of
+``latest_actuals_sql``) and cell query (``ledger.scoring.cells.cells_sql``): the actuals history of
 every series, the latest run's forecasts and bounds (which need no actual), and interval miss
 counts per model, horizon and level (for the binomial tolerance of calibration charts).
 
@@ -21,9 +21,9 @@ import pandas as pd
 from ledger import Ledger
 from ledger.errors import UnknownName
 from ledger.periods import SEASON_LENGTHS, index_start, period_label
-from ledger import standings as _standings
-from ledger.flags import flags as _flag_cells
-from ledger.scoring import Selection, cells_sql, score_cells
+from ledger.findings import standings as _standings
+from ledger.findings.flags import flags as _flag_cells
+from ledger.scoring.cells import Selection, cells_sql, score_cells
 from ledger.store import latest_actuals_sql, live_runs_sql
 
 __all__ = [

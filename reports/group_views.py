@@ -3,7 +3,7 @@
 Data come from the ledger's public group API at the report's as-of: ``Ledger.scores(by=[ATTR,
 "model"], weight="volume")`` (unweighted and volume-weighted figures side by side),
 ``Ledger.totals(ATTR)`` (the groups' totals), ``Ledger.attributes()`` (which series belong to
-which group) and the findings counted per group and kind by :func:`ledger.flags.count_by_group`
+which group) and the findings counted per group and kind by :func:`ledger.findings.flags.count_by_group`
 (what ``Ledger.flag_counts`` calls) on the findings the report already computed, so the checks
 run once. A series without the attribute is in the group "(none)", as in ``flags --by``.
 
@@ -19,9 +19,9 @@ import math
 import pandas as pd
 
 from ledger import Ledger
-from ledger.flags import count_by_group
-from ledger.groups import check_attribute
-from ledger.totals import INTERVAL_NOTE
+from ledger.findings.flags import count_by_group
+from ledger.scoring.attributes import check_attribute
+from ledger.scoring.totals import INTERVAL_NOTE
 
 from .charts import Chart
 from .group_charts import MAX_GROUPS_DRAWN, group_bars_chart
@@ -44,7 +44,7 @@ __all__ = [
 ]
 
 GROUPS_PAGE = "groups.html"
-NO_GROUP = "(none)"          # the label ledger.flags.count_by_group gives series without the attribute
+NO_GROUP = "(none)"          # the label ledger.findings.flags.count_by_group gives series without the attribute
 
 
 @dataclasses.dataclass(frozen=True)

@@ -18,7 +18,7 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
-from ledger.checks import demand_interval_stats, gaps
+from ledger.stats.demand import demand_interval_stats, gaps
 from ledger.periods import index_start, period_label
 
 from . import charts

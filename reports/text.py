@@ -72,7 +72,7 @@ def tolerance_band(n: int, level: float, *, watch: float = 0.95) -> tuple[float,
     """Observed coverage (%) that stays within tolerance for n cells at nominal level L.
 
     With miss rate p = 1 − L/100 and X ~ Binomial(n, p) misses, x misses are within tolerance
-    when ``1 − watch`` < P(X ≤ x) < ``watch`` (the same rule as ``ledger.calibration.coverage_zone``,
+    when ``1 − watch`` < P(X ≤ x) < ``watch`` (the same rule as ``ledger.stats.intervals.coverage_zone``,
     after the Basel Committee (1996) backtesting zones). Returns the coverage range
     (100·(1 − x_hi/n), 100·(1 − x_lo/n)); (nan, nan) when n = 0.
     """

@@ -14,7 +14,7 @@ from collections.abc import Sequence
 
 import pandas as pd
 
-from ledger.calibration import coverage_zone
+from ledger.stats.intervals import coverage_zone
 
 from . import charts
 from .data import LedgerData
@@ -236,7 +236,7 @@ def levels_of(frame: pd.DataFrame) -> list[float]:
 
 
 def coverage_cell(level: float, n: int, misses: int) -> CoverageCell:
-    """Observed coverage and its tolerance zone (ledger.calibration.coverage_zone)."""
+    """Observed coverage and its tolerance zone (ledger.stats.intervals.coverage_zone)."""
     if n == 0:
         return CoverageCell(level, math.nan, 0, 0, 0.0, "as stated", "no cells", True)
     z = coverage_zone(int(misses), int(n), p=1 - level / 100)

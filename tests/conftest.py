@@ -1,12 +1,10 @@
-"""Shared fixtures: a fresh ledger path, the CLI runner, and table hashes."""
+"""Shared fixtures: a fresh ledger path, the CLI runner, the demo built once (helpers live in tests/helpers.py)."""
 
 from __future__ import annotations
 
 import pytest
 from typer.testing import CliRunner
 
-from ledger import Ledger
-from ledger.store import TABLES
 
 
 @pytest.fixture
@@ -17,17 +15,6 @@ def ledger_path(tmp_path):
 @pytest.fixture
 def runner():
     return CliRunner()
-
-
-def table_hashes(path) -> dict[str, str]:
-    """Content hash of every table (meta excluded only for its created_at row, which never changes)."""
-    with Ledger.open(path, create=False) as book:
-        return {t: book.store.table_hash(t) for t in TABLES}
-
-
-def write(path, text: str):
-    path.write_text(text, encoding="utf-8")
-    return path
 
 
 @pytest.fixture(scope="session")

@@ -17,7 +17,7 @@ import time
 import numpy as np
 import pandas as pd
 
-from ledger.backtest import backtest
+from ledger.methods.rolling import backtest
 
 FAST = ("naive", "snaive", "drift", "theta")
 SLOW = ("ses", "holt", "damped", "hw", "hw-damped")

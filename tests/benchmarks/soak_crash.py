@@ -19,7 +19,7 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parents[1]))
 
-from tests.test_crash_safety import check_after, run_trial, snapshot_state  # noqa: E402
+from tests.core.test_crash_safety import check_after, run_trial, snapshot_state  # noqa: E402
 
 
 def main() -> None:

@@ -1,0 +1,55 @@
+"""CLI command ``report``: render the static HTML report (a thin shell over :func:`reports.render_report`).
+
+``reports`` is imported inside the command, so the ledger package never imports it at load
+time (the dependency runs one way: reports imports ledger).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+from rich.console import Console
+from rich.progress import (
+    BarColumn,
+    MofNCompleteColumn,
+    Progress,
+    TextColumn,
+    TimeElapsedColumn,
+)
+
+from .common import AsOfOpt, app
+
+__all__ = ["report"]
+
+
+@app.command()
+def report(
+    ctx: typer.Context,
+    out_dir: Annotated[Path, typer.Argument(metavar="OUTDIR", help="Folder for the site (created if missing); index.html is its entry page.")],
+    as_of: AsOfOpt = None,
+    since: Annotated[str | None, typer.Option("--since", help="First target period in the accuracy tables and charts.")] = None,
+    until: Annotated[str | None, typer.Option("--until", help="Last target period in the accuracy tables and charts.")] = None,
+    title: Annotated[str | None, typer.Option("--title", help="Title of the report.")] = None,
+    incumbent: Annotated[str | None, typer.Option("--incumbent", help="The model in use; enables replacement advice (default: the ledger's stored incumbent).")] = None,
+    benchmark: Annotated[str | None, typer.Option("--benchmark", help="Benchmark model for the value-added findings.")] = None,
+    horizon: Annotated[int, typer.Option("--horizon", min=1, help="Horizon of the headline sentences, standings and series charts.")] = 1,
+    group_by: Annotated[str | None, typer.Option("--group-by", metavar="ATTR", help="Add groups.html: accuracy (unweighted and volume-weighted), group totals, findings and series per value of this series attribute (e.g. region).")] = None,
+) -> None:
+    """Render the static HTML report (overview, findings, a page per model and per series, methods; with --group-by a groups page) into OUTDIR."""
+    from reports import render_report
+
+    console = Console(stderr=True, highlight=False)
+    columns = (TextColumn("Rendering"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
+               TextColumn("{task.description}", markup=False))
+    with Progress(*columns, console=console, transient=True, disable=not console.is_terminal) as bar:
+        task = bar.add_task("", total=None)
+
+        def progress(done: int, total: int, what: str) -> None:
+            bar.update(task, completed=done, total=total, description=what[:40])
+
+        result = render_report(ctx.obj["ledger"], out_dir, as_of=as_of, since=since, until=until, title=title,
+                               incumbent=incumbent, benchmark=benchmark, horizon=horizon, progress=progress,
+                               group_by=group_by)
+    typer.echo(str(result.index))

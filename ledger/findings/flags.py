@@ -1,0 +1,100 @@
+"""``flags``: run the drift, calibration, value-added and data-quality checks over a ledger.
+
+One call pulls the scored cells once (set-based SQL in :mod:`ledger.scoring.cells`), runs the
+per-group statistics of :mod:`ledger.findings.drift`, :mod:`ledger.findings.calibration`, :mod:`ledger.findings.value` and
+:mod:`ledger.findings.data`, and returns one row per finding (columns
+:data:`ledger.findings.base.FINDING_COLUMNS`). A model filter restricts the findings to those
+models; series-level data findings (model '') are kept for the series those models forecast.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Sequence
+
+import pandas as pd
+
+from .calibration import calibration_findings
+from .drift import drift_findings
+from ..errors import UnknownName
+from .base import (
+    KINDS,
+    Finding,
+    FlagOptions,
+    check_models,
+    findings_frame,
+    known_models,
+)
+from .data import data_findings, series_models
+from ..scoring.cells import Selection, interval_misses, score_cells
+from ..scoring.attributes import check_attribute, series_attributes
+from ..store import Store
+from .value import value_findings
+
+__all__ = ["flags", "count_by_group"]
+
+
+def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: pd.DataFrame | None = None,
+          **thresholds) -> pd.DataFrame:
+    """Findings of the given kinds for the models in ``sel`` (all when empty), at ``sel.as_of``.
+
+    ``thresholds`` are the fields of :class:`ledger.findings.base.FlagOptions`, each with its default.
+    ``cells``: the scored cells of ``sel`` for every model (``score_cells`` of ``sel`` with no
+    model filter) when the caller already holds them; None reads them here.
+    """
+    kinds = _check_kinds(kinds)
+    options = FlagOptions.from_keywords(**thresholds)
+    check_models(store, list(sel.models) + ([options.benchmark] if options.benchmark else []))
+    everyone = dataclasses.replace(sel, models=())
+    seasons, freqs = _series_facts(store)
+    found: list[Finding] = []
+    if cells is None and {"drift", "value"} & set(kinds):
+        cells = score_cells(store, everyone)
+    subjects = list(sel.models) or known_models(store)
+    if "drift" in kinds:
+        found += drift_findings(cells[cells["model"].isin(subjects)], seasons, options)
+    if "calibration" in kinds:
+        found += calibration_findings(interval_misses(store, sel), freqs, options)
+    if "value" in kinds:
+        found += value_findings(cells, subjects, known_models(store), options)
+    if "data" in kinds:
+        found += _data_for(store, sel, options)
+    return findings_frame(found)
+
+
+def _check_kinds(kinds: Sequence[str]) -> list[str]:
+    chosen = [str(k).strip().lower() for k in kinds] or list(KINDS)
+    unknown = [k for k in chosen if k not in KINDS]
+    if unknown:
+        raise UnknownName(f"flags: unknown kind {', '.join(unknown)}; use {', '.join(KINDS)}")
+    return chosen
+
+
+def _series_facts(store: Store) -> tuple[dict[str, int], dict[str, str]]:
+    rows = store.con.execute("SELECT series, season_length, frequency FROM series").fetchall()
+    return {s: int(m) for s, m, _ in rows}, {s: f for s, _, f in rows}
+
+
+def _data_for(store: Store, sel: Selection, options: FlagOptions) -> list[Finding]:
+    found = data_findings(store, sel, options)
+    if not sel.models:
+        return found
+    pairs = series_models(store, sel)
+    wanted = set(pairs.loc[pairs["model"].isin(sel.models), "series"])
+    return [f for f in found if f.model in sel.models or (not f.model and f.series in wanted)]
+
+
+def count_by_group(store: Store, frame: pd.DataFrame, attribute: str, as_of) -> pd.DataFrame:
+    """Findings counted per value of a series attribute and kind (notes left out).
+
+    A model-level finding (no series) is counted under "(all series)"; a series without that
+    attribute under "(none)".
+    """
+    check_attribute(store, as_of, attribute, option="flags --by")
+    attrs = series_attributes(store, as_of)
+    groups = dict(zip(attrs["series"], attrs[attribute])) if attribute in attrs.columns else {}
+    found = frame[frame["severity"] != "note"]
+    group = [("(all series)" if not s else groups.get(s) or "(none)") for s in found["series"]]
+    counts = (found.assign(**{attribute: group}).groupby([attribute, "kind"]).size()
+              .rename("findings").reset_index())
+    return counts.sort_values([attribute, "kind"], kind="stable").reset_index(drop=True)

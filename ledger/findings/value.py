@@ -1,0 +1,146 @@
+"""Value-added findings: is a model more accurate than a simple benchmark?
+
+Value added of a model over the benchmark (seasonal naive by default), on common cells of the
+recent window (the last ``recent`` common evaluation periods, default 12):
+VA = 1 - MAE_model / MAE_benchmark. Positive: the model's errors are smaller; VA <= 0: the
+model adds no value, and that is a finding. Orientation: higher is better.
+
+Significance statement: Diebold-Mariano with the Harvey-Leybourne-Newbold correction
+(:func:`ledger.stats.comparison.dm_hln`) on the per-period mean of absolute scaled loss differentials
+(benchmark minus model; positive: the model more accurate), pooled over horizons. The pooled
+series carries overlap up to the longest horizon H, but a 12-period window cannot support
+H - 1 autocovariances, so the test uses h = min(H, max(1, floor(n / 3))) with n periods; a
+bandwidth cap, common practice, no source.
+
+Per series: noise alone puts many series of a good model at or below zero over 12 periods, so
+a series-level finding needs VA <= 0 *and* the benchmark significantly more accurate on that
+series (one-sided DM-HLN, Benjamini-Hochberg across the model's series, level ``value_alpha``).
+
+Default benchmark: a model named "ref-snaive" (the seasonal-naive reference that Backsight's
+backtests record), else the first model, alphabetically, whose name contains "snaive",
+"seasonal-naive" or "seasonal_naive" (case-insensitive). With none, the check is skipped with a
+note.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+import numpy as np
+import pandas as pd
+
+from ..stats.intervals import benjamini_hochberg
+from ..stats.comparison import DMResult, dm_hln
+from .base import Finding, FlagOptions, label, num, pval
+from .standings import paired, period_differential
+
+__all__ = ["default_benchmark", "value_findings", "BENCHMARK_HINTS"]
+
+BENCHMARK_HINTS = ("snaive", "seasonal-naive", "seasonal_naive")
+
+
+def default_benchmark(models: Sequence[str]) -> str | None:
+    """The benchmark used when none is given: see the module docstring."""
+    exact = [m for m in models if m.lower() == "ref-snaive"]
+    if exact:
+        return exact[0]
+    hits = sorted(m for m in models if any(h in m.lower() for h in BENCHMARK_HINTS))
+    return hits[0] if hits else None
+
+
+def value_findings(cells: pd.DataFrame, subjects: Sequence[str], known: Sequence[str],
+                   options: FlagOptions) -> list[Finding]:
+    """Value-added findings for each model in ``subjects`` against the benchmark."""
+    if cells.empty:
+        return []
+    bench = options.benchmark or default_benchmark(known)
+    if bench is None:
+        return [_no_benchmark_note()]
+    out: list[Finding] = []
+    for model in subjects:
+        if model == bench or not (cells["model"] == model).any():
+            continue
+        pairs = paired(cells, bench, model)
+        if pairs.empty:
+            out.append(_no_common_note(model, bench))
+            continue
+        periods = np.sort(pairs["period_index"].unique())
+        recent = pairs[pairs["period_index"].isin(periods[-options.recent:])]
+        out += _model_value(recent, model, bench, options)
+        out += _series_value(recent, model, bench, options)
+    return out
+
+
+def _dm(pairs: pd.DataFrame, alternative: str) -> DMResult:
+    d = period_differential(pairs)
+    h = min(int(pairs["horizon"].max()), max(1, d.size // 3))
+    return dm_hln(d, h=h, alternative=alternative)
+
+
+def _window_text(recent: pd.DataFrame, bench: str, where: str) -> tuple[str, str]:
+    freq = str(recent["frequency"].iloc[0])
+    since = label(int(recent["period_index"].min()), freq)
+    k = int(recent["period_index"].nunique())
+    return since, f"no value added over {bench}{where} in the last {k} evaluation periods (since {since})"
+
+
+def _figures(recent: pd.DataFrame) -> tuple[float, float, float]:
+    mae_model, mae_bench = float(recent["e_b"].abs().mean()), float(recent["e_a"].abs().mean())
+    va = 1 - mae_model / mae_bench if mae_bench > 0 else math.nan
+    return mae_model, mae_bench, va
+
+
+def _model_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOptions) -> list[Finding]:
+    mae_model, mae_bench, va = _figures(recent)
+    if not va <= 0:
+        return []
+    dm = _dm(recent, "two-sided")
+    if not math.isfinite(dm.p_value):
+        statement = "too few periods to test the difference"
+    elif dm.p_value < options.value_alpha:
+        statement = (f"the benchmark is significantly more accurate (DM-HLN {pval(dm.p_value)})" if dm.statistic < 0
+                     else f"though on scaled errors the model is significantly more accurate (DM-HLN {pval(dm.p_value)})")
+    else:
+        statement = f"the difference is not significant (DM-HLN {pval(dm.p_value)})"
+    since, head = _window_text(recent, bench, "")
+    text = f"{head}: MAE {num(mae_model)} vs {num(mae_bench)}, value added {va:+.0%}; {statement}"
+    return [Finding(kind="value", series="", model=model, horizon=None, level=None, since=since,
+                    figure=va, evidence=text, check="no value added", horizons="all",
+                    measure="value added (1 - MAE / benchmark MAE)", p_value=dm.p_value, n=len(recent))]
+
+
+def _series_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOptions) -> list[Finding]:
+    groups = [(str(s), g) for s, g in recent.groupby("series", sort=True)]
+    figures = [_figures(g) for _, g in groups]
+    # Every series is tested, not only those at or below zero, so that the family (and BH's m)
+    # is not chosen after looking at the data.
+    tests = [_dm(g, "less") for _, g in groups]
+    raw = np.array([t.p_value for t in tests])
+    if not np.isfinite(raw).any():
+        return []
+    adjusted = benjamini_hochberg(raw)
+    out = []
+    for (series, g), (mae_model, mae_bench, va), t, adj in zip(groups, figures, tests, adjusted):
+        if not (va <= 0 and adj <= options.value_alpha):
+            continue
+        since, head = _window_text(g, bench, " on this series")
+        text = (f"{head}: MAE {num(mae_model)} vs {num(mae_bench)}, value added {va:+.0%}; the benchmark is "
+                f"significantly more accurate (DM-HLN one-sided {pval(t.p_value)}, adjusted {pval(adj)})")
+        out.append(Finding(kind="value", series=series, model=model, horizon=None, level=None, since=since,
+                           figure=va, evidence=text, check="no value added", horizons="all",
+                           measure="value added (1 - MAE / benchmark MAE)", p_value=float(adj), n=len(g)))
+    return out
+
+
+def _no_benchmark_note() -> Finding:
+    text = ("value added not judged: no benchmark model (none is named like a seasonal-naive reference "
+            "such as ref-snaive); pass --benchmark MODEL")
+    return Finding(kind="value", series="", model="", horizon=None, level=None, since="", figure=math.nan,
+                   evidence=text, check="no benchmark", severity="note")
+
+
+def _no_common_note(model: str, bench: str) -> Finding:
+    text = f"value added not judged: {model} and {bench} share no scored cells"
+    return Finding(kind="value", series="", model=model, horizon=None, level=None, since="", figure=math.nan,
+                   evidence=text, check="not enough data", severity="note")

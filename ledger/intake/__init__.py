@@ -1,0 +1,1 @@
+"""Reading input (CSV, Parquet, DataFrames), validating it, staging it and recording it."""

@@ -1,0 +1,464 @@
+"""Reading forecast and actuals files (CSV, Parquet, pandas DataFrames) and validating them.
+
+Everything here is checked before anything is written: a file goes in whole or not at all.
+Errors name the file, the 1-based data row (header excluded) and the column.
+
+Files are read in chunks (:mod:`sources`): each chunk's rows are checked and appended to a
+staging table (:mod:`staging`); what needs the whole file (frequency, duplicates, horizons)
+is checked there in SQL. Memory stays flat whatever the file's size.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+import re
+
+import numpy as np
+import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from .csvread import list_names, shorten
+from ..errors import FrequencyError, InputError
+from ..periods import FREQUENCIES, check_frequency, parse_label
+from .sources import Chunk, open_table
+from .staging import Stage
+from ..store import Store
+
+__all__ = [
+    "ForecastFrame",
+    "ActualsFrame",
+    "read_forecasts",
+    "read_actuals",
+    "format_level",
+]
+
+_BOUND = re.compile(r"^(lower|upper)_(\d+(?:\.\d+)?)$")
+_QUANTILE = re.compile(r"^q(\d{2,}|0\.\d+|\d+\.\d+)$")
+_BOUND_LIKE = re.compile(
+    r"^(lower|upper|lo|hi|low|high|lwr|upr|lb|ub)[\s_\-.]*(\d+(?:\.\d+)?)(%|pct)?$"
+)
+_QUANTILE_LIKE = re.compile(r"^(q|p|quantile|tau)[\s_\-.]*(\d+(?:\.\d+)?)$")
+_LOWER_WORDS = {"lower", "lo", "low", "lwr", "lb"}
+
+
+def format_level(level: float) -> str:
+    """80.0 -> '80', 97.5 -> '97.5': how a level appears in column names."""
+    return f"{level:g}"
+
+
+class _Staged:
+    """A ``with`` block over a validated input drops its staging table at the end."""
+
+    stage: Stage
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.stage.close()
+
+
+@dataclasses.dataclass
+class ForecastFrame(_Staged):
+    """A validated forecast file, staged in the ledger's connection until it is written.
+
+    The ready table holds one row per (model, origin, series, target period): row, model,
+    origin, origin_index, series, period, period_index, point, and ``lo_<i>``/``hi_<i>`` per
+    level ``levels[i]`` and ``q_<j>`` per quantile ``taus[j]`` (NULL where absent).
+    """
+
+    source: str
+    frequency: str
+    stage: Stage
+    levels: list[float]
+    taus: list[float]
+    warnings: list[str]
+
+
+@dataclasses.dataclass
+class ActualsFrame(_Staged):
+    """A validated actuals file, staged: row, series, period, period_index, value."""
+
+    source: str
+    frequency: str
+    stage: Stage
+    warnings: list[str]
+
+
+def _require(source: str, columns: list[str], required: tuple[str, ...]) -> None:
+    missing = [c for c in required if c not in columns]
+    if missing:
+        found = ", ".join(columns[:12]) + (" …" if len(columns) > 12 else "")
+        raise InputError(
+            source,
+            f"missing required column {', '.join(missing)}; expected {', '.join(required)} "
+            f"(found {found})",
+        )
+
+
+def _as_text(col: pd.Series) -> pa.Array:
+    """Column values as stripped Arrow strings; datetimes as ISO dates, missing as ''.
+
+    Arrow strings because the checks below are then vectorised C++ (strip, compare, length,
+    cast, dictionary encoding) instead of Python loops over each cell.
+    """
+    if pd.api.types.is_datetime64_any_dtype(col):
+        col = col.dt.strftime("%Y-%m-%d")
+    try:
+        text = pa.array(col.to_numpy(dtype=object), pa.string(), from_pandas=True)
+    except (pa.ArrowTypeError, pa.ArrowInvalid):  # numbers, or text mixed with numbers
+        text = pa.array(col.astype("str").where(col.notna(), None).to_numpy(dtype=object), pa.string(),
+                        from_pandas=True)
+    return pc.utf8_trim_whitespace(pc.fill_null(text, ""))
+
+
+def _mask(array: pa.Array) -> np.ndarray:
+    return array.to_numpy(zero_copy_only=False)
+
+
+def _numbers(source: str, frame: pd.DataFrame, column: str, *, allow_blank: bool) -> np.ndarray:
+    """Parse a numeric column; refuse non-numbers, NaN and infinities with the first bad row."""
+    raw = frame[column]
+    if pd.api.types.is_numeric_dtype(raw):
+        values = raw.to_numpy(dtype="float64", na_value=np.nan)
+        blank = np.isnan(values)
+        text = None
+    else:
+        text = _as_text(raw)
+        blank = _mask(pc.equal(text, ""))
+        values = _parse_floats(text, blank)
+    bad = ~np.isfinite(values) & ~blank
+    if text is not None:
+        bad |= np.isnan(values) & ~blank
+    if not allow_blank:
+        bad |= blank
+    if bad.any():
+        i = int(np.argmax(bad))
+        shown = "" if text is None else text[i].as_py()
+        what = "is empty" if blank[i] else f"{shorten(shown or values[i])!r} is not a finite number{_number_hint(shown)}"
+        raise InputError(source, what, row=i + 1, column=column)
+    return values
+
+
+_DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+$")
+_GROUPED = re.compile(r"^[-+]?\d{1,3}([,\s'’]\d{3})+(\.\d+)?$")
+
+
+def _number_hint(text: str) -> str:
+    if _GROUPED.match(text):
+        return "; remove the thousands separators"
+    if _DECIMAL_COMMA.match(text):
+        return "; write the decimal mark as a point (10.5)"
+    return ""
+
+
+def _parse_floats(text: pa.Array, blank: np.ndarray) -> np.ndarray:
+    """Fast vectorised cast; only when it fails, the slower element-wise parse that marks bad cells."""
+    present = pc.if_else(pa.array(blank), pa.scalar(None, pa.string()), text)
+    try:
+        return pc.cast(present, pa.float64()).to_numpy(zero_copy_only=False)
+    except (pa.ArrowInvalid, ValueError):
+        cells = pd.Series(present.to_numpy(zero_copy_only=False), dtype=object)
+        return pd.to_numeric(cells, errors="coerce").to_numpy(dtype="float64", na_value=np.nan)
+
+
+MAX_KEY_LENGTH = 200
+MAX_HORIZON = 1000
+
+
+def _keys(source: str, frame: pd.DataFrame, column: str) -> pa.Array:
+    text = _as_text(frame[column])
+    empty = _mask(pc.equal(text, ""))
+    if empty.any():
+        raise InputError(source, "is empty", row=int(np.argmax(empty)) + 1, column=column)
+    long = _mask(pc.greater(pc.utf8_length(text), MAX_KEY_LENGTH))
+    if long.any():
+        i = int(np.argmax(long))
+        raise InputError(source, f"{shorten(text[i].as_py())!r} is longer than {MAX_KEY_LENGTH} characters",
+                         row=i + 1, column=column)
+    return text
+
+
+class _Labels:
+    """Period labels seen in one column: each distinct label parsed once, with its first row."""
+
+    def __init__(self, column: str, parsed: dict[str, tuple[str | None, dt.date]]):
+        self.column = column
+        self.parsed = parsed          # shared by the columns of one file
+        self.first: dict[str, int] = {}
+
+    def learn(self, source: str, text: pa.Array, offset: int) -> None:
+        """Parse the labels of one chunk (rows ``offset + 1`` …) that were not seen before."""
+        encoded = text.dictionary_encode()
+        codes, uniques = encoded.indices.to_numpy(zero_copy_only=False), encoded.dictionary.to_pylist()
+        new = [i for i, label in enumerate(uniques) if label not in self.first]
+        if not new:
+            return
+        first_pos = np.unique(codes, return_index=True)[1]  # codes number labels by first appearance
+        for i in new:
+            label = uniques[i]
+            if label not in self.parsed:
+                try:
+                    self.parsed[label] = parse_label(label)
+                except ValueError as exc:  # row within the chunk: the caller shifts it
+                    raise InputError(source, str(exc), row=int(first_pos[i]) + 1, column=self.column) from None
+            self.first[label] = offset + int(first_pos[i]) + 1
+
+    def kinds(self) -> dict[str, int]:
+        """Each label kind (frequency) found in the column, with the first row holding one."""
+        out: dict[str, int] = {}
+        for label, row in self.first.items():
+            kind = self.parsed[label][0]
+            if kind is not None and row < out.get(kind, row + 1):
+                out[kind] = row
+        return out
+
+
+def _decide_frequency(source: str, columns: list[_Labels], freq: str | None, known: set[str]) -> str:
+    """The file's one frequency: from --freq, from its labels, or from the series' record."""
+    said_by = None
+    if freq is not None:
+        try:
+            freq = check_frequency(freq)
+        except ValueError as exc:
+            raise FrequencyError(f"--freq: {exc}") from None
+        said_by = f"--freq is {freq}"
+    for labels in columns:
+        kinds = labels.kinds()
+        if len(kinds) > 1:
+            second = sorted(kinds)[1]
+            raise InputError(source, f"mixes {' and '.join(sorted(kinds))} labels; one file holds one frequency",
+                             row=kinds[second], column=labels.column)
+        if kinds:
+            kind, row = kinds.popitem()
+            if freq is not None and kind != freq:
+                raise InputError(source, f"is a {kind} label but {said_by}", row=row, column=labels.column)
+            freq, said_by = kind, f"column {labels.column} holds {kind} labels"
+    if freq is None and len(known) == 1:
+        freq = next(iter(known))
+    if freq is None:
+        raise InputError(source, "holds bare dates, which fit several frequencies; say which with "
+                         f"--freq ({', '.join(FREQUENCIES)})", row=1, column=columns[0].column)
+    return freq
+
+
+def _extra_columns(columns: list[str], known: set[str], source: str) -> list[str]:
+    """Refuse columns that look like misspelt bounds or quantiles; warn about the rest."""
+    extras = []
+    for col in columns:
+        if col in known or _BOUND.match(col) or _QUANTILE.match(col):
+            continue
+        if m := _BOUND_LIKE.match(col):
+            side = "lower" if m[1] in _LOWER_WORDS else "upper"
+            raise InputError(source, f"looks like an interval bound; name it {side}_{m[2]}", column=col)
+        if m := _QUANTILE_LIKE.match(col):
+            raise InputError(source, f"looks like a quantile; name it q{m[2].replace('.', '')} "
+                             "(q10 is the 0.10 quantile)", column=col)
+        extras.append(col)
+    return extras
+
+
+def _ignored(source: str, extras: list[str]) -> str:
+    shown = list_names([shorten(c) for c in extras], 10)
+    return f"{source}: ignored column{'s' if len(extras) > 1 else ''} {shown}"
+
+
+def _bound_columns(columns: list[str], source: str) -> dict[float, tuple[str, str]]:
+    levels: dict[float, dict[str, str]] = {}
+    for col in columns:
+        if m := _BOUND.match(col):
+            level = float(m[2])
+            if not 0 < level < 100:
+                raise InputError(source, f"level {m[2]} is outside (0, 100)", column=col)
+            levels.setdefault(level, {})[m[1]] = col
+    for level, sides in levels.items():
+        for side, other in (("lower", "upper"), ("upper", "lower")):
+            if side in sides and other not in sides:
+                raise InputError(source, f"has no matching {other}_{format_level(level)} column",
+                                 column=sides[side])
+    return {level: (sides["lower"], sides["upper"]) for level, sides in sorted(levels.items())}
+
+
+def _quantile_columns(columns: list[str], source: str) -> dict[float, str]:
+    taus = {}
+    for col in columns:
+        if m := _QUANTILE.match(col):
+            digits = m[1]
+            tau = float(digits) if "." in digits else float("0." + digits)
+            if not 0 < tau < 1:
+                raise InputError(source, f"quantile level {tau:g} is outside (0, 1)", column=col)
+            taus[tau] = col
+    return dict(sorted(taus.items()))
+
+
+def _model_origin(source, frame, model, origin) -> tuple[pa.Array, pa.Array]:
+    n = len(frame)
+    out = []
+    for column, option in (("model", model), ("origin", origin)):
+        if column in frame.columns:
+            values = _keys(source, frame, column)
+            if option is not None:
+                differ = _mask(pc.not_equal(values, str(option).strip()))
+                if differ.any():
+                    i = int(np.argmax(differ))
+                    raise InputError(source, f"{values[i].as_py()!r} differs from --{column} {option}; give one or the other",
+                                     row=i + 1, column=column)
+        elif option is not None:
+            values = pa.array(np.full(n, str(option).strip(), dtype=object), pa.string())
+        else:
+            raise InputError(source, f"has no {column} column and no --{column} was given")
+        out.append(values)
+    return out[0], out[1]
+
+
+def read_forecasts(
+    store: Store,
+    data,
+    *,
+    model: str | None = None,
+    origin: str | None = None,
+    freq: str | None = None,
+    name: str | None = None,
+    progress=None,
+) -> ForecastFrame:
+    """Read and validate a forecast file chunk by chunk into a staging table of ``store``.
+
+    Use the result in a ``with`` block (it drops the staging table). Series the ledger already
+    knows must keep their recorded frequency. ``progress(done, total)``: see :func:`sources.open_table`.
+    """
+    table = open_table(data, name=name, progress=progress)
+    source, columns = table.source, table.columns
+    _require(source, columns, ("series", "period", "forecast"))
+    bound_cols = _bound_columns(columns, source)
+    quant_cols = _quantile_columns(columns, source)
+    extras = _extra_columns(columns, {"series", "period", "forecast", "model", "origin"}, source)
+    warnings = [_ignored(source, extras)] if extras else []
+    levels, taus = list(bound_cols), list(quant_cols)
+    numbers = {"point": "DOUBLE"} | {f"{side}_{i}": "DOUBLE" for i in range(len(levels)) for side in ("lo", "hi")}
+    numbers |= {f"q_{j}": "DOUBLE" for j in range(len(taus))}
+    stage = Stage(store.con, {"model": "VARCHAR", "origin": "VARCHAR", "series": "VARCHAR", "period": "VARCHAR"}
+                  | numbers)
+    try:
+        parsed: dict[str, tuple[str | None, dt.date]] = {}
+        periods, origins = _Labels("period", parsed), _Labels("origin", parsed)
+        outside = _Outside(source)
+        for chunk in table.chunks:
+            try:
+                staged = _forecast_chunk(source, chunk, model, origin, periods, origins, bound_cols, quant_cols)
+            except InputError as exc:
+                raise exc.shifted(chunk.offset) from None
+            outside.add(chunk.offset, staged, levels)
+            stage.append(chunk.offset, staged)
+        frequency = _decide_frequency(source, [periods, origins], freq, stage.known_frequencies())
+        stage.check_recorded(source, frequency)
+        stage.resolve({label: day for label, (_, day) in parsed.items()}, frequency, ["period", "origin"])
+        stage.check_horizons(source, frequency, MAX_HORIZON)
+        stage.check_unique(source, ["model", "origin_index", "series", "period_index"], "period",
+                           "a second forecast for the same series, period, model and origin")
+    except BaseException:
+        stage.close()
+        raise
+    return ForecastFrame(source, frequency, stage, levels, taus, warnings + outside.warnings(levels))
+
+
+def _forecast_chunk(source, chunk: Chunk, model, origin, periods: _Labels, origins: _Labels,
+                    bound_cols, quant_cols) -> dict[str, np.ndarray]:
+    """One chunk's checked columns, rows numbered from 1 within the chunk."""
+    frame = chunk.frame
+    models, origin_text = _model_origin(source, frame, model, origin)
+    keys = _keys(source, frame, "series")
+    period_text = _keys(source, frame, "period")
+    periods.learn(source, period_text, chunk.offset)
+    origins.learn(source, origin_text, chunk.offset)
+    out = {"model": models, "origin": origin_text, "series": keys, "period": period_text,
+           "point": _numbers(source, frame, "forecast", allow_blank=False)}
+    for i, (lo, hi) in enumerate(bound_cols.values()):
+        out[f"lo_{i}"], out[f"hi_{i}"] = _bounds(source, frame, lo, hi)
+    quantiles = {tau: _numbers(source, frame, col, allow_blank=True) for tau, col in quant_cols.items()}
+    _check_quantile_order(source, quantiles, quant_cols)
+    for j, values in enumerate(quantiles.values()):
+        out[f"q_{j}"] = values
+    return out
+
+
+def _bounds(source, frame, lower_col, upper_col) -> tuple[np.ndarray, np.ndarray]:
+    lower = _numbers(source, frame, lower_col, allow_blank=True)
+    upper = _numbers(source, frame, upper_col, allow_blank=True)
+    half = np.isnan(lower) != np.isnan(upper)
+    if half.any():
+        i = int(np.argmax(half))
+        col, other = (upper_col, lower_col) if np.isnan(upper[i]) else (lower_col, upper_col)
+        raise InputError(source, f"is empty but {other} is given; give both bounds or neither", row=i + 1, column=col)
+    crossed = lower > upper
+    if crossed.any():
+        i = int(np.argmax(crossed))
+        raise InputError(source, f"lower bound {lower[i]:g} is above the upper bound {upper[i]:g}",
+                         row=i + 1, column=lower_col)
+    return lower, upper
+
+
+def _check_quantile_order(source, quantiles: dict[float, np.ndarray], columns: dict[float, str]) -> None:
+    taus = list(quantiles)
+    for a, b in zip(taus, taus[1:]):
+        bad = quantiles[a] > quantiles[b]
+        if bad.any():
+            i = int(np.argmax(bad))
+            raise InputError(source, f"quantiles decrease: {columns[a]} = {quantiles[a][i]:g} is above "
+                             f"{columns[b]} = {quantiles[b][i]:g}", row=i + 1, column=columns[b])
+
+
+class _Outside:
+    """Counts point forecasts outside their own interval, level by level, across chunks."""
+
+    def __init__(self, source: str):
+        self.source = source
+        self.count: dict[int, int] = {}
+        self.first: dict[int, int] = {}
+
+    def add(self, offset: int, staged: dict[str, np.ndarray], levels: list[float]) -> None:
+        point = staged["point"]
+        for i in range(len(levels)):
+            outside = (point < staged[f"lo_{i}"]) | (point > staged[f"hi_{i}"])
+            if outside.any():
+                self.first.setdefault(i, offset + int(np.argmax(outside)) + 1)
+                self.count[i] = self.count.get(i, 0) + int(outside.sum())
+
+    def warnings(self, levels: list[float]) -> list[str]:
+        return [f"{self.source}: {self.count[i]} point forecast(s) lie outside their own "
+                f"{format_level(levels[i])}% interval (first at row {self.first[i]})" for i in sorted(self.count)]
+
+
+def read_actuals(store: Store, data, *, freq: str | None = None, name: str | None = None,
+                 progress=None) -> ActualsFrame:
+    """Read and validate an actuals file (series, period, actual) chunk by chunk into a staging table.
+
+    Use the result in a ``with`` block (it drops the staging table).
+    """
+    table = open_table(data, name=name, progress=progress)
+    source, columns = table.source, table.columns
+    _require(source, columns, ("series", "period", "actual"))
+    extras = [c for c in columns if c not in ("series", "period", "actual")]
+    warnings = [_ignored(source, extras)] if extras else []
+    stage = Stage(store.con, {"series": "VARCHAR", "period": "VARCHAR", "value": "DOUBLE"})
+    try:
+        parsed: dict[str, tuple[str | None, dt.date]] = {}
+        periods = _Labels("period", parsed)
+        for chunk in table.chunks:
+            try:
+                keys = _keys(source, chunk.frame, "series")
+                text = _keys(source, chunk.frame, "period")
+                periods.learn(source, text, chunk.offset)
+                value = _numbers(source, chunk.frame, "actual", allow_blank=False)
+            except InputError as exc:
+                raise exc.shifted(chunk.offset) from None
+            stage.append(chunk.offset, {"series": keys, "period": text, "value": value})
+        frequency = _decide_frequency(source, [periods], freq, stage.known_frequencies())
+        stage.check_recorded(source, frequency)
+        stage.resolve({label: day for label, (_, day) in parsed.items()}, frequency, ["period"])
+        stage.check_unique(source, ["series", "period_index"], "period", "a second actual for the same series and period")
+    except BaseException:
+        stage.close()
+        raise
+    return ActualsFrame(source, frequency, stage, warnings)

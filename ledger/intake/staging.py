@@ -1,0 +1,142 @@
+"""Validated input rows held in DuckDB temporary tables until they are written.
+
+An import goes through here in three steps: chunks of checked rows are appended to a staging
+table (DuckDB spills it to disk when it outgrows memory, so a file of any size fits); checks
+that need the whole file (its frequency, the series' recorded frequencies, horizons,
+duplicates) run as SQL on it; the writer in :mod:`record` then reads it back with SQL. Every
+staged row keeps its 1-based row number in the file, so the set-level checks name rows too.
+Temporary tables belong to this connection only and vanish with it, so a crash leaves no trace.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import datetime as dt
+import itertools
+from collections.abc import Iterator
+
+import duckdb
+import numpy as np
+import pandas as pd
+import pyarrow as pa
+
+from ..errors import FrequencyError, InputError
+from ..periods import period_index, period_label, period_start
+from ..store import bounded_memory
+
+__all__ = ["Stage"]
+
+_names = itertools.count()
+
+
+class Stage:
+    """One import's staging table in ``con``; use as a context manager (drops it at the end)."""
+
+    def __init__(self, con, columns: dict[str, str]):
+        self.con = con
+        self.table = f"_stage_{next(_names)}"
+        self.ready = f"{self.table}_ready"
+        self._closed = False
+        # DuckDB spills beyond this cap, so a multi-GB import stays under 2 GB of RSS
+        self._memory = bounded_memory(con)
+        self._memory.__enter__()
+        defs = ", ".join(f"{name} {kind}" for name, kind in {"row": "BIGINT", **columns}.items())
+        con.execute(f"CREATE TEMP TABLE {self.table} ({defs})")
+
+    def __enter__(self) -> "Stage":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def close(self) -> None:
+        if self._closed:
+            return
+        self._closed = True
+        for table in (self.table, self.ready, f"{self.table}_labels"):
+            with contextlib.suppress(duckdb.Error):  # the connection may be gone after a crash
+                self.con.execute(f"DROP TABLE IF EXISTS {table}")
+        self._memory.__exit__(None, None, None)
+
+    def append(self, offset: int, columns: dict[str, object]) -> None:
+        """Append one chunk's checked columns (equal lengths); rows are numbered from ``offset + 1``."""
+        n = len(next(iter(columns.values())))
+        arrays = {name: pa.array(values, from_pandas=True) if isinstance(values, np.ndarray) else values
+                  for name, values in columns.items()}  # from_pandas: NaN becomes NULL
+        frame = pa.table({"row": pa.array(np.arange(offset + 1, offset + n + 1, dtype=np.int64)), **arrays})
+        self.con.register("_chunk", frame)
+        try:
+            self.con.execute(f"INSERT INTO {self.table} BY NAME SELECT * FROM _chunk")
+        finally:
+            self.con.unregister("_chunk")
+
+    def known_frequencies(self) -> set[str]:
+        """The frequencies the ledger has recorded for the staged series."""
+        rows = self.con.execute(f"SELECT DISTINCT l.frequency FROM (SELECT DISTINCT series FROM {self.table}) s "
+                                "JOIN series l USING (series)").fetchall()
+        return {r[0] for r in rows}
+
+    def check_recorded(self, source: str, freq: str) -> None:
+        """Refuse a series recorded with another frequency, at its first row."""
+        rows = self.con.execute(
+            f"SELECT s.row, s.series, l.frequency FROM (SELECT series, min(row) AS row FROM {self.table} "
+            "GROUP BY series) s JOIN series l USING (series) WHERE l.frequency <> ? ORDER BY s.row LIMIT 1",
+            [freq]).fetchall()
+        if rows:
+            row, key, recorded = rows[0]
+            raise FrequencyError(
+                f"{source} row {row} column series: series {key!r} is recorded as {recorded}, "
+                f"but this file is {freq}; a series keeps the frequency it was first recorded with")
+
+    def resolve(self, labels: dict[str, dt.date], freq: str, label_columns: list[str]) -> None:
+        """Build the ready table: each label column becomes a start date and a period index."""
+        lab = f"{self.table}_labels"
+        days = list(labels.values())
+        self.con.register("_labels", pd.DataFrame({
+            "label": pd.Series(list(labels), dtype=object),
+            "day": pd.Series([period_start(d, freq) for d in days], dtype="datetime64[s]").dt.date,
+            "idx": pd.Series([period_index(d, freq) for d in days], dtype="int64"),
+        }))
+        try:
+            self.con.execute(f"CREATE TEMP TABLE {lab} AS SELECT * FROM _labels")
+        finally:
+            self.con.unregister("_labels")
+        joins, exprs = [], []
+        for i, col in enumerate(label_columns):
+            joins.append(f"JOIN {lab} l{i} ON l{i}.label = s.{col}")
+            exprs.append(f"l{i}.day AS {col}, l{i}.idx AS {col}_index")
+        self.con.execute(f"CREATE TEMP TABLE {self.ready} AS SELECT s.* EXCLUDE ({', '.join(label_columns)}), "
+                         f"{', '.join(exprs)} FROM {self.table} s {' '.join(joins)}")
+        self.con.execute(f"DROP TABLE {self.table}")
+        self.con.execute(f"DROP TABLE {lab}")
+
+    def check_horizons(self, source: str, freq: str, max_horizon: int) -> None:
+        far = self.con.execute(f"SELECT row, period_index - origin_index FROM {self.ready} "
+                               "WHERE period_index - origin_index > ? ORDER BY row LIMIT 1", [max_horizon]).fetchall()
+        if far:
+            raise InputError(source, f"target period is {far[0][1]:,} periods after the origin; "
+                             f"Backsight accepts horizons up to {max_horizon}", row=far[0][0], column="period")
+        bad = self.con.execute(f"SELECT row, period, origin FROM {self.ready} "
+                               "WHERE period_index <= origin_index ORDER BY row LIMIT 1").fetchall()
+        if bad:
+            row, target, origin = bad[0]
+            raise InputError(source, f"target period {period_label(target, freq)} is not after "
+                             f"the origin {period_label(origin, freq)}", row=row, column="period")
+
+    def check_unique(self, source: str, keys: list[str], column: str, what: str) -> None:
+        """Refuse the first row that repeats the keys of an earlier row (naming that row)."""
+        by = ", ".join(keys)
+        rows = self.con.execute(
+            f"SELECT row, first FROM (SELECT row, min(row) OVER (PARTITION BY {by}) AS first FROM {self.ready}) "
+            "WHERE row > first ORDER BY row LIMIT 1").fetchall()
+        if rows:
+            raise InputError(source, f"{what} (first at row {rows[0][1]})", row=rows[0][0], column=column)
+
+    def series(self) -> list[str]:
+        return [r[0] for r in self.con.execute(f"SELECT DISTINCT series FROM {self.ready} ORDER BY series").fetchall()]
+
+    def batches(self, select: str, order: str, vectors: int = 50) -> Iterator[pd.DataFrame]:
+        """The ready table in ``order``, as frames of ``vectors`` DuckDB vectors (2,048 rows each)."""
+        result = self.con.execute(f"SELECT {select} FROM {self.ready} ORDER BY {order}")
+        while len(batch := result.fetch_df_chunk(vectors)):
+            yield batch

@@ -1,0 +1,1 @@
+"""Reference forecasting methods, the rolling-origin engine, and backtests recorded through the ledger."""

@@ -1,0 +1,324 @@
+"""Scoring: join forecasts to actuals in DuckDB, per-cell errors and scales, grouped aggregates.
+
+All of it is set-based SQL with standard window functions and joins, so the same queries can
+later run on another SQL engine over Parquet exports. The definitions match
+:mod:`ledger.stats.metrics`, which the tests use as the oracle.
+
+Scale of a cell (Hyndman & Koehler 2006): q = mean |y_t − y_{t−m}| over the pairs of the series'
+actuals with t at or before the cell's origin (q2 likewise with squares). Pairs are formed by
+period index, so a gap never pairs values that are not m periods apart. A cell whose series has
+no such pair yet, or q = 0, has no scale: its scaled metrics are left out and counted in
+``n_unscaled``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+from collections.abc import Sequence
+from typing import Literal, get_args
+
+import pandas as pd
+
+from ..errors import LedgerError, UnknownName
+from ..intake.ingest import format_level
+from ..periods import index_start, parse_label, period_index, period_label
+from .attributes import attributes_sql, check_attribute, known_attributes
+from ..store import Store, latest_actuals_sql, live_runs_sql
+
+__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "forecasts_sql", "score_cells", "interval_cells", "interval_misses", "scores", "POINT_COLUMNS"]
+
+GroupKey = Literal["series", "model", "horizon", "origin", "period"]
+GROUP_KEYS: tuple[str, ...] = get_args(GroupKey)
+POINT_COLUMNS = ("n", "mae", "rmse", "mape", "smape", "wape", "mase", "rmsse", "bias", "bias_pct")
+
+
+@dataclasses.dataclass(frozen=True)
+class Selection:
+    """Which cells to score: filters on model, series, horizon and target period, and an as-of."""
+
+    as_of: dt.datetime
+    models: Sequence[str] = ()
+    series: Sequence[str] = ()
+    horizons: Sequence[int] = ()
+    since: str | None = None
+    until: str | None = None
+
+    def params(self) -> dict:
+        out = {"as_of": self.as_of}
+        if self.since:
+            out["since"] = _since_date(self.since)
+        if self.until:
+            out["until"] = _until_date(self.until)
+        return out
+
+
+def _since_date(label: str) -> dt.date:
+    try:
+        _, day = parse_label(label)
+    except ValueError as exc:
+        raise LedgerError(f"--since: {exc}") from None
+    return day
+
+
+def _until_date(label: str) -> dt.date:
+    """The first day after the labelled period, so --until 2026-06 includes all of June."""
+    try:
+        freq, day = parse_label(label)
+    except ValueError as exc:
+        raise LedgerError(f"--until: {exc}") from None
+    if freq is None:
+        return day + dt.timedelta(days=1)
+    return index_start(period_index(day, freq) + 1, freq)
+
+
+def _in_list(column: str, values: Sequence, name: str) -> tuple[str, dict]:
+    if not values:
+        return "", {}
+    names = [f"{name}{i}" for i in range(len(values))]
+    sql = f" AND {column} IN ({', '.join('$' + n for n in names)})"
+    return sql, dict(zip(names, values))
+
+
+def forecasts_sql(sel: Selection) -> tuple[str, dict]:
+    """SQL (and parameters) for every live forecast in the selection, with or without an actual."""
+    sql, params = _parts(sel)
+    return f"WITH live AS ({live_runs_sql()}), {sql} SELECT * FROM fc", params
+
+
+def _parts(sel: Selection) -> tuple[str, dict]:
+    params = sel.params()
+    where = ""
+    for column, values, name in (("l.model", sel.models, "m"), ("f.series", sel.series, "s"),
+                                 ("f.horizon", [int(h) for h in sel.horizons], "h")):
+        sql, p = _in_list(column, values, name)
+        where += sql
+        params.update(p)
+    if sel.since:
+        where += " AND f.period >= $since"
+    if sel.until:
+        where += " AND f.period < $until"
+    return f"""
+    fc AS (
+        SELECT f.run_id, l.model, l.frequency, l.origin, l.origin_index, f.series, f.period,
+               f.period_index, f.horizon, f.point
+        FROM forecasts f JOIN live l ON f.run_id = l.run_id
+        WHERE TRUE {where})""", params
+
+
+def cells_sql(sel: Selection) -> tuple[str, dict]:
+    """SQL (and parameters) for every scorable cell in the selection, one row per cell.
+
+    Columns: run_id, model, frequency, origin, origin_index, series, period, period_index,
+    horizon, point, actual, e, q, q2.
+    """
+    fc, params = _parts(sel)
+    sql = f"""
+    WITH
+    act AS ({latest_actuals_sql()}),
+    live AS ({live_runs_sql()}),
+    {fc},
+    lagged AS (
+        SELECT a.series, a.period_index, abs(a.value - b.value) AS d
+        FROM act a
+        JOIN series s ON s.series = a.series
+        JOIN act b ON b.series = a.series AND b.period_index = a.period_index - s.season_length),
+    running AS (
+        SELECT series, period_index, 0 AS marker,
+               sum(d) OVER w AS sd, sum(d * d) OVER w AS sd2, count(*) OVER w AS nd
+        FROM lagged
+        WINDOW w AS (PARTITION BY series ORDER BY period_index ROWS UNBOUNDED PRECEDING)),
+    marked AS (
+        SELECT series, period_index, marker, sd, sd2, nd FROM running
+        UNION ALL
+        SELECT DISTINCT series, origin_index, 1, NULL, NULL, NULL FROM fc),
+    -- Running sums are non-decreasing, so a running max carries the last value forward to
+    -- each origin marker (markers sort after a pair at the same period: t <= origin).
+    carried AS (
+        SELECT series, period_index AS origin_index, marker,
+               max(sd) OVER w AS sd, max(sd2) OVER w AS sd2, max(nd) OVER w AS nd
+        FROM marked
+        WINDOW w AS (PARTITION BY series ORDER BY period_index, marker ROWS UNBOUNDED PRECEDING)),
+    scale AS (
+        SELECT series, origin_index,
+               CASE WHEN nd > 0 AND sd > 0 THEN sd / nd END AS q,
+               CASE WHEN nd > 0 AND sd2 > 0 THEN sd2 / nd END AS q2
+        FROM carried WHERE marker = 1)
+    SELECT fc.*, a.value AS actual, a.value - fc.point AS e, sc.q, sc.q2
+    FROM fc
+    JOIN act a ON a.series = fc.series AND a.period_index = fc.period_index
+    LEFT JOIN scale sc ON sc.series = fc.series AND sc.origin_index = fc.origin_index
+    """
+    return sql, params
+
+
+def score_cells(store: Store, sel: Selection) -> pd.DataFrame:
+    """Every scored cell with its per-cell errors (for findings and reports)."""
+    sql, params = cells_sql(sel)
+    return store.con.execute(f"SELECT * FROM ({sql}) ORDER BY model, series, origin_index, period_index",
+                             params).df()
+
+
+def interval_cells(store: Store, sel: Selection) -> pd.DataFrame:
+    """One row per scored cell and interval level: its bounds and whether the actual fell inside.
+
+    Columns: model, series, origin, origin_index, period, period_index, horizon, level, lower,
+    upper, actual, below (actual < lower), above (actual > upper), q.
+    """
+    sql, params = cells_sql(sel)
+    return store.con.execute(f"""
+        SELECT c.model, c.series, c.origin, c.origin_index, c.period, c.period_index, c.horizon,
+               b.level, b.lower, b.upper, c.actual, c.actual < b.lower AS below,
+               c.actual > b.upper AS above, c.q
+        FROM ({sql}) c
+        JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index
+        ORDER BY c.model, b.level, c.series, c.horizon, c.period_index""", params).df()
+
+
+def interval_misses(store: Store, sel: Selection) -> pd.DataFrame:
+    """The rows of :func:`interval_cells`, in its order, with only what calibration tests use.
+
+    Columns: model, series, period_index, horizon, level, below, above (fewer columns to
+    transfer: the findings of a large ledger read millions of these rows).
+    """
+    sql, params = cells_sql(sel)
+    return store.con.execute(f"""
+        SELECT c.model, c.series, c.period_index, c.horizon, b.level,
+               c.actual < b.lower AS below, c.actual > b.upper AS above
+        FROM ({sql}) c
+        JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index
+        ORDER BY c.model, b.level, c.series, c.horizon, c.period_index""", params).df()
+
+
+_POINT_AGG = """
+    count(*) AS n,
+    avg(abs(e)) AS mae,
+    sqrt(avg(e * e)) AS rmse,
+    avg(CASE WHEN actual <> 0 THEN 100 * abs(e) / abs(actual) END) AS mape,
+    avg(CASE WHEN abs(actual) + abs(point) > 0 THEN 200 * abs(e) / (abs(actual) + abs(point)) ELSE 0 END) AS smape,
+    CASE WHEN sum(abs(actual)) > 0 THEN 100 * sum(abs(e)) / sum(abs(actual)) END AS wape,
+    avg(abs(e) / q) AS mase,
+    sqrt(avg(e * e / q2)) AS rmsse,
+    avg(e) AS bias,
+    CASE WHEN sum(abs(actual)) > 0 THEN 100 * sum(e) / sum(abs(actual)) END AS bias_pct,
+    count(*) FILTER (WHERE actual = 0) AS n_zero_actual,
+    count(*) FILTER (WHERE q IS NULL OR q2 IS NULL) AS n_unscaled
+"""
+
+_LEVEL_AGG = """
+    avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN 1.0 ELSE 0.0 END) AS coverage,
+    avg(b.upper - b.lower) AS width,
+    avg((b.upper - b.lower)
+        + (2 / (1 - b.level / 100)) * greatest(b.lower - c.actual, 0)
+        + (2 / (1 - b.level / 100)) * greatest(c.actual - b.upper, 0)) AS interval_score,
+    avg(((b.upper - b.lower)
+        + (2 / (1 - b.level / 100)) * greatest(b.lower - c.actual, 0)
+        + (2 / (1 - b.level / 100)) * greatest(c.actual - b.upper, 0)) / c.q) AS msis
+"""
+
+_PINBALL_AGG = """
+    avg(CASE WHEN c.actual >= qt.value THEN qt.tau * (c.actual - qt.value)
+             ELSE (1 - qt.tau) * (qt.value - c.actual) END) AS pinball
+"""
+
+_KEY_SQL = {"series": "c.series", "model": "c.model", "horizon": "c.horizon",
+            "origin": "c.origin", "period": "c.period"}
+
+
+def _check_keys(store: Store, sel: Selection, by: Sequence[str]) -> list[str]:
+    keys = [k.strip().lower() for k in by if k.strip()]
+    if len(set(keys)) != len(keys):
+        raise UnknownName(f"--by names a key twice: {', '.join(by)}")
+    for k in keys:
+        if k not in GROUP_KEYS:
+            known = known_attributes(store, sel.as_of)
+            if k not in known:
+                extra = f", or an attribute ({', '.join(known)})" if known else ""
+                raise UnknownName(f"cannot group by {k}; use a comma list of {', '.join(GROUP_KEYS)}{extra}")
+    return keys
+
+
+def _materialise(store: Store, sel: Selection, attrs: list[str], where: list[tuple[str, str]]) -> None:
+    """The temp table _scored: the selected cells, with a column g__<name> per attribute used."""
+    sql, params = cells_sql(sel)
+    joins, filters = [], []
+    for i, name in enumerate(attrs):
+        params[f"attr{i}"] = name
+        joins.append(f"LEFT JOIN ({attributes_sql()}) a{i} ON a{i}.series = c.series AND a{i}.name = $attr{i}")
+    for j, (name, value) in enumerate(where):
+        params[f"where{j}"] = value
+        filters.append(f"a{attrs.index(name)}.value = $where{j}")
+    cols = "".join(f", a{i}.value AS g__{name}" for i, name in enumerate(attrs))
+    cond = f"WHERE {' AND '.join(filters)}" if filters else ""
+    store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT c.*{cols} FROM ({sql}) c "
+                      f"{' '.join(joins)} {cond}", params)
+
+
+def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"), *,
+           where: Sequence[tuple[str, str]] = ()) -> pd.DataFrame:
+    """Aggregate metrics per group; columns as documented in the README (Definitions).
+
+    ``by`` takes the built-in keys and any attribute name; ``where`` is a list of
+    (attribute, value) pairs that a cell's series must match.
+    """
+    keys = _check_keys(store, sel, by)
+    where = list(where)
+    for name, _ in where:
+        check_attribute(store, sel.as_of, name, option="--where")
+    attrs = sorted({k for k in keys if k not in GROUP_KEYS} | {name for name, _ in where})
+    con = store.con
+    _materialise(store, sel, attrs, where)
+    try:
+        key_sql = {k: _KEY_SQL.get(k, f"c.g__{k}") for k in keys}
+        group = ", ".join(key_sql[k] for k in keys)
+        select_keys = ", ".join(f"{key_sql[k]} AS {k}" for k in keys)
+        gb = f"GROUP BY {group}" if keys else ""
+        point = con.execute(
+            f"SELECT {select_keys + ',' if keys else ''} {_POINT_AGG} FROM _scored c {gb}").df()
+        levels = con.execute(
+            f"SELECT {select_keys + ',' if keys else ''} b.level, {_LEVEL_AGG} FROM _scored c "
+            f"JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index "
+            f"GROUP BY {group + ',' if keys else ''} b.level").df()
+        pinball = con.execute(
+            f"SELECT {select_keys + ',' if keys else ''} {_PINBALL_AGG} FROM _scored c "
+            f"JOIN quantiles qt ON qt.run_id = c.run_id AND qt.series = c.series AND qt.period_index = c.period_index "
+            f"{gb}").df()
+        freqs = [r[0] for r in con.execute("SELECT DISTINCT frequency FROM _scored").fetchall()]
+    finally:
+        con.execute("DROP TABLE IF EXISTS _scored")
+    return _assemble(point, levels, pinball, keys, freqs)
+
+
+def _assemble(point: pd.DataFrame, levels: pd.DataFrame, pinball: pd.DataFrame,
+              keys: list[str], freqs: list[str]) -> pd.DataFrame:
+    if keys and len(point) == 0:
+        return point[keys + list(POINT_COLUMNS) + ["n_zero_actual", "n_unscaled"]]
+    out = point.copy()
+    for level in sorted(levels["level"].unique()) if len(levels) else []:
+        part = levels[levels["level"] == level].drop(columns="level")
+        name = format_level(float(level))
+        part = part.rename(columns={c: f"{c}_{name}" for c in ("coverage", "width", "interval_score", "msis")})
+        out = out.merge(part, on=keys, how="left") if keys else pd.concat([out, part.reset_index(drop=True)], axis=1)
+    if len(pinball) and pinball["pinball"].notna().any():
+        out = out.merge(pinball, on=keys, how="left") if keys else pd.concat([out, pinball], axis=1)
+    tail = ["n_zero_actual", "n_unscaled"]
+    ordered = keys + [c for c in out.columns if c not in keys and c not in tail] + tail
+    out = out[ordered]
+    for c in ("n", "n_zero_actual", "n_unscaled"):
+        out[c] = out[c].astype("int64")
+    if "horizon" in keys:
+        out["horizon"] = out["horizon"].astype("int64")
+    if keys:
+        out = out.sort_values(keys, kind="stable").reset_index(drop=True)
+    for key in ("origin", "period"):
+        if key in keys:
+            out[key] = _labels(out[key], freqs)
+    return out
+
+
+def _labels(days: pd.Series, freqs: list[str]) -> pd.Series:
+    """Period labels (2026-11, 2026Q3) when the cells share one frequency, else ISO dates."""
+    as_dates = pd.to_datetime(days).dt.date
+    if len(freqs) == 1:
+        return as_dates.map(lambda d: period_label(d, freqs[0])).astype(object)
+    return as_dates.map(lambda d: d.isoformat()).astype(object)

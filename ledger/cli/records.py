@@ -19,6 +19,7 @@ from .common import (
     notice,
     open_ledger,
 )
+from .engines import Engine, EngineOpt, LakeOpt, SparkMasterOpt, reading_ledger
 from ..scoring.totals import INTERVAL_NOTE
 
 __all__ = ["snapshot", "actuals", "scores", "attributes", "runs"]
@@ -76,9 +77,12 @@ def scores(
     totals: Annotated[str | None, typer.Option("--totals", metavar="ATTR", help="Score each group's total (sum of members) instead of cells.")] = None,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
+    engine: EngineOpt = Engine.duckdb,
+    lake: LakeOpt = None,
+    spark_master: SparkMasterOpt = None,
 ) -> None:
     """Accuracy per group: MAE, RMSE, MAPE, sMAPE, WAPE, MASE, RMSSE, bias, coverage, interval score."""
-    with open_ledger(ctx) as book, busy("Scoring"):
+    with reading_ledger(ctx, engine, lake, spark_master) as book, busy("Scoring"):
         if totals is not None:
             frame = book.totals(totals, as_of=as_of, models=model or (), horizons=horizon or (),
                                 since=since, until=until)

@@ -206,7 +206,7 @@ _POINT_AGG = """
 """
 
 _LEVEL_AGG = """
-    avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN 1.0 ELSE 0.0 END) AS coverage,
+    avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN CAST(1 AS DOUBLE) ELSE CAST(0 AS DOUBLE) END) AS coverage,
     avg(b.upper - b.lower) AS width,
     avg((b.upper - b.lower)
         + (2 / (1 - b.level / 100)) * greatest(b.lower - c.actual, 0)

@@ -53,12 +53,13 @@ from statsmodels.tsa.forecasting.theta import ThetaModel
 from statsmodels.tsa.seasonal import seasonal_decompose
 
 from ..errors import GapInHistory, MethodNotApplicable, NotEnoughData, UnknownName
+from ..wording import format_level
 
 __all__ = [
     "METHODS",
     "Method",
     "forecast",
-    "format_level",
+    "LEVEL_DIGITS",
     "min_history",
     "seasonal_test",
     "seasonal_indices",
@@ -74,14 +75,13 @@ METHODS: tuple[str, ...] = get_args(Method)
 
 Forecast = dict[str, np.ndarray]
 
+#: Significant figures of a level in the bound columns a method returns (``lower_<L>``): more
+#: than an input file's 6, so a level given with many decimals reaches the ledger intact.
+LEVEL_DIGITS = 10
+
 
 # ---------------------------------------------------------------------------------------------
 # levels and normal bounds
-
-
-def format_level(level: float) -> str:
-    """Column suffix of an interval level: 80 -> "80", 97.5 -> "97.5"."""
-    return f"{float(level):.10g}"
 
 
 @lru_cache(maxsize=64)
@@ -102,8 +102,8 @@ def _normal_bounds(point: np.ndarray, sd: np.ndarray, levels: Sequence[float]) -
     out: Forecast = {"forecast": point}
     for level in levels:
         half = _z(level) * sd
-        out[f"lower_{format_level(level)}"] = point - half
-        out[f"upper_{format_level(level)}"] = point + half
+        out[f"lower_{format_level(level, LEVEL_DIGITS)}"] = point - half
+        out[f"upper_{format_level(level, LEVEL_DIGITS)}"] = point + half
     return out
 
 
@@ -177,8 +177,8 @@ def _ets(method: str, y: np.ndarray, h: int, m: int, levels: Sequence[float]) ->
         out: Forecast = {"forecast": np.asarray(pred.predicted_mean, dtype=float)}
         for level in levels:
             frame = pred.summary_frame(alpha=1.0 - level / 100.0)
-            out[f"lower_{format_level(level)}"] = frame["pi_lower"].to_numpy(dtype=float)
-            out[f"upper_{format_level(level)}"] = frame["pi_upper"].to_numpy(dtype=float)
+            out[f"lower_{format_level(level, LEVEL_DIGITS)}"] = frame["pi_lower"].to_numpy(dtype=float)
+            out[f"upper_{format_level(level, LEVEL_DIGITS)}"] = frame["pi_upper"].to_numpy(dtype=float)
     return _finite(method, out)
 
 

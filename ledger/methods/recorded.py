@@ -29,9 +29,10 @@ import pandas as pd
 
 from ..errors import UnknownName
 from ..intake.ingest import MAX_HORIZON, read_actuals, read_forecasts
-from ..periods import SEASON_LENGTHS, index_start, parse_period, period_index, period_label
+from ..periods import SEASON_LENGTHS, parse_period, period_index
 from ..intake.record import ActualsResult, RunResult, write_actuals, write_runs
 from ..store import Store
+from ..wording import label, labels
 
 if TYPE_CHECKING:
     from ..api import Ledger
@@ -169,15 +170,10 @@ def _latest_history(store: Store, keys: Sequence[str]) -> tuple[pd.DataFrame, di
 # indices back to period labels
 
 
-def _labels(indices: pd.Series, freq: str) -> pd.Series:
-    names = {int(i): period_label(index_start(int(i), freq), freq) for i in pd.unique(indices)}
-    return indices.map(names).astype(object)
-
-
 def _run_frame(forecasts: pd.DataFrame, freq: str) -> pd.DataFrame:
     """backtest() output -> a back-fill forecast frame with model, origin and period labels."""
     frame = forecasts.drop(columns=["horizon", "t"]).assign(
-        origin=_labels(forecasts["origin"], freq), period=_labels(forecasts["t"], freq))
+        origin=labels(forecasts["origin"], freq), period=labels(forecasts["t"], freq))
     first = ["model", "origin", "series", "period", "forecast"]
     return frame[first + [c for c in frame.columns if c not in first]]
 
@@ -196,14 +192,14 @@ def _relabel(note: str, freq: str) -> str:
     head = _SERIES_PREFIX.match(note)
     cut = head.end() if head else 0
 
-    def label(match: re.Match) -> str:
+    def as_labels(match: re.Match) -> str:
         parts = re.split(r"(, |-)", match.group(2))
-        words = [period_label(index_start(int(p), freq), freq) if p.isdigit() else
+        words = [label(int(p), freq) if p.isdigit() else
                  (" to " if p == "-" else p) for p in parts]
         lead = "" if match.group(1) == "t =" else match.group(1) + " "
         return lead + "".join(words)
 
-    return note[:cut] + _INDEX_RUN.sub(label, note[cut:])
+    return note[:cut] + _INDEX_RUN.sub(as_labels, note[cut:])
 
 
 # ---------------------------------------------------------------------------------------------

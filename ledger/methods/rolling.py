@@ -33,11 +33,12 @@ from .forecasters import (
     _check_levels,
     _period_note,
     _short_note,
-    format_level,
+    LEVEL_DIGITS,
     forecast,
     min_history,
 )
 from ..errors import InputError, LedgerError, UnknownName
+from ..wording import format_level
 
 __all__ = ["FillMethod", "FILL_METHODS", "backtest"]
 
@@ -305,7 +306,7 @@ def _execute(tasks, args, jobs: int, progress: Progress | None) -> list[_Chunk]:
 def _assemble(chunks: list[_Chunk], levels: Sequence[float]) -> pd.DataFrame:
     names = ["model", "series", "origin", "t", "horizon", "forecast"]
     for level in levels:
-        names += [f"lower_{format_level(level)}", f"upper_{format_level(level)}"]
+        names += [f"lower_{format_level(level, LEVEL_DIGITS)}", f"upper_{format_level(level, LEVEL_DIGITS)}"]
     data = {}
     for name in names:
         parts = [a for c in chunks for a in c.columns.get(name, [])]

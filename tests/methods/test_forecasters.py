@@ -19,10 +19,10 @@ from ledger.methods.forecasters import (
     METHODS,
     dominant_period,
     forecast,
-    format_level,
     seasonal_test,
     seasonality_check,
 )
+from ledger.wording import format_level
 from ledger.errors import GapInHistory, InputError, MethodNotApplicable, NotEnoughData, UnknownName
 
 # A short invented series, T = 8, used for the hand computations.

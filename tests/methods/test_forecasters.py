@@ -16,12 +16,12 @@ import ledger.methods.rolling as bt
 from ledger.methods.rolling import backtest
 from ledger.methods.forecasters import (
     _ses_fit,
-    METHODS,
     dominant_period,
     forecast,
     seasonal_test,
     seasonality_check,
 )
+from ledger.methods.names import METHODS
 from ledger.wording import format_level
 from ledger.errors import GapInHistory, InputError, MethodNotApplicable, NotEnoughData, UnknownName
 

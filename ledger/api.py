@@ -20,6 +20,7 @@ from .intake.ingest import read_actuals, read_forecasts
 from .integrity import Problem, verify
 from .periods import period_label
 from .intake.record import ActualsResult, SnapshotResult, write_actuals, write_runs
+from .methods.recorded import run_backtest
 from .scoring.cells import Selection, interval_cells, score_cells, scores
 from .store import Store, parse_as_of
 from .scoring.totals import totals
@@ -102,9 +103,7 @@ class Ledger:
         :func:`ledger.methods.recorded.run_backtest` for every option. Returns a
         :class:`ledger.methods.recorded.BacktestResult`.
         """
-        from .methods.recorded import run_backtest
-
-        return run_backtest(self, data, methods=methods, horizon=horizon, holdout=holdout, origins=origins,
+        return run_backtest(self.store, data, methods=methods, horizon=horizon, holdout=holdout, origins=origins,
                             levels=levels, freq=freq, jobs=jobs, fill=fill, progress=progress, name=name,
                             supersede=supersede)
 

@@ -159,6 +159,20 @@ class Ledger:
         """Write every table to ``out_dir`` as Parquet or CSV; return the files written."""
         return export_ledger(self.store, out_dir, fmt=fmt)
 
+    def export_lake(self, out_dir):
+        """Export into a partitioned Parquet lake at ``out_dir``, writing only what is new since the
+        last export there; returns a :class:`ledger.lake.LakeExport`."""
+        from .lake import export_lake
+
+        return export_lake(self.store, out_dir)
+
+    @staticmethod
+    def verify_export(folder) -> list[Problem]:
+        """Problems of an export folder with a manifest (checksums, row counts, the ledger checks)."""
+        from .lake import verify_lake
+
+        return verify_lake(folder)
+
     def import_export(self, in_dir) -> dict[str, int]:
         """Load a folder written by :meth:`export` into this (empty) ledger; rows per table."""
         return import_ledger(self.store, in_dir)

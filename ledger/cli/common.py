@@ -20,7 +20,7 @@ from rich.console import Console
 from rich.table import Table
 from typer.core import TyperGroup
 
-from .. import __version__
+from ..version import __version__
 from ..api import DEFAULT_PATH, Ledger
 from ..errors import LedgerError
 

@@ -24,6 +24,7 @@ from ..errors import LedgerError, UnknownName
 from ..periods import index_start, parse_label, period_index, period_label
 from .attributes import attributes_sql, check_attribute, known_attributes
 from .quantile_sql import add_probabilistic_columns, quantile_detail_sql, wis_group_sql
+from .repeatable import one_thread
 from ..store import Store, latest_actuals_sql, live_runs_sql
 from ..wording import format_level
 
@@ -251,8 +252,10 @@ def _materialise(store: Store, sel: Selection, attrs: list[str], where: list[tup
         filters.append(f"a{attrs.index(name)}.value = $where{j}")
     cols = "".join(f", a{i}.value AS g__{name}" for i, name in enumerate(attrs))
     cond = f"WHERE {' AND '.join(filters)}" if filters else ""
+    # sorted by the cell's key, so that the aggregates add each group's values in one order
     store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT c.*{cols} FROM ({sql}) c "
-                      f"{' '.join(joins)} {cond}", params)
+                      f"{' '.join(joins)} {cond} ORDER BY c.model, c.series, c.origin_index, c.period_index",
+                      params)
 
 
 def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"), *,
@@ -271,26 +274,33 @@ def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"
     con = store.con
     _materialise(store, sel, attrs, where)
     try:
-        key_sql = {k: _KEY_SQL.get(k, f"c.g__{k}") for k in keys}
-        group = ", ".join(key_sql[k] for k in keys)
-        select_keys = ", ".join(f"{key_sql[k]} AS {k}" for k in keys)
-        gb = f"GROUP BY {group}" if keys else ""
-        point = con.execute(
-            f"SELECT {select_keys + ',' if keys else ''} {_POINT_AGG} FROM _scored c {gb}").df()
-        levels = con.execute(
-            f"SELECT {select_keys + ',' if keys else ''} b.level, {_LEVEL_AGG} FROM _scored c "
-            f"JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index "
-            f"GROUP BY {group + ',' if keys else ''} b.level").df()
-        pinball = con.execute(
-            f"SELECT {select_keys + ',' if keys else ''} {_PINBALL_AGG} FROM _scored c "
-            f"JOIN quantiles qt ON qt.run_id = c.run_id AND qt.series = c.series AND qt.period_index = c.period_index "
-            f"{gb}").df()
-        wis = con.execute(wis_group_sql("_scored", select_keys, group)).df()
-        detail = con.execute(quantile_detail_sql("_scored", select_keys, group)).df() if quantile_detail else None
+        with one_thread(con):  # the same sums, to the last bit, on every run
+            point, levels, pinball, wis, detail = _aggregates(con, keys, quantile_detail)
         freqs = [r[0] for r in con.execute("SELECT DISTINCT frequency FROM _scored").fetchall()]
     finally:
         con.execute("DROP TABLE IF EXISTS _scored")
     return _assemble(point, levels, pinball, keys, freqs, (wis, detail))
+
+
+def _aggregates(con, keys: list[str], quantile_detail: bool) -> tuple:
+    """Point, level, pinball, WIS (and quantile detail) aggregates of _scored per group."""
+    key_sql = {k: _KEY_SQL.get(k, f"c.g__{k}") for k in keys}
+    group = ", ".join(key_sql[k] for k in keys)
+    select_keys = ", ".join(f"{key_sql[k]} AS {k}" for k in keys)
+    gb = f"GROUP BY {group}" if keys else ""
+    point = con.execute(
+        f"SELECT {select_keys + ',' if keys else ''} {_POINT_AGG} FROM _scored c {gb}").df()
+    levels = con.execute(
+        f"SELECT {select_keys + ',' if keys else ''} b.level, {_LEVEL_AGG} FROM _scored c "
+        f"JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index "
+        f"GROUP BY {group + ',' if keys else ''} b.level").df()
+    pinball = con.execute(
+        f"SELECT {select_keys + ',' if keys else ''} {_PINBALL_AGG} FROM _scored c "
+        f"JOIN quantiles qt ON qt.run_id = c.run_id AND qt.series = c.series AND qt.period_index = c.period_index "
+        f"{gb}").df()
+    wis = con.execute(wis_group_sql("_scored", select_keys, group)).df()
+    detail = con.execute(quantile_detail_sql("_scored", select_keys, group)).df() if quantile_detail else None
+    return point, levels, pinball, wis, detail
 
 
 def _assemble(point: pd.DataFrame, levels: pd.DataFrame, pinball: pd.DataFrame,

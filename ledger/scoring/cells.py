@@ -1,8 +1,30 @@
 """Scoring: join forecasts to actuals in DuckDB, per-cell errors and scales, grouped aggregates.
 
-All of it is set-based SQL with standard window functions and joins, so the same queries can
-later run on another SQL engine over Parquet exports. The definitions match
-:mod:`ledger.stats.metrics`, which the tests use as the oracle.
+All of it is set-based SQL, so the same queries can later run on another SQL engine over
+Parquet exports. The definitions match :mod:`ledger.stats.metrics`, which the tests use as the
+oracle.
+
+Standard SQL in these queries (and in the ``live_runs_sql`` / ``latest_actuals_sql`` of
+:mod:`ledger.store` and ``attributes_sql`` of :mod:`ledger.scoring.attributes` that they
+compose): ``WITH`` common table expressions, inner and left joins, ``UNION ALL``, ``GROUP BY``,
+``CASE``, ``abs``, ``sqrt``, ``avg`` / ``sum`` / ``count`` / ``max``, ``count(*) FILTER (WHERE …)``,
+the boolean literal ``TRUE``, ``row_number()`` and running ``sum`` / ``max`` over a named
+``WINDOW … (PARTITION BY … ORDER BY … ROWS UNBOUNDED PRECEDING)``, ``IN (…)`` lists.
+
+DuckDB dialect, each with a plain equivalent elsewhere:
+
+- ``$name`` query parameters (``$as_of``, ``$since``, ``$m0`` …): DuckDB's named-parameter
+  syntax; another engine binds them its own way (``?``, ``:name``) or gets literals.
+- ``greatest(x, 0)`` in the interval score: not in the standard, but in most engines (Spark,
+  PostgreSQL, MySQL); the standard form is ``CASE WHEN x > 0 THEN x ELSE 0 END``.
+- ``CREATE OR REPLACE TEMP TABLE _scored AS …`` and ``DROP TABLE IF EXISTS``: the grouped
+  scores materialise the selected cells once per call (standard: ``CREATE LOCAL TEMPORARY
+  TABLE … AS (…) WITH DATA``; on Spark a temporary view).
+
+Not SQL at all: the aggregates run on one DuckDB thread over cells sorted by their key, so that
+their floats are the same on every run (:mod:`ledger.scoring.repeatable`); this leans on DuckDB
+keeping the rows of ``_scored`` in the order of its ``ORDER BY`` (insertion order is preserved). The probabilistic
+scores have their own module and docstring (:mod:`ledger.scoring.quantile_sql`).
 
 Scale of a cell (Hyndman & Koehler 2006): q = mean |y_t − y_{t−m}| over the pairs of the series'
 actuals with t at or before the cell's origin (q2 likewise with squares). Pairs are formed by
@@ -157,7 +179,7 @@ def cells_sql(sel: Selection) -> tuple[str, dict]:
 def score_cells(store: Store, sel: Selection) -> pd.DataFrame:
     """Every scored cell with its per-cell errors (for findings and reports)."""
     sql, params = cells_sql(sel)
-    return store.con.execute(f"SELECT * FROM ({sql}) ORDER BY model, series, origin_index, period_index",
+    return store.con.execute(f"SELECT * FROM ({sql}) c ORDER BY model, series, origin_index, period_index",
                              params).df()
 
 

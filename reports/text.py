@@ -11,6 +11,8 @@ import math
 import numpy as np
 from scipy import stats
 
+from ledger.wording import format_level
+
 __all__ = [
     "SMALL_SAMPLE",
     "bias_words",
@@ -72,7 +74,7 @@ def tolerance_band(n: int, level: float, *, watch: float = 0.95) -> tuple[float,
 def coverage_words(observed: float, level: float, direction: str, zone: str) -> str:
     """'held 68% of actuals (stated 80%) — too narrow, out of tolerance'."""
     if not _finite(observed):
-        return f"no {level:g}% intervals were scored"
+        return f"no {format_level(level)}% intervals were scored"
     judged = {"too narrow": "too narrow", "too wide": "too wide"}.get(direction, "within the tolerance band")
     tail = f"{judged}, {zone}" if direction in ("too narrow", "too wide") else judged
-    return f"held {observed:.0f}% of actuals (stated {level:g}%) — {tail}"
+    return f"held {observed:.0f}% of actuals (stated {format_level(level)}%) — {tail}"

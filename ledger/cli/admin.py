@@ -8,7 +8,8 @@ from typing import Annotated
 
 import typer
 
-from .common import app, busy, open_ledger
+from .common import app, busy, notice, open_ledger, say
+from .terminal import count
 
 __all__ = ["verify", "export", "import_"]
 
@@ -25,22 +26,22 @@ def verify(ctx: typer.Context) -> None:
         problems = book.verify()
     if problems:
         for p in problems:
-            typer.echo(f"problem: {p}")
-        typer.echo(f"{book.path}: {len(problems)} problem(s) found", err=True)
+            say(f"problem: {p}")
+        notice(f"{book.path}: {count(len(problems), 'problem')} found")
         raise typer.Exit(1)
-    typer.echo(f"{book.path}: sound")
+    say(f"{book.path}: sound")
 
 
 @app.command()
 def export(
     ctx: typer.Context,
     out_dir: Annotated[Path, typer.Argument(help="Folder to write one file per table into.")],
-    fmt: Annotated[ExportFormat, typer.Option("--format", help="parquet or csv.")] = ExportFormat.parquet,
+    fmt: Annotated[ExportFormat, typer.Option("--format", metavar="FORMAT", help="parquet or csv.")] = ExportFormat.parquet,
 ) -> None:
     """Write every table (runs, forecasts, bounds, quantiles, actuals with all revisions, series) to files."""
     with open_ledger(ctx) as book, busy("Exporting"):
         files = book.export(out_dir, fmt=fmt.value)
-    typer.echo(f"wrote {len(files)} files to {out_dir}")
+    say(f"wrote {len(files)} files to {out_dir}")
 
 
 @app.command("import")
@@ -51,4 +52,4 @@ def import_(
     """Rebuild an export into an empty ledger (the --ledger file must be new or empty)."""
     with open_ledger(ctx, create=True) as book, busy("Importing"):
         counts = book.import_export(in_dir)
-    typer.echo(", ".join(f"{n} {table}" for table, n in counts.items() if table != "meta"))
+    say(", ".join(f"{n} {table}" for table, n in counts.items() if table != "meta"))

@@ -9,15 +9,15 @@ import typer
 from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
-from .common import app
+from .common import app, say
 
 __all__ = ["demo", "summary_lines"]
 
 
 @app.command()
 def demo(
-    out: Annotated[Path, typer.Option("--out", help="Folder for the demo ledger and its report.")] = Path("backsight-demo"),
-    ledger: Annotated[Path | None, typer.Option("--ledger", help="Demo ledger file (default OUT/demo.duckdb); "
+    out: Annotated[Path, typer.Option("--out", metavar="DIR", help="Folder for the demo ledger and its report.")] = Path("backsight-demo"),
+    ledger: Annotated[Path | None, typer.Option("--ledger", metavar="FILE", help="Demo ledger file (default OUT/demo.duckdb); "
                                                  "an existing file is replaced only if it is a demo ledger.")] = None,
 ) -> None:
     """Replay the invented demo scenario month by month into a fresh ledger and render its report."""
@@ -33,7 +33,7 @@ def demo(
 
         result = build_demo(out, ledger_path=ledger, progress=progress)
     for line in summary_lines(result):
-        typer.echo(line)
+        say(line)
 
 
 def summary_lines(result) -> list[str]:

@@ -218,7 +218,7 @@ class Ledger:
                 since: str | None = None, until: str | None = None, where: Sequence = (), as_of=None,
                 alpha: float = 0.05) -> pd.DataFrame:
         """a (incumbent) against b (challenger) per horizon on common cells; verdict in ``.attrs["verdict"]``."""
-        sel = self.selection(as_of=as_of, series=series, since=since, until=until, where=where)
+        sel = self.selection(as_of=as_of, series=series, horizons=horizons, since=since, until=until, where=where)
         return _standings().compare(self.store, sel, a, b, horizons=horizons, alpha=alpha)
 
     def standings(self, *, horizons: Sequence[int] = (), models: Sequence[str] = (), series: Sequence[str] = (),
@@ -237,7 +237,7 @@ class Ledger:
                horizons: Sequence[int] = (), series: Sequence[str] = (), since: str | None = None,
                until: str | None = None, where: Sequence = (), alpha: float = 0.05, as_of=None) -> pd.DataFrame:
         """Replace the incumbent (None: the stored setting) with a challenger, or not, and why."""
-        sel = self.selection(as_of=as_of, series=series, since=since, until=until, where=where)
+        sel = self.selection(as_of=as_of, series=series, horizons=horizons, since=since, until=until, where=where)
         return _standings().advise(self.store, sel, incumbent, challengers=challengers,
                                    window=window, horizons=horizons, alpha=alpha)
 

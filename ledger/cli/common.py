@@ -8,6 +8,7 @@ stdout; notices, warnings and progress go to stderr.
 from __future__ import annotations
 
 import contextlib
+import csv
 import enum
 import json
 import sys
@@ -155,13 +156,22 @@ def say(text: str) -> None:
 def emit(frame: pd.DataFrame, fmt: Format, *, title: str | None = None, keep=()) -> None:
     """Print a frame: csv/json on stdout with full precision; a fitted table for people."""
     if fmt is Format.csv:
-        sys.stdout.write(frame.to_csv(index=False, lineterminator="\n"))
+        # A lone CR inside a value is not quoted by the csv module when lines end in LF, and a
+        # reader would split the row there; such (rare) output quotes every text field instead.
+        quoting = csv.QUOTE_NONNUMERIC if _has_cr(frame) else csv.QUOTE_MINIMAL
+        sys.stdout.write(frame.to_csv(index=False, lineterminator="\n", quoting=quoting))
     elif fmt is Format.json:
         records = json.loads(frame.to_json(orient="records", double_precision=15, date_format="iso"))
         sys.stdout.write(json.dumps(records, indent=1, ensure_ascii=False) + "\n")
     else:
         for line in render_table(frame, title=title, width=out_width(), keep=keep):
             typer.echo(line)
+
+
+def _has_cr(frame: pd.DataFrame) -> bool:
+    text = [c for c in frame.columns if not pd.api.types.is_numeric_dtype(frame[c])]
+    return any(frame[c].astype(str).str.contains("\r", regex=False).any() for c in text) or \
+        any("\r" in str(c) for c in frame.columns)
 
 
 def split(values: list[str] | None) -> list[str]:

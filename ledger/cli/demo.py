@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import shlex
 from pathlib import Path
 from typing import Annotated
 
@@ -10,6 +11,7 @@ from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
 from .common import app, say
+from .terminal import count
 
 __all__ = ["demo", "summary_lines"]
 
@@ -40,10 +42,30 @@ def summary_lines(result) -> list[str]:
     """What ``backsight demo`` prints after building (a :class:`reports.demo.DemoResult`)."""
     r = result.replay
     found = ", ".join(f"{n} {kind}" for kind, n in sorted(result.findings.items())) or "none"
-    lines = [f"Replayed {r.scenario}: {r.runs} runs ({r.cells:,} forecasts), {r.actual_values:,} actuals, "
-             f"{r.revisions} revision(s), {r.superseded} superseded run(s), into {r.ledger_path}",
+    lines = [f"Replayed {r.scenario}: {count(r.runs, 'run')} ({count(r.cells, 'forecast')}), "
+             f"{count(r.actual_values, 'actual')}, {count(r.revisions, 'revision')}, "
+             f"{count(r.superseded, 'superseded run')}, into {r.ledger_path}",
              f"Findings: {found}",
              "Lowest MASE by horizon (an estimate from past errors, not a promise):"]
-    lines += [f"  h={row.horizon:<2} {row.model:<20} MASE {row.mase:.2f}  ({row.n} cells)"
+    lines += [f"  h={row.horizon:<2} {row.model:<20} MASE {row.mase:.2f}  ({count(row.n, 'cell')})"
               for row in result.best_by_horizon.itertuples(index=False)]
+    lines += [f"Advice: {a}" for a in result.advice]
+    top = result.top_findings
+    if top is not None and len(top):
+        lines.append("Top findings:")
+        for i, row in enumerate(top.itertuples(index=False), start=1):
+            where = " ".join(x for x in (row.model, row.series) if x) or "(all series)"
+            lines.append(f"  {i}. {row.kind} {where}: {row.evidence}")
+    ledger = f"--ledger {shlex.quote(str(r.ledger_path))}"
+    lines += ["Try next:",
+              f"  backsight {ledger} flags --severity alert",
+              f"  backsight {ledger} scores --by model --horizon 1",
+              f"  backsight {ledger} compare {shlex.quote(result.incumbent)} {shlex.quote(_challenger(result))} --horizon 1"]
     return lines + [f"Report: {result.report.index}"]
+
+
+def _challenger(result) -> str:
+    """The model with the lowest MASE at horizon 1 other than the incumbent (the one to compare)."""
+    best = result.best_by_horizon
+    others = [m for m in best["model"] if m != result.incumbent]
+    return others[0] if others else "MODEL"

@@ -33,13 +33,13 @@ def close_names(name: str, known: Iterable[str], n: int = 3) -> list[str]:
 
 
 def unknown_message(what: str, plural: str, unknown: Sequence[str], known: Sequence[str]) -> str:
-    """"unknown model 'x'; known models: a, b; did you mean 'a'?" (one line, lists shortened)."""
+    """"unknown model 'x'; did you mean 'a'? known models: a, b" (one line, lists shortened)."""
     listed = list_names(known, 20) if known else "none recorded yet"
-    text = f"unknown {what} {', '.join(map(repr, unknown))}; known {plural}: {listed}"
-    near = [c for u in unknown for c in close_names(u, known)]
+    near = [repr(c) for c in dict.fromkeys(c for u in unknown for c in close_names(u, known))]
+    guess = ""
     if near:
-        text += f"; did you mean {' or '.join(map(repr, dict.fromkeys(near)))}?"
-    return text
+        guess = f"did you mean {near[0] if len(near) == 1 else ', '.join(near[:-1]) + ' or ' + near[-1]}? "
+    return f"unknown {what} {', '.join(map(repr, unknown))}; {guess}known {plural}: {listed}"
 
 
 def check_selection(store: Store, sel: Selection) -> Selection:

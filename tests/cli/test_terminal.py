@@ -162,10 +162,10 @@ def test_flags_severity_and_kind_filters(runner, path):
      "did you mean 'incumbent-holt-winters-monthly'?"),
     (("scores", "--series", "coast/garden-hose-deluxe-00"), "did you mean 'coast/garden-hoses-deluxe-00'"),
     (("scores", "--horizon", "0"), "--horizon 0: no run has this horizon; horizons in the ledger: 1–3"),
-    (("scores", "--where", "region=cost"), "--where region=cost: unknown region value 'cost'; known region "
-                                           "values: coast, inland, north; did you mean 'coast'?"),
+    (("scores", "--where", "region=cost"), "--where region=cost: unknown region value 'cost'; did you mean "
+                                           "'coast'? known region values: coast, inland, north"),
     (("compare", A, B, "--series", "north/garden"), "unknown series 'north/garden'"),
-    (("standings", "--model", "ref-snaiv"), "did you mean 'ref-snaive'?"),
+    (("standings", "--model", "ref-snaiv"), "unknown model 'ref-snaiv'; did you mean 'ref-snaive'? known models: "),
     (("flags", "--where", "zone=x"), "--where: no attribute named 'zone'; known attributes: region"),
     (("advise", "--incumbent", A, "--horizon", "7"), "--horizon 7: no run has this horizon"),
     (("runs", "--model", "ref-naive"), "unknown model 'ref-naive'"),

@@ -59,7 +59,8 @@ POINT_COLUMNS = ("n", "mae", "rmse", "mape", "smape", "wape", "mase", "rmsse", "
 
 @dataclasses.dataclass(frozen=True)
 class Selection:
-    """Which cells to score: filters on model, series, horizon and target period, and an as-of."""
+    """Which cells to score: filters on model, series, horizon, target period and series
+    attributes (``where``: (attribute, value) pairs in force at the as-of), and an as-of."""
 
     as_of: dt.datetime
     models: Sequence[str] = ()
@@ -67,6 +68,7 @@ class Selection:
     horizons: Sequence[int] = ()
     since: str | None = None
     until: str | None = None
+    where: Sequence[tuple[str, str]] = ()
 
     def params(self) -> dict:
         out = {"as_of": self.as_of}
@@ -122,6 +124,10 @@ def _parts(sel: Selection) -> tuple[str, dict]:
         where += " AND f.period >= $since"
     if sel.until:
         where += " AND f.period < $until"
+    for j, (name, value) in enumerate(sel.where):
+        params.update({f"wn{j}": name, f"wv{j}": value})
+        where += (f" AND f.series IN (SELECT series FROM ({attributes_sql()}) "
+                  f"WHERE name = $wn{j} AND value = $wv{j})")
     return f"""
     fc AS (
         SELECT f.run_id, l.model, l.frequency, l.origin, l.origin_index, f.series, f.period,
@@ -229,8 +235,11 @@ _POINT_AGG = """
     count(*) FILTER (WHERE q IS NULL OR q2 IS NULL) AS n_unscaled
 """
 
+# n: the cells that carry level L's bounds (a model may send bounds for some series only), so
+# coverage_L and width_L state how many cells they are over (column n_L).
 _LEVEL_AGG = """
     avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN 1.0 ELSE 0.0 END) AS coverage,
+    count(*) AS n,
     avg(b.upper - b.lower) AS width,
     avg((b.upper - b.lower)
         + (2 / (1 - b.level / 100)) * greatest(b.lower - c.actual, 0)
@@ -333,8 +342,9 @@ def _assemble(point: pd.DataFrame, levels: pd.DataFrame, pinball: pd.DataFrame,
     for level in sorted(levels["level"].unique()) if len(levels) else []:
         part = levels[levels["level"] == level].drop(columns="level")
         name = format_level(float(level))
-        part = part.rename(columns={c: f"{c}_{name}" for c in ("coverage", "width", "interval_score", "msis")})
+        part = part.rename(columns={c: f"{c}_{name}" for c in ("coverage", "n", "width", "interval_score", "msis")})
         out = out.merge(part, on=keys, how="left") if keys else pd.concat([out, part.reset_index(drop=True)], axis=1)
+        out[f"n_{name}"] = out[f"n_{name}"].fillna(0).astype("int64")
     if len(pinball) and pinball["pinball"].notna().any():
         out = out.merge(pinball, on=keys, how="left") if keys else pd.concat([out, pinball], axis=1)
     if probabilistic is not None:

@@ -18,7 +18,6 @@ __all__ = [
     "bias_words",
     "coverage_words",
     "is_small",
-    "plural",
     "sample_note",
     "tolerance_band",
 ]
@@ -29,10 +28,6 @@ SMALL_SAMPLE = 12
 
 def _finite(x) -> bool:
     return x is not None and isinstance(x, (int, float)) and math.isfinite(x)
-
-
-def plural(n: int, word: str, many: str | None = None) -> str:
-    return f"{n:,} {word if n == 1 else (many or word + 's')}"
 
 
 def bias_words(bias_pct) -> str:

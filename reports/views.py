@@ -15,7 +15,7 @@ from collections.abc import Sequence
 import pandas as pd
 
 from ledger.stats.intervals import coverage_zone
-from ledger.wording import format_level, num, pct, severity_rank
+from ledger.wording import format_level, num, pct, plural, severity_rank
 
 from . import charts
 from .data import LedgerData
@@ -23,7 +23,6 @@ from .text import (
     bias_words,
     coverage_words,
     is_small,
-    plural,
     sample_note,
     tolerance_band,
 )

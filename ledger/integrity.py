@@ -10,10 +10,8 @@ from __future__ import annotations
 
 import dataclasses
 
-import pandas as pd
 
-from .intake.ingest import format_level
-from .intake.record import run_content_hash
+from .hashing import run_content_hash, run_rows
 from .store import SCHEMA_VERSION, Store, bounded_memory
 
 __all__ = ["Problem", "verify"]
@@ -81,27 +79,11 @@ def _run_hashes(store: Store, progress) -> list[Problem]:
         "SELECT run_id, model, frequency, origin_index, content_hash, n_cells FROM runs ORDER BY run_id").fetchall()
     problems = []
     for i, (run_id, model, freq, origin_index, stored, n_cells) in enumerate(runs):
-        part = run_rows(store, run_id)
+        part, levels, taus = run_rows(store.con, run_id)
         if len(part) != n_cells:
             problems.append(Problem("cell count", f"run {run_id} has {len(part)} forecasts; recorded {n_cells}"))
-        elif run_content_hash(model, freq, origin_index, part) != stored:
+        elif run_content_hash(model, freq, origin_index, part, levels, taus) != stored:
             problems.append(Problem("content hash", f"run {run_id} ({model}) does not match its recorded hash"))
         if progress:
             progress(i + 1, len(runs))
     return problems
-
-
-def run_rows(store: Store, run_id: str) -> pd.DataFrame:
-    """A run's rows in the wide form that :func:`ledger.intake.record.run_content_hash` reads."""
-    con = store.con
-    part = con.execute("SELECT series, period_index, point FROM forecasts WHERE run_id = ?", [run_id]).df()
-    bounds = con.execute("SELECT series, period_index, level, lower, upper FROM bounds WHERE run_id = ?", [run_id]).df()
-    for level, rows in bounds.groupby("level"):
-        name = format_level(float(level))
-        rows = rows.drop(columns="level").rename(columns={"lower": f"lower_{name}", "upper": f"upper_{name}"})
-        part = part.merge(rows, on=["series", "period_index"], how="left")
-    quants = con.execute("SELECT series, period_index, tau, value FROM quantiles WHERE run_id = ?", [run_id]).df()
-    for tau, rows in quants.groupby("tau"):
-        part = part.merge(rows.drop(columns="tau").rename(columns={"value": f"q_{float(tau):g}"}),
-                          on=["series", "period_index"], how="left")
-    return part

@@ -44,6 +44,8 @@ def test_verify_sound_then_finds_tampering(filled, runner):
     assert r.stdout.splitlines() == [
         "problem: bounds without a forecast: 1 row(s)",
         "problem: orphaned or missing revisions: 1 row(s)",
+        "problem: actual revisions whose chain hash does not match: 1 row(s)",   # revision 2 lost its predecessor
+        "problem: writes of actuals whose rows were changed or deleted: 1 row(s)",
         f"problem: content hash: run {_run_id(filled)} (=cmd|' /C calc'!A0) does not match its recorded hash",
     ]
 

@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 
 from . import __version__
-from .errors import LedgerBusy, LedgerError, NotALedger, SchemaTooNew, SchemaTooOld
+from .errors import LedgerBusy, LedgerError, NotALedger, SchemaTooNew, SchemaTooOld, describe_os_error
 from .migrations import ACTUAL_WRITES_DDL, ACTUALS_DDL, ATTRIBUTES_DDL, MIGRATIONS
 
 __all__ = [
@@ -135,7 +135,10 @@ def parse_as_of(value: str | dt.datetime | dt.date | None) -> dt.datetime:
         if len(text) == 10:
             return dt.datetime.combine(stamp.date(), dt.time.max)
     if stamp.tzinfo is not None:
-        stamp = stamp.astimezone(dt.UTC).replace(tzinfo=None)
+        try:
+            stamp = stamp.astimezone(dt.UTC).replace(tzinfo=None)
+        except OverflowError:
+            raise LedgerError(f"--as-of {value!r} falls outside the years 1 to 9999 in UTC") from None
     return stamp
 
 
@@ -275,7 +278,9 @@ class Store:
         try:
             yield self.con
         except BaseException:
-            self.con.execute("ROLLBACK")
+            # a failed write (no space …) may leave nothing to roll back; the first error is the news
+            with contextlib.suppress(duckdb.Error):
+                self.con.execute("ROLLBACK")
             raise
         self.con.execute("COMMIT")
 
@@ -356,7 +361,14 @@ def _connect(path: Path, *, read_only: bool, wait: float) -> duckdb.DuckDBPyConn
             return duckdb.connect(str(path), read_only=read_only)
         except duckdb.IOException as exc:
             text = str(exc)
-            if "lock" not in text.lower():
+            if (age := _empty_file_age(path)) is not None:
+                # a creator may be writing it this instant (young file); else a kill left it
+                if age > 5 or time.monotonic() >= deadline:
+                    raise NotALedger(f"{path} is empty (0 bytes), probably left by a command stopped while "
+                                     "creating it; delete it and run the command again") from None
+            elif describe_os_error(exc):
+                raise                       # permission, no space …: worded by the CLI, like every OS error
+            elif "lock" not in text.lower():
                 raise NotALedger(f"{path} cannot be opened as a ledger: {text.splitlines()[0]}") from None
             if time.monotonic() >= deadline:
                 raise LedgerBusy(f"the ledger {path} is in use by another process; try again") from None
@@ -364,6 +376,15 @@ def _connect(path: Path, *, read_only: bool, wait: float) -> duckdb.DuckDBPyConn
             raise NotALedger(f"{path} is not a Backsight ledger ({str(exc).splitlines()[0]})") from None
         time.sleep(min(pause, max(0.0, deadline - time.monotonic())))
         pause = min(pause * 2, 0.5)
+
+
+def _empty_file_age(path: Path) -> float | None:
+    """Seconds since a 0-byte ledger file was last touched; None when it is not empty."""
+    try:
+        stat = path.stat()
+    except OSError:
+        return None
+    return time.time() - stat.st_mtime if stat.st_size == 0 else None
 
 
 def _schema_version(con: duckdb.DuckDBPyConnection) -> int | None:

@@ -16,7 +16,9 @@ import os
 from pathlib import Path
 from typing import Literal
 
-from .errors import LedgerError
+import duckdb
+
+from .errors import LedgerError, describe_os_error
 from .store import TABLES, Store
 
 __all__ = ["ExportFormat", "export_ledger", "import_ledger"]
@@ -94,9 +96,16 @@ def import_ledger(store: Store, in_dir: str | os.PathLike) -> dict[str, int]:
             else:
                 reader = f"read_parquet('{_quote_path(path)}')"
                 exprs = cols
-            if table == "meta":
-                con.execute("DELETE FROM meta WHERE key IN (SELECT key FROM " + reader + ")")
-            con.execute(f"INSERT INTO {table} ({', '.join(cols)}) SELECT {', '.join(exprs)} FROM {reader}")
+            try:
+                if table == "meta":
+                    con.execute("DELETE FROM meta WHERE key IN (SELECT key FROM " + reader + ")")
+                con.execute(f"INSERT INTO {table} ({', '.join(cols)}) SELECT {', '.join(exprs)} FROM {reader}")
+            except duckdb.Error as exc:
+                if describe_os_error(exc):
+                    raise
+                first = str(exc).strip().splitlines()[0]
+                raise LedgerError(f"{path} cannot be read as part of an export ({first}); nothing was "
+                                  "imported; export the ledger again") from None
             counts[table] = con.execute(f"SELECT count(*) FROM {table}").fetchall()[0][0]
     return counts
 

@@ -14,6 +14,7 @@ import sys
 from pathlib import Path
 from typing import Annotated, Any
 
+import duckdb
 import pandas as pd
 import typer
 from rich.console import Console
@@ -22,7 +23,7 @@ from typer.core import TyperGroup
 
 from .. import __version__
 from ..api import DEFAULT_PATH, Ledger
-from ..errors import LedgerError
+from ..errors import LedgerError, describe_os_error
 
 __all__ = ["app", "Format", "FormatOpt", "AsOfOpt", "FreqOpt", "open_ledger", "busy", "notice", "emit", "split"]
 
@@ -37,6 +38,12 @@ class _Group(TyperGroup):
             return super().invoke(ctx)
         except LedgerError as exc:
             typer.echo(f"Error: {exc}", err=True)
+            raise typer.Exit(EXIT_ERROR) from None
+        except (OSError, duckdb.Error) as exc:     # no space, permission, …: one line, not a traceback
+            message = describe_os_error(exc)
+            if message is None:
+                raise
+            typer.echo(f"Error: {message}", err=True)
             raise typer.Exit(EXIT_ERROR) from None
 
 

@@ -110,9 +110,32 @@ def _mask(array: pa.Array) -> np.ndarray:
     return array.to_numpy(zero_copy_only=False)
 
 
+_NOT_TEXT = (bytes, bytearray, list, tuple, dict, set, np.ndarray)
+
+
+def _check_value_kinds(source: str, raw: pd.Series, column: str, *, number: bool) -> None:
+    """Refuse what a typed file (Parquet, a DataFrame) can hold but a key or a number is not:
+    true/false for a number, bytes or lists or maps anywhere. Never coerced silently."""
+    if number and pd.api.types.is_bool_dtype(raw):
+        raise InputError(source, "holds true/false values, not numbers", row=1, column=column)
+    if raw.dtype != object:
+        return
+    kind = pd.api.types.infer_dtype(raw, skipna=True)
+    if kind in ("string", "empty", "integer", "floating", "mixed-integer-float", "date", "datetime", "decimal"):
+        return
+    for i, value in enumerate(raw):
+        if isinstance(value, _NOT_TEXT) or (number and isinstance(value, (bool, np.bool_))):
+            what = {bytes: "binary data", bytearray: "binary data", dict: "a map"}.get(type(value), "a list")
+            if isinstance(value, (bool, np.bool_)):
+                what = "a true/false value"
+            raise InputError(source, f"holds {what}, not {'a number' if number else 'text'}; "
+                             "write the column as plain values", row=i + 1, column=column)
+
+
 def _numbers(source: str, frame: pd.DataFrame, column: str, *, allow_blank: bool) -> np.ndarray:
     """Parse a numeric column; refuse non-numbers, NaN and infinities with the first bad row."""
     raw = frame[column]
+    _check_value_kinds(source, raw, column, number=True)
     if pd.api.types.is_numeric_dtype(raw):
         values = raw.to_numpy(dtype="float64", na_value=np.nan)
         blank = np.isnan(values)
@@ -161,6 +184,7 @@ MAX_HORIZON = 1000
 
 
 def _keys(source: str, frame: pd.DataFrame, column: str) -> pa.Array:
+    _check_value_kinds(source, frame[column], column, number=False)
     text = _as_text(frame[column])
     empty = _mask(pc.equal(text, ""))
     if empty.any():

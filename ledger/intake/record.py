@@ -5,7 +5,10 @@ Each public function is one transaction: on any error, nothing is written.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
+
+import duckdb
 
 import numpy as np
 import pandas as pd
@@ -127,7 +130,8 @@ def _insert_cells(con, frame: ForecastFrame, new_ids: list[tuple[str, int, str]]
             con.execute(f"INSERT INTO quantiles SELECT n.run_id, r.series, r.period_index, ?, r.q_{j} "
                         f"FROM {ready} WHERE r.q_{j} IS NOT NULL {order}", [tau])
     finally:
-        con.unregister("_new_ids")
+        with contextlib.suppress(duckdb.Error):    # after a failed write the first error is the news
+            con.unregister("_new_ids")
 
 
 def _register_series(store: Store, table: str, frequency: str, now) -> None:
@@ -169,5 +173,6 @@ def write_actuals(store: Store, frame: ActualsFrame) -> ActualsResult:
                             f"{write_hash_sql('chain_hash', 'series', 'period_index')} "
                             "FROM actuals WHERE recorded_at = $now", {"now": now, "source": frame.source})
         finally:
-            con.execute("DROP TABLE _act_diff")
+            with contextlib.suppress(duckdb.Error):
+                con.execute("DROP TABLE _act_diff")
     return ActualsResult(int(new), int(revised), int(same), list(frame.warnings))

@@ -19,7 +19,7 @@ import duckdb
 import numpy as np
 import pandas as pd
 
-from . import __version__
+from .version import __version__
 from .errors import LedgerBusy, LedgerError, NotALedger, SchemaTooNew, SchemaTooOld, describe_os_error
 from .migrations import ACTUAL_WRITES_DDL, ACTUALS_DDL, ATTRIBUTES_DDL, MIGRATIONS
 

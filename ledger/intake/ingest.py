@@ -20,24 +20,20 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from .columns import bound_columns, is_level_column, misspelt_column, quantile_columns
-from .csvread import list_names, shorten
 from ..errors import FrequencyError, InputError
 from ..periods import FREQUENCIES, check_frequency, parse_label
 from .sources import Chunk, open_table
 from .staging import Stage
 from ..store import Store
+from ..wording import list_names, shorten
 
 __all__ = [
     "ForecastFrame",
     "ActualsFrame",
     "read_forecasts",
     "read_actuals",
-    "format_level",
 ]
 
-def format_level(level: float) -> str:
-    """80.0 -> '80', 97.5 -> '97.5': how a level appears in column names."""
-    return f"{level:g}"
 
 
 class _Staged:

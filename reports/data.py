@@ -20,11 +20,12 @@ import pandas as pd
 
 from ledger import Ledger
 from ledger.errors import UnknownName
-from ledger.periods import SEASON_LENGTHS, index_start, period_label
-from ledger.findings import standings as _standings
+from ledger.periods import SEASON_LENGTHS
+from ledger.findings import standings
 from ledger.findings.flags import flags as _flag_cells
 from ledger.scoring.cells import Selection, cells_sql, score_cells
 from ledger.store import latest_actuals_sql, live_runs_sql
+from ledger.wording import format_level
 
 __all__ = [
     "check_roles",
@@ -32,7 +33,6 @@ __all__ = [
     "LedgerData",
     "Window",
     "findings_job",
-    "label_of",
     "load",
     "quiet",
     "report_models",
@@ -222,7 +222,7 @@ def _latest(book: Ledger, sel: Selection) -> pd.DataFrame:
 def _widen_bounds(points: pd.DataFrame, bounds: pd.DataFrame) -> pd.DataFrame:
     keys = ["model", "series", "period_index"]
     for level, part in bounds.groupby("level", sort=True):
-        tag = f"{level:g}"
+        tag = format_level(level)
         part = part.drop(columns="level").rename(columns={"lower": f"lower_{tag}", "upper": f"upper_{tag}"})
         points = points.merge(part, on=keys, how="left")
     return points
@@ -250,10 +250,10 @@ def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, b
     store, sel = book.store, book.selection(as_of=as_of)
     cells = score_cells(store, sel)
     found = _flag_cells(store, sel, cells=cells, **({"benchmark": benchmark} if benchmark else {}))
-    comparisons = {(a, b): _standings.compare(store, sel, a, b, cells=cells)
+    comparisons = {(a, b): standings.compare(store, sel, a, b, cells=cells)
                    for a, b in itertools.combinations(models, 2)}
-    ranks = _standings.standings(store, dataclasses.replace(sel, horizons=(horizon,)), cells=cells)
-    advice = (_standings.advise(store, sel, incumbent, cells=cells)
+    ranks = standings.standings(store, dataclasses.replace(sel, horizons=(horizon,)), cells=cells)
+    advice = (standings.advise(store, sel, incumbent, cells=cells)
               if incumbent and len(models) > 1 else None)
     return Findings(found, comparisons, ranks, advice)
 
@@ -275,8 +275,3 @@ def findings_job(path: str, as_of: dt.datetime, models: list[str], horizon: int,
     """All findings of a report in one worker, sharing one read of the scored cells."""
     with _open(path) as book:
         return _findings(book, models, as_of, horizon, incumbent, benchmark)
-
-
-def label_of(index: int, freq: str) -> str:
-    """Period label of a period index."""
-    return period_label(index_start(int(index), freq), freq)

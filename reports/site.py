@@ -24,6 +24,7 @@ from markupsafe import Markup
 
 from ledger import Ledger, __version__
 from ledger.store import parse_as_of, utc_now
+from ledger.wording import format_level, severity_rank
 
 from . import charts
 from .data import LedgerData, check_roles, findings_job, load, quiet, report_models, series_count
@@ -57,7 +58,6 @@ __all__ = [
 Progress = Callable[[int, int, str], None]
 FIXED_PAGES = ("index.html", "findings.html", "series.html", "methods.html")
 _CHUNK = 25
-_SEVERITY = {"alert": 0, "watch": 1, "note": 2}
 _POOL_FROM = 200   # series; below this, the start-up of worker processes costs more than it saves
 
 
@@ -133,7 +133,7 @@ def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict):
     overview = build_overview(data, ctx)
     safe_write(out, "index.html", render_page("index.html", v=overview, ctx=ctx, page="index", **nav))
     tick("overview")
-    rows = sorted(finding_rows(data.findings.flags, ctx), key=lambda f: _SEVERITY.get(f.severity, 1))
+    rows = sorted(finding_rows(data.findings.flags, ctx), key=lambda f: severity_rank(f.severity))
     safe_write(out, "findings.html", render_page("findings.html", rows=rows, ctx=ctx, page="findings", **nav))
     tick("findings")
     safe_write(out, "series.html", render_page("series_index.html", rows=build_series_index(data, ctx),
@@ -209,7 +209,7 @@ def series_inputs(data: LedgerData, ctx: Context, *, with_chart: bool = True) ->
     acts, _ = _by_series(data.actuals, ["period_index", "value"])
     cells, empty_cells = _by_series(data.cells, _CELL_COLUMNS)
     latest, empty_latest = _by_series(data.latest, [c for c in data.latest.columns if c != "series"])
-    levels = [f"{lv:g}" for lv in ctx.levels]
+    levels = [format_level(lv) for lv in ctx.levels]
     metrics: dict[str, list] = {}
     for key, row in zip(data.by_series_model["series"].tolist(), metrics_for(data.by_series_model, ctx.model_href, levels)):
         metrics.setdefault(key, []).append(row)

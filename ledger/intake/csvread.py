@@ -25,8 +25,9 @@ from pathlib import Path
 import pandas as pd
 
 from ..errors import InputError
+from ..wording import list_names, shorten
 
-__all__ = ["CHUNK_ROWS", "iter_csv_chunks", "shorten", "list_names"]
+__all__ = ["CHUNK_ROWS", "iter_csv_chunks"]
 
 #: Rows per chunk: small enough that a chunk of wide rows stays well under 100 MB.
 CHUNK_ROWS = 200_000
@@ -35,20 +36,6 @@ _BOMS = ((codecs.BOM_UTF8, "utf-8"), (codecs.BOM_UTF16_LE, "utf-16-le"), (codecs
 _FIELDS = re.compile(r"Expected (\d+) fields in line (\d+), saw (\d+)")
 _QUOTE = re.compile(r"EOF inside string starting at row (\d+)")
 _NUL = "holds a NUL byte, so it is not a text CSV file (a workbook? export it as CSV)"
-
-
-def shorten(value: str, limit: int = 40) -> str:
-    """A value fit to quote in a one-line message."""
-    text = str(value)
-    return text if len(text) <= limit else text[:limit] + f"… ({len(text):,} characters)"
-
-
-def list_names(names, limit: int = 5) -> str:
-    """'a, b, c' or 'a, b, c, d, e and 7 more': a list fit for a one-line message."""
-    names = [str(n) for n in names]
-    if len(names) <= limit:
-        return ", ".join(names)
-    return f"{', '.join(names[:limit])} and {len(names) - limit:,} more"
 
 
 class _Text:
@@ -132,7 +119,10 @@ class _Text:
         breaks = self._breaks + before.count("\n")
         line = before[before.rfind("\n") + 1:] if "\n" in before else self._line + before
         header_line = self.header if start is None else start.split("\n", 1)[0]
-        header = next(csv.reader([header_line.lstrip("\ufeff")]), [""])
+        try:
+            header = next(csv.reader([header_line.lstrip("\ufeff")]), [""])
+        except csv.Error:
+            header = [""]
         field = line.count(",")
         name = header[field].strip() if field < len(header) else f"{field + 1} (past the header)"
         return max(1, breaks), name or str(field + 1)
@@ -158,6 +148,17 @@ def _delimiter(header_line: str) -> str:
     return best if counts[best] else ","
 
 
+def _header_fields(line: str, sep: str, source: str) -> list[str]:
+    """The header's names; refuses line ends of a lone carriage return and unreadable headers."""
+    if "\r" in line.rstrip("\r"):
+        raise InputError(source, "lines end with a carriage return alone (an old Mac format); save the file "
+                         "with LF or CRLF line ends")
+    try:
+        return next(csv.reader([line], delimiter=sep), [])
+    except csv.Error as exc:       # e.g. a field longer than the csv module's limit (131,072 characters)
+        raise InputError(source, f"the header cannot be read ({exc}); is this a CSV file?") from None
+
+
 def _check_header(names: list[str], source: str) -> None:
     counts = Counter(n.strip().lstrip("\ufeff").strip().lower() for n in names)
     dupes = sorted(n for n, k in counts.items() if k > 1)
@@ -179,7 +180,7 @@ def iter_csv_chunks(path: Path, source: str, rows: int = CHUNK_ROWS, progress=No
         if text.only_blank():
             raise InputError(source, "the file is empty")
         sep = _delimiter(text.header)
-        header = next(csv.reader([text.header], delimiter=sep), [])
+        header = _header_fields(text.header, sep, source)
         _check_header(header, source)
         try:
             # object, not str: pandas' conversion to its string type costs more than the parse

@@ -25,6 +25,7 @@ from .common import (
     open_ledger,
     say,
 )
+from .engines import Engine, EngineOpt, LakeOpt, SparkMasterOpt, reading_ledger
 from .filters import HorizonOpt, ModelOpt, SeriesOpt, SinceOpt, UntilOpt, WhereOpt, selection
 from .thresholds import with_thresholds
 from ..findings.summary import finding_counts
@@ -65,13 +66,22 @@ def flags(
     long: Annotated[bool, typer.Option("--long", help="After the table, each finding's evidence as a sentence.")] = False,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
+    engine: EngineOpt = Engine.duckdb,
+    lake: LakeOpt = None,
+    spark_master: SparkMasterOpt = None,
     thresholds: dict | None = None,
 ) -> None:
     """Findings: drifting models, miscalibrated intervals, no value added, data problems."""
     chosen = dict(selection(model=model, series=series, horizon=horizon, since=since, until=until, where=where),
                   kinds=[k.value for k in kind or []], severities=[s.value for s in severity or []])
-    with open_ledger(ctx) as book, busy("Checking"):
-        if by is not None:
+    if engine is Engine.spark and by is not None:
+        raise typer.BadParameter("--by is not available with --engine spark yet", param_hint="--by")
+    with reading_ledger(ctx, engine, lake, spark_master) as book, busy("Checking"):
+        if engine is Engine.spark:
+            from ..findings.on_spark import spark_flags
+
+            frame = spark_flags(book, as_of=as_of, **chosen, **thresholds)
+        elif by is not None:
             frame = book.flag_counts(by, as_of=as_of, **chosen, **thresholds)
         else:
             frame = book.flags(as_of=as_of, **chosen, **thresholds)

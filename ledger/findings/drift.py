@@ -27,7 +27,7 @@ from ..stats.signals import DriftResult, drift_test, reference_length, tracking_
 from .base import Finding, FlagOptions
 from ..wording import label, short_num, signed
 
-__all__ = ["drift_findings"]
+__all__ = ["drift_findings", "short_note"]
 
 
 def drift_findings(cells: pd.DataFrame, seasons: dict[str, int], options: FlagOptions) -> list[Finding]:
@@ -60,7 +60,7 @@ def drift_findings(cells: pd.DataFrame, seasons: dict[str, int], options: FlagOp
             flagged.setdefault((str(model), str(series)), []).append(
                 _finding(result, cols, idx, str(model), str(series), int(horizon)))
     out = [_merge(found) for found in flagged.values()]
-    out += [_short_note(model, *c) for model, c in short.items() if c[0]]
+    out += [short_note(model, *c) for model, c in short.items() if c[0]]
     return out
 
 
@@ -193,7 +193,8 @@ def _one(x: float) -> str:
     return "–" if not np.isfinite(x) else f"{x:+.1f}"
 
 
-def _short_note(model: str, n_short: int, n_total: int, refs: set[int]) -> Finding:
+def short_note(model: str, n_short: int, n_total: int, refs: set[int]) -> Finding:
+    """The note of a model with ``n_short`` of its ``n_total`` sequences too short to judge."""
     window = f"the {min(refs)}-cell reference window" if len(refs) == 1 else "their reference windows"
     text = (f"drift not judged on {n_short} of {n_total} series × horizon sequences: "
             f"no scored cell yet after {window}")

@@ -57,7 +57,7 @@ __all__ = [
 Progress = Callable[[int, int, str], None]
 FIXED_PAGES = ("index.html", "findings.html", "series.html", "methods.html")
 _CHUNK = 25
-_SEVERITY = {"alert": 0, "watch": 1, "note": 2}
+_SEVERITY = {"act": 0, "watch": 1, "note": 2}
 _POOL_FROM = 200   # series; below this, the start-up of worker processes costs more than it saves
 
 

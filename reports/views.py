@@ -284,7 +284,7 @@ def finding_rows(flags: pd.DataFrame, ctx: Context) -> list[FindingRow]:
     return rows
 
 
-_SEVERITY = {"alert": 0, "watch": 1, "note": 2}
+_SEVERITY = {"act": 0, "watch": 1, "note": 2}
 
 
 def _ranked(rows: list[FindingRow]) -> list[FindingRow]:

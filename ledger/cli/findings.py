@@ -97,6 +97,7 @@ def flags(
         if frame.empty:
             notice("no findings")
             return
+        typer.echo(frame.attrs.get("summary", ""))
         table = frame[_FLAG_TABLE].copy()
         table.insert(0, "#", range(1, len(frame) + 1))
         emit(table, fmt, title="Findings (e = actual − forecast)")

@@ -196,7 +196,7 @@ def _coverage_finding(t: _Test, adj: float) -> Finding:
             f"{z.zone}, Kupiec {pval(t.kupiec_p)}, adjusted {pval(adj)})")
     return Finding(kind="calibration", series=t.series, model=t.model, horizon=_single(t.bucket),
                    level=t.level, since=since, figure=1 - z.misses / z.n, evidence=text, check=z.direction,
-                   severity="alert" if z.zone == "out of tolerance" else "watch", zone=z.zone,
+                   severity="act" if z.zone == "out of tolerance" else "watch", zone=z.zone,
                    horizons=t.bucket or "all", measure="coverage", p_value=adj, n=t.n)
 
 

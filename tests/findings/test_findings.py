@@ -39,7 +39,7 @@ def honest_flags(tmp_path_factory):
 def test_honest_drift_false_alarm_rate_over_seeds(honest_flags):
     # Issue 3: on honest forecasts the share of series flagged over a 36-period record stays at or
     # below 5%. Measured: 14 of 400 series (3.5%) over these four seeds; 17 of 600 (2.8%) over seeds 0-5.
-    flagged = sum(f.loc[(f["kind"] == "drift") & (f["severity"] == "alert"), "series"].nunique()
+    flagged = sum(f.loc[(f["kind"] == "drift") & (f["severity"] == "act"), "series"].nunique()
                   for f, _ in honest_flags.values())
     assert flagged / 400 <= 0.05, f"{flagged} of 400 honest series flagged"
 
@@ -63,7 +63,7 @@ def test_planted_level_shift_is_flagged_quickly_on_shifted_series_only(tmp_path)
     shift[:8, HISTORY + 24:] = 15.0
     with build(tmp_path / "l.duckdb", n_series=n, seed=5, models={"m": {"sigma": 5.0, "shift": shift}}) as book:
         found = book.flags(kinds=["drift"])
-    alerts = found[found["severity"] == "alert"].set_index("series")
+    alerts = found[found["severity"] == "act"].set_index("series")
     assert set(shifted) <= set(alerts.index)
     assert len(set(alerts.index) - set(shifted)) <= 2  # about 5% of 32 honest series
     start = HISTORY + 24

@@ -130,10 +130,10 @@ FINDING_COLUMNS: tuple[str, ...] = tuple(f.name for f in dataclasses.fields(Find
 class FlagOptions:
     """Every threshold of ``flags``, with its default (each is a CLI option of the same name).
 
-    Drift (:mod:`ledger.findings.drift`): ``drift_k``, ``drift_h`` (CUSUM allowance and decision interval
-    in reference standard deviations); ``reference`` (cells in the reference window; None = two
-    seasons, at least 8); ``ts_window`` (tracking-signal window; None = one season, at least 6);
-    ``trigg_alpha``.
+    Drift (:mod:`ledger.findings.drift`): ``drift_k``, ``drift_h`` (allowance and decision
+    interval, in long-run standard deviations, of the CUSUM that dates when a monitor would have
+    sounded); ``ts_window`` (tracking-signal window; None = one season, at least 6);
+    ``trigg_alpha``; drift tests share ``fdr`` and ``min_cells`` with calibration.
     Calibration (:mod:`ledger.findings.calibration`): ``fdr`` (level of the false-finding control across all
     calibration tests), ``correction`` ("bh" Benjamini-Hochberg or "holm"), ``min_cells`` (fewer
     cells: "not enough data to judge"), ``series_calibration`` (also test each series),
@@ -149,7 +149,6 @@ class FlagOptions:
 
     drift_k: float = 0.5
     drift_h: float = DRIFT_H
-    reference: int | None = None
     ts_window: int | None = None
     trigg_alpha: float = 0.1
     fdr: float = 0.05

@@ -29,7 +29,7 @@ p-values: the statistics are studentised with estimated spreads, so their small-
 is simulated once per record length (iid N(0, 1) errors through the same estimators, fixed seed,
 :data:`NULL_DRAWS` draws) and cached; beyond the simulated range the tail is extrapolated with
 the shape of the limit (normal tail for the scan, exp(-2x^2) for the bridge) matched at the
-0.1% point. Under iid normal errors the p-values are exact up to simulation error; under
+0.5% point. Under iid normal errors the p-values are exact up to simulation error; under
 AR(1) errors they rest on the long-run variance (measured in tests/benchmarks/bench_findings.py).
 
 Sign convention: e = actual - forecast; a positive shift means forecasts too low.
@@ -59,16 +59,17 @@ __all__ = [
     "corrected_phi",
     "residual_phi",
     "PHI_GRID",
+    "N_GRID",
 ]
 
 #: Draws of the simulated null per record length (p-values resolve to about 1 / NULL_DRAWS
 #: before the tail extrapolation takes over).
-NULL_DRAWS = 4000
+NULL_DRAWS = 2000
 #: Shortest segment after a change the scan considers (common practice, no source: fewer than
 #: three cells cannot tell a shift from one large error).
 MIN_SEGMENT = 3
 _SEED = 20261202
-_TAIL_AT = 0.001
+_TAIL_AT = 0.005
 _PHI_MAX = 0.8  # largest autocorrelation allowed for in the long-run variance (common practice, no source)
 _FITTED_BIAS = 2.4  # see long_run_variance: autocorrelation lost to a fitted change point (simulated)
 _MAD_TO_SD = 1.4826  # 1 / Phi^-1(3/4): MAD of a normal sample to its sd (standard constant)
@@ -272,9 +273,29 @@ def _null(test: str, n: int, min_segment: int, pooled: bool) -> tuple[np.ndarray
     return np.stack(tables), np.maximum.accumulate(np.asarray(index))
 
 
+#: Record lengths at which the null is simulated; other lengths interpolate between the two
+#: nearest (the null changes slowly with n), so a ledger needs a handful of tables, not one per length.
+N_GRID = (8, 10, 12, 14, 16, 20, 24, 30, 36, 42, 48, 60, 72, 96, 120, 180, 240)
+
+
 def _p_values(stat: np.ndarray, phi: np.ndarray, test: str, n: int, min_segment: int, pooled: bool,
               tail_shape) -> np.ndarray:
-    """p-value of each row against the simulated nulls that bracket its autocorrelation.
+    """p-value of each row, interpolated linearly between the simulated nulls of the two grid
+    record lengths around n (exact n beyond the grid) and, within each, between the two grid
+    autocorrelations around the row's (:func:`_p_at_length`)."""
+    grid = np.asarray(N_GRID)
+    if n <= grid[0] or n >= grid[-1] or n in N_GRID:
+        return _p_at_length(stat, phi, test, n, min_segment, pooled, tail_shape)
+    hi = int(grid[np.searchsorted(grid, n)])
+    lo = int(grid[np.searchsorted(grid, n) - 1])
+    w = (n - lo) / (hi - lo)
+    return ((1 - w) * _p_at_length(stat, phi, test, lo, min_segment, pooled, tail_shape)
+            + w * _p_at_length(stat, phi, test, hi, min_segment, pooled, tail_shape))
+
+
+def _p_at_length(stat: np.ndarray, phi: np.ndarray, test: str, n: int, min_segment: int, pooled: bool,
+                 tail_shape) -> np.ndarray:
+    """p-value of each row against the simulated nulls of length n that bracket its autocorrelation.
 
     The row's (own or pooled) autocorrelation falls between the indices of two grid nulls; its
     p-value is interpolated linearly between theirs. At or below the first index the first

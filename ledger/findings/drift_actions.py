@@ -1,0 +1,64 @@
+"""The figures behind a drift finding's action: a constant bias correction fitted on earlier
+cells, the model that was more accurate since the change, and impact as a share of the ledger.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+__all__ = ["corrected_mae", "best_other", "share", "SeriesIndex"]
+
+
+def corrected_mae(e) -> tuple[float, float, int]:
+    """(MAE after correction, MAE without, cells judged) of a constant correction fitted on earlier cells.
+
+    For cell i >= 2 of e (the errors since a change, in period order) the correction is the mean
+    of e[0..i-1], fitted only on cells before i, so the figure is out of sample:
+    MAE_fixed = mean_i |e_i - mean(e_0..e_{i-1})|, MAE_plain = mean_i |e_i|. NaN with fewer than
+    two cells to judge.
+    """
+    e = np.asarray(e, dtype=float)
+    if e.size < 4:
+        return float("nan"), float("nan"), 0
+    running = np.cumsum(e)[:-1] / np.arange(1, e.size)
+    later = e[2:]
+    fixed = np.abs(later - running[1:])
+    return float(fixed.mean()), float(np.abs(later).mean()), int(later.size)
+
+
+class SeriesIndex:
+    """Row positions of each series in a cells frame, computed once for many look-ups."""
+
+    def __init__(self, cells: pd.DataFrame):
+        self.cells = cells
+        self.rows = cells.groupby("series", sort=False).indices
+
+    def of(self, series: str) -> pd.DataFrame:
+        return self.cells.iloc[self.rows.get(series, np.empty(0, dtype=int))]
+
+
+def best_other(index: SeriesIndex, model: str, series: str, horizons, since: int) -> tuple | None:
+    """(model, its MAE, this model's MAE, common cells) of the most accurate other model on the
+    common cells of ``series`` at ``horizons`` with target period >= ``since``; None when no
+    other model has a lower MAE there."""
+    part = index.of(series)
+    part = part[part["horizon"].isin(list(horizons)) & (part["period_index"] >= since)]
+    keys = ["period_index", "horizon"]
+    mine = part.loc[part["model"] == model, keys + ["e"]]
+    best = None
+    for other, g in part[part["model"] != model].groupby("model", sort=True):
+        common = mine.merge(g[keys + ["e"]], on=keys, suffixes=("", "_o"))
+        if len(common) < 2:
+            continue
+        own, theirs = float(common["e"].abs().mean()), float(common["e_o"].abs().mean())
+        if theirs < own and (best is None or theirs / own < best[1] / best[2]):
+            best = (str(other), theirs, own, len(common))
+    return best
+
+
+def share(excess: float, total: float) -> float:
+    """Impact in percent: 100 x excess / total (0 when either is missing or total is 0)."""
+    if not (np.isfinite(excess) and np.isfinite(total) and total > 0):
+        return 0.0
+    return float(100.0 * excess / total)

@@ -30,10 +30,9 @@ from typing import Literal, get_args
 import pandas as pd
 
 from ..stats.signals import DRIFT_H
-from ..intake.csvread import list_names
 from ..errors import UnknownName
-from ..periods import index_start, period_label
 from ..store import Store
+from ..wording import SEVERITY_ORDER, list_names
 
 __all__ = [
     "FindingKind",
@@ -47,15 +46,10 @@ __all__ = [
     "FINDING_COLUMNS",
     "findings_frame",
     "count_summary",
-    "label",
-    "num",
-    "signed",
-    "pval",
     "about",
     "horizon_text",
     "known_models",
     "check_models",
-    "list_names",
 ]
 
 FindingKind = Literal["drift", "calibration", "value", "data"]
@@ -63,7 +57,6 @@ Severity = Literal["act", "watch", "note"]
 Correction = Literal["bh", "holm"]
 KINDS: tuple[str, ...] = get_args(FindingKind)
 SEVERITIES: tuple[str, ...] = get_args(Severity)
-SEVERITY_ORDER = {s: i for i, s in enumerate(SEVERITIES)}
 
 
 @dataclasses.dataclass(frozen=True)
@@ -220,35 +213,6 @@ def count_summary(frame: pd.DataFrame) -> str:
     by_kind = ", ".join(f"{k} {int(kinds[k])}" for k in KINDS if k in kinds)
     plural = "s" if len(frame) != 1 else ""
     return f"{len(frame)} finding{plural}: {by_severity} ({by_kind})"
-
-
-def label(index: int, freq: str) -> str:
-    """The period label (2026-01, 2026Q3) of a period index."""
-    return period_label(index_start(int(index), freq), freq)
-
-
-def num(x: float) -> str:
-    """A number for a sentence: three significant figures, no exponent, thousands separated."""
-    if x is None or not math.isfinite(x):
-        return "–"
-    if abs(x) >= 100:
-        return f"{x:,.0f}"
-    if abs(x) >= 10:
-        return f"{x:.1f}"
-    return f"{x:.2f}" if abs(x) >= 0.01 or x == 0 else f"{x:.2g}"
-
-
-def signed(x: float) -> str:
-    """Like :func:`num` with a sign (+9.8, -0.41)."""
-    text = num(x)
-    return text if text.startswith("-") or text == "–" else f"+{text}"
-
-
-def pval(p: float) -> str:
-    """A p-value for a sentence: 'p 0.031', 'p < 0.0001', 'p –' when undefined."""
-    if p is None or not math.isfinite(p):
-        return "p –"
-    return "p < 0.0001" if p < 0.0001 else f"p {p:.2g}"
 
 
 def about(x: float) -> str:

@@ -53,10 +53,10 @@ from scipy import stats
 
 from ..stats import intervals as _calibration
 from ..stats.intervals import IndependenceTest, ZoneResult, benjamini_hochberg, holm
-from .base import Finding, FlagOptions, about, label, pval
+from .base import Finding, FlagOptions, about
 from .calibration_actions import excess_miss_cost, recalibration
 from .drift_actions import share
-from ..intake.ingest import format_level
+from ..wording import format_level, label, pval
 
 __all__ = ["calibration_findings", "bucket_labels"]
 

@@ -39,7 +39,8 @@ import pandas as pd
 from ..stats.changepoint import MIN_SEGMENT, bias_scan, bonferroni_pair, residual_phi, size_shift
 from ..stats.intervals import benjamini_hochberg
 from ..stats.signals import cusum, tracking_signal, trigg_signal, tracking_window
-from .base import Finding, FlagOptions, horizon_text, label, num, pval, signed
+from .base import Finding, FlagOptions, horizon_text
+from ..wording import label, pval, short_num as num, signed
 from .drift_actions import SeriesIndex, best_other, corrected_mae, share
 
 __all__ = ["drift_findings", "horizon_ranges", "POOL_MIN", "ACT_SHARE", "CONSOLIDATE_MIN", "CONSOLIDATE_SPAN"]

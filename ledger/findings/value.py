@@ -40,7 +40,8 @@ import pandas as pd
 
 from ..stats.intervals import benjamini_hochberg
 from ..stats.comparison import DMResult, dm_hln
-from .base import Finding, FlagOptions, label, num, pval
+from .base import Finding, FlagOptions
+from ..wording import label, pval, short_num as num
 from .drift_actions import share
 from .standings import paired, period_differential
 

@@ -192,7 +192,9 @@ class Ledger:
         """Drift, calibration, value-added and data-quality findings, one row per finding.
 
         Columns: kind, series, model, horizon, level, since, figure, evidence, check, severity,
-        zone, horizons, raised, measure, p_value, n. ``thresholds``: the fields of
+        zone, horizons, raised, measure, p_value, n, impact, action, action_figure, action_measure,
+        series_list, key; ranked by severity (act, watch, note) then impact, with a one-line
+        count in ``frame.attrs["summary"]``. ``thresholds``: the fields of
         :class:`ledger.findings.base.FlagOptions` (e.g. ``drift_h=5.5``, ``fdr=0.05``,
         ``benchmark="ref-snaive"``), each with its stated default.
         """

@@ -34,7 +34,7 @@ calibration: its horizon-1 misses, by an exact two-sided binomial test against t
 pooled horizon-1 miss rate at that level; these tests form a second family under the same
 correction.
 
-Action (:mod:`ledger.findings.calibration_actions`): the half-width factor that reaches the
+Action (:mod:`ledger.stats.recalibration`): the half-width factor that reaches the
 stated level over the recent window, and the coverage a factor fitted on the earlier cells
 gives on the recent window, out of sample. Impact: the scaled distance by which recent misses
 beyond the nominal rate fell outside their intervals (too-wide intervals cost no accuracy:
@@ -54,7 +54,7 @@ from scipy import stats
 from ..stats import intervals as _calibration
 from ..stats.intervals import IndependenceTest, ZoneResult, benjamini_hochberg, holm
 from .base import Finding, FlagOptions, about
-from .calibration_actions import excess_miss_cost, recalibration
+from ..stats.recalibration import excess_miss_cost, recalibration
 from .drift_actions import share
 from ..wording import format_level, label, pval
 

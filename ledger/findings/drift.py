@@ -41,7 +41,8 @@ from ..stats.intervals import benjamini_hochberg
 from ..stats.signals import cusum, tracking_signal, trigg_signal, tracking_window
 from .base import Finding, FlagOptions, horizon_text
 from ..wording import label, pval, short_num as num, signed
-from .drift_actions import SeriesIndex, best_other, corrected_mae, share
+from ..stats.recalibration import corrected_mae
+from .drift_actions import SeriesIndex, best_other, share
 
 __all__ = ["drift_findings", "horizon_ranges", "POOL_MIN", "ACT_SHARE", "CONSOLIDATE_MIN", "CONSOLIDATE_SPAN"]
 

@@ -1,5 +1,5 @@
-"""The figures behind a drift finding's action: a constant bias correction fitted on earlier
-cells, the model that was more accurate since the change, and impact as a share of the ledger.
+"""Ledger-side figures of findings: the model that was more accurate since a change, and impact
+as a share of the ledger (the pure correction figure is :func:`ledger.stats.recalibration.corrected_mae`).
 """
 
 from __future__ import annotations
@@ -7,24 +7,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-__all__ = ["corrected_mae", "best_other", "share", "SeriesIndex"]
-
-
-def corrected_mae(e) -> tuple[float, float, int]:
-    """(MAE after correction, MAE without, cells judged) of a constant correction fitted on earlier cells.
-
-    For cell i >= 2 of e (the errors since a change, in period order) the correction is the mean
-    of e[0..i-1], fitted only on cells before i, so the figure is out of sample:
-    MAE_fixed = mean_i |e_i - mean(e_0..e_{i-1})|, MAE_plain = mean_i |e_i|. NaN with fewer than
-    two cells to judge.
-    """
-    e = np.asarray(e, dtype=float)
-    if e.size < 4:
-        return float("nan"), float("nan"), 0
-    running = np.cumsum(e)[:-1] / np.arange(1, e.size)
-    later = e[2:]
-    fixed = np.abs(later - running[1:])
-    return float(fixed.mean()), float(np.abs(later).mean()), int(later.size)
+__all__ = ["best_other", "share", "SeriesIndex"]
 
 
 class SeriesIndex:

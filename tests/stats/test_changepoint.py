@@ -20,8 +20,7 @@ from ledger.stats.changepoint import (
     robust_spread,
     size_shift,
 )
-from ledger.findings.calibration_actions import conformal_factor, excess_miss_cost, recalibration
-from ledger.findings.drift_actions import corrected_mae
+from ledger.stats.recalibration import conformal_factor, corrected_mae, excess_miss_cost, recalibration
 
 
 def _ar1(rng, draws, n, phi):

@@ -1,5 +1,6 @@
-"""The figures behind a calibration finding's action: the half-width factor that recalibrates an
-interval, the coverage it would have given out of sample, and the cost of the excess misses.
+"""Figures behind the actions of findings; pure, array in, number out: the half-width factor that
+recalibrates an interval, the coverage it would have given out of sample, the cost of the
+excess misses, and the MAE of a constant bias correction fitted on earlier cells.
 
 Recalibration is split-conformal in spirit (Vovk, Gammerman & Shafer 2005, *Algorithmic
 Learning in a Random World*; Angelopoulos & Bates 2021, "A gentle introduction to conformal
@@ -15,7 +16,7 @@ import math
 
 import numpy as np
 
-__all__ = ["conformal_factor", "recalibration", "excess_miss_cost"]
+__all__ = ["conformal_factor", "recalibration", "excess_miss_cost", "corrected_mae"]
 
 
 def conformal_factor(ratio, level: float) -> float:
@@ -61,3 +62,20 @@ def excess_miss_cost(dist, missed, level: float) -> float:
     p_hat = missed.mean()
     p = 1 - level / 100
     return float(np.nansum(dist) * max(0.0, 1 - p / p_hat))
+
+
+def corrected_mae(e) -> tuple[float, float, int]:
+    """(MAE after correction, MAE without, cells judged) of a constant correction fitted on earlier cells.
+
+    For cell i >= 2 of e (the errors since a change, in period order) the correction is the mean
+    of e[0..i-1], fitted only on cells before i, so the figure is out of sample:
+    MAE_fixed = mean_i |e_i - mean(e_0..e_{i-1})|, MAE_plain = mean_i |e_i|. NaN with fewer than
+    two cells to judge.
+    """
+    e = np.asarray(e, dtype=float)
+    if e.size < 4:
+        return float("nan"), float("nan"), 0
+    running = np.cumsum(e)[:-1] / np.arange(1, e.size)
+    later = e[2:]
+    fixed = np.abs(later - running[1:])
+    return float(fixed.mean()), float(np.abs(later).mean()), int(later.size)

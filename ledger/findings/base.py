@@ -45,7 +45,6 @@ __all__ = [
     "FlagOptions",
     "FINDING_COLUMNS",
     "findings_frame",
-    "count_summary",
     "about",
     "horizon_text",
     "known_models",
@@ -185,8 +184,8 @@ class FlagOptions:
 
 def findings_frame(findings: Iterable[Finding]) -> pd.DataFrame:
     """Findings as a frame, ranked: severity (act, watch, note), then impact (largest first),
-    then kind, model, series, horizon, level. ``frame.attrs["summary"]`` holds
-    :func:`count_summary` of the rows."""
+    then kind, model, series, horizon, level (the count line is
+    :func:`ledger.findings.summary.finding_counts`)."""
     found = list(findings)
     rows = [dataclasses.asdict(f) | {"key": f.key} for f in found]
     frame = pd.DataFrame(rows, columns=list(FINDING_COLUMNS))
@@ -198,21 +197,7 @@ def findings_frame(findings: Iterable[Finding]) -> pd.DataFrame:
                          _k=frame["kind"].map({k: i for i, k in enumerate(KINDS)}))
     frame = frame.sort_values(["_s", "_i", "_k", "model", "series", "horizon", "level", "since"],
                               kind="stable", na_position="first")
-    frame = frame.drop(columns=["_s", "_i", "_k"]).reset_index(drop=True)
-    frame.attrs["summary"] = count_summary(frame)
-    return frame
-
-
-def count_summary(frame: pd.DataFrame) -> str:
-    """One line: '12 findings: 3 act, 4 watch, 5 note (drift 5, calibration 4, value 1, data 2)'."""
-    if frame.empty:
-        return "no findings"
-    severities = frame["severity"].value_counts()
-    kinds = frame["kind"].value_counts()
-    by_severity = ", ".join(f"{int(severities.get(s, 0))} {s}" for s in SEVERITIES)
-    by_kind = ", ".join(f"{k} {int(kinds[k])}" for k in KINDS if k in kinds)
-    plural = "s" if len(frame) != 1 else ""
-    return f"{len(frame)} finding{plural}: {by_severity} ({by_kind})"
+    return frame.drop(columns=["_s", "_i", "_k"]).reset_index(drop=True)
 
 
 def about(x: float) -> str:

@@ -10,6 +10,7 @@ import numpy as np
 import pytest
 
 from ledger.findings.base import Finding, findings_frame
+from ledger.findings.summary import finding_counts
 from ledger.wording import label
 
 from tests.planted import HISTORY, build, month
@@ -111,7 +112,7 @@ def test_flags_rank_by_severity_then_impact_and_count_first():
                             _f("value", "act", 4.0), _f("drift", "act", 2.0, "t")])
     assert list(zip(frame["kind"], frame["severity"])) == [
         ("value", "act"), ("drift", "act"), ("calibration", "act"), ("drift", "watch"), ("data", "note")]
-    assert frame.attrs["summary"] == "5 findings: 3 act, 1 watch, 1 note (drift 2, calibration 1, value 1, data 1)"
+    assert finding_counts(frame) == "5 findings: 3 act, 1 watch, 1 note; 2 drift, 1 calibration, 1 value, 1 data"
     assert frame["key"].tolist()[0] == "value|m|s||"
 
 

@@ -5,7 +5,7 @@ One home, so that two copies cannot drift apart (two formats of one interval lev
 columns collide). Everything here is pure string formatting: nothing reads the ledger.
 
 - Periods: :func:`label` / :func:`labels` turn period indexes into labels ('2026-01', '2026Q3').
-- Severity: :data:`SEVERITY_ORDER` ranks alert before watch before note (:func:`severity_rank`).
+- Severity: :data:`SEVERITY_ORDER` ranks act before watch before note (:func:`severity_rank`).
 - Levels: :func:`format_level` writes an interval level (or a quantile level) as it appears in
   column names and sentences ('80', '97.5'); :func:`quantile_name` names a quantile's input
   column ('q10', 'q975').
@@ -43,12 +43,12 @@ __all__ = [
     "signed",
 ]
 
-#: Findings are listed most urgent first: a crossed limit, then the watch zone, then notes.
-SEVERITY_ORDER: dict[str, int] = {"alert": 0, "watch": 1, "note": 2}
+#: Findings are listed most urgent first: act (costs accuracy now), watch, then notes (context).
+SEVERITY_ORDER: dict[str, int] = {"act": 0, "watch": 1, "note": 2}
 
 
 def severity_rank(severity: str) -> int:
-    """Sort key of a severity; an unknown one ranks with 'watch' (between alerts and notes)."""
+    """Sort key of a severity; an unknown one ranks with 'watch' (between act and notes)."""
     return SEVERITY_ORDER.get(severity, 1)
 
 

@@ -29,7 +29,7 @@ from ledger.wording import format_level, severity_rank
 from . import charts
 from .data import LedgerData, check_roles, findings_job, load, quiet, report_models, series_count
 from .group_views import GROUPS_PAGE, GroupData, build_groups, check_group_by, count_findings, load_groups
-from .names import page_names, safe_write
+from .names import claim_folder, page_names, safe_write
 from .render import findings_table, render_page
 from .series_views import Columns, SeriesInput, build_series, metrics_for
 from .views import (
@@ -97,7 +97,7 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
     """
     stamp = parse_as_of(as_of)
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
+    claim_folder(out)
     path = str(Path(ledger_path).resolve())
     with quiet(Ledger.open(ledger_path, create=False, read_only=True)) as book, \
             _executor(_worker_count(series_count(book, stamp), workers)) as pool:

@@ -20,6 +20,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from .columns import bound_columns, is_level_column, misspelt_column, quantile_columns
+from .keys import case_twins_warning, check_option, normalise_keys
 from ..errors import FrequencyError, InputError
 from ..periods import FREQUENCIES, check_frequency, parse_label
 from .sources import Chunk, open_table
@@ -181,7 +182,7 @@ MAX_HORIZON = 1000
 
 def _keys(source: str, frame: pd.DataFrame, column: str) -> pa.Array:
     _check_value_kinds(source, frame[column], column, number=False)
-    text = _as_text(frame[column])
+    text = normalise_keys(source, _as_text(frame[column]), column)
     empty = _mask(pc.equal(text, ""))
     if empty.any():
         raise InputError(source, "is empty", row=int(np.argmax(empty)) + 1, column=column)
@@ -268,6 +269,15 @@ def _extra_columns(columns: list[str], known: set[str], source: str) -> list[str
     return extras
 
 
+def _case_warnings(source: str, stage: Stage, *columns: tuple[str, str]) -> list[str]:
+    """Warnings naming keys of the file that differ only by case from each other or the ledger's."""
+    out = []
+    for column, table in columns:
+        if warning := case_twins_warning(source, column, stage.case_twins(column, table)):
+            out.append(warning)
+    return out
+
+
 def _ignored(source: str, extras: list[str]) -> str:
     shown = list_names([shorten(c) for c in extras], 10)
     return f"{source}: ignored column{'s' if len(extras) > 1 else ''} {shown}"
@@ -277,16 +287,18 @@ def _model_origin(source, frame, model, origin) -> tuple[pa.Array, pa.Array]:
     n = len(frame)
     out = []
     for column, option in (("model", model), ("origin", origin)):
+        if option is not None:
+            option = check_option(option, f"--{column}")
         if column in frame.columns:
             values = _keys(source, frame, column)
             if option is not None:
-                differ = _mask(pc.not_equal(values, str(option).strip()))
+                differ = _mask(pc.not_equal(values, option))
                 if differ.any():
                     i = int(np.argmax(differ))
                     raise InputError(source, f"{values[i].as_py()!r} differs from --{column} {option}; give one or the other",
                                      row=i + 1, column=column)
         elif option is not None:
-            values = pa.array(np.full(n, str(option).strip(), dtype=object), pa.string())
+            values = pa.array(np.full(n, option, dtype=object), pa.string())
         else:
             raise InputError(source, f"has no {column} column and no --{column} was given")
         out.append(values)
@@ -337,6 +349,7 @@ def read_forecasts(
         stage.check_horizons(source, frequency, MAX_HORIZON)
         stage.check_unique(source, ["model", "origin_index", "series", "period_index"], "period",
                            "a second forecast for the same series, period, model and origin")
+        warnings += _case_warnings(source, stage, ("series", "series"), ("model", "runs"))
     except BaseException:
         stage.close()
         raise
@@ -441,6 +454,7 @@ def read_actuals(store: Store, data, *, freq: str | None = None, name: str | Non
         stage.check_recorded(source, frequency)
         stage.resolve({label: day for label, (_, day) in parsed.items()}, frequency, ["period"])
         stage.check_unique(source, ["series", "period_index"], "period", "a second actual for the same series and period")
+        warnings += _case_warnings(source, stage, ("series", "series"))
     except BaseException:
         stage.close()
         raise

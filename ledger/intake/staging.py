@@ -134,6 +134,17 @@ class Stage:
         if rows:
             raise InputError(source, f"{what} (first at row {rows[0][1]})", row=rows[0][0], column=column)
 
+    def case_twins(self, column: str, table: str, limit: int = 6) -> list[list[str]]:
+        """Groups of keys in ``column`` (with the ledger's ``table``.``column``) equal but for case,
+        each holding at least one key of this file."""
+        rows = self.con.execute(f"""
+            WITH mine AS (SELECT DISTINCT {column} AS k FROM {self.ready}),
+                 keys AS (SELECT k FROM mine UNION SELECT DISTINCT {column} FROM {table}
+                          WHERE lower({column}) IN (SELECT lower(k) FROM mine))
+            SELECT list(k ORDER BY k) FROM keys GROUP BY lower(k) HAVING count(*) > 1
+            ORDER BY 1 LIMIT {int(limit)}""").fetchall()
+        return [r[0] for r in rows]
+
     def series(self) -> list[str]:
         return [r[0] for r in self.con.execute(f"SELECT DISTINCT series FROM {self.ready} ORDER BY series").fetchall()]
 

@@ -23,6 +23,8 @@ from ledger.findings import standings as _standings
 from ledger.findings.flags import flags as _flag_cells
 from ledger.scoring.cells import Selection, score_cells
 
+from .value_added import check_overrides, default_benchmark, fva_steps
+
 __all__ = [
     "check_roles",
     "Findings",
@@ -43,6 +45,7 @@ class Findings:
     comparisons: dict[tuple[str, str], pd.DataFrame]
     standings: pd.DataFrame
     advice: pd.DataFrame | None
+    value_added: pd.DataFrame     # forecast value added sums per step and horizon (reports.value_added)
 
 
 @dataclasses.dataclass
@@ -57,6 +60,7 @@ class LedgerData:
     incumbent: str | None
     benchmark: str | None
     models: list[str]
+    overrides: dict[str, str]     # override model -> the model it adjusts
     series: pd.DataFrame          # series, frequency, season_length
     runs: pd.DataFrame            # live runs at the as-of
     by_model_h: pd.DataFrame      # scores by model, horizon
@@ -85,7 +89,7 @@ class Window:
 
 def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | None, horizon: int,
          incumbent: str | None, benchmark: str | None, with_findings: bool = True,
-         models: list[str] | None = None) -> LedgerData:
+         models: list[str] | None = None, overrides: dict[str, str] | None = None) -> LedgerData:
     """Read every frame the report needs, at ``as_of`` (findings only ``with_findings``).
 
     ``models``: what :func:`report_models` returned for the same as-of and periods, if the
@@ -95,13 +99,15 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
     models = _models(book, sel) if models is None else models
     incumbent = incumbent or book.incumbent
     check_roles(models, incumbent, benchmark, as_of)
+    overrides = dict(overrides or {})
+    check_overrides(overrides, models)
     q = dict(as_of=as_of, since=since, until=until)
     by_model_period = book.scores(by=["model", "period"], horizons=[horizon], **q)
     window = _window(by_model_period, book.main_frequency(as_of=as_of) or "monthly")
     head_q = dict(q, since=window.first or since)
     return LedgerData(
         as_of=as_of, state_hash=book.store.state_hash(as_of), since=since, until=until,
-        horizon=horizon, incumbent=incumbent, benchmark=benchmark, models=models,
+        horizon=horizon, incumbent=incumbent, benchmark=benchmark, models=models, overrides=overrides,
         series=book.series_table(as_of=as_of), runs=book.live_runs(as_of=as_of),
         by_model_h=book.scores(by=["model", "horizon"], **q),
         by_model_period=by_model_period,
@@ -112,7 +118,7 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
         cells=book.cells(horizons=[horizon], **q),
         actuals=book.actual_history(as_of=as_of), latest=book.latest_forecasts(as_of=as_of),
         pending=book.pending_cells(**q),
-        findings=_findings(book, models, as_of, horizon, incumbent, benchmark) if with_findings else None,
+        findings=_findings(book, models, as_of, horizon, incumbent, benchmark, overrides) if with_findings else None,
     )
 
 
@@ -160,7 +166,8 @@ def series_count(book: Ledger, as_of: dt.datetime) -> int:
     return len(book.series_table(as_of=as_of))
 
 
-def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, benchmark) -> Findings:
+def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, benchmark,
+              overrides: dict[str, str]) -> Findings:
     """The same frames as ``Ledger.flags``, ``compare``, ``standings`` and ``advise`` at ``as_of``
     (no model, horizon or period filter), from one read of the scored cells shared by all."""
     store, sel = book.store, book.selection(as_of=as_of)
@@ -171,7 +178,8 @@ def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, b
     ranks = _standings.standings(store, dataclasses.replace(sel, horizons=(horizon,)), cells=cells)
     advice = (_standings.advise(store, sel, incumbent, cells=cells)
               if incumbent and len(models) > 1 else None)
-    return Findings(found, comparisons, ranks, advice)
+    fva = fva_steps(cells, models, default_benchmark(models, benchmark), overrides)
+    return Findings(found, comparisons, ranks, advice, fva)
 
 
 # Jobs for worker processes: each opens the ledger read-only (DuckDB allows many readers).
@@ -186,8 +194,8 @@ def quiet(book: Ledger) -> Ledger:
 
 
 def findings_job(path: str, as_of: dt.datetime, models: list[str], horizon: int, incumbent: str | None,
-                 benchmark: str | None) -> Findings:
+                 benchmark: str | None, overrides: dict[str, str]) -> Findings:
     """All findings of a report in one worker, sharing one read of the scored cells."""
     with _open(path) as book:
-        return _findings(book, models, as_of, horizon, incumbent, benchmark)
+        return _findings(book, models, as_of, horizon, incumbent, benchmark, overrides)
 

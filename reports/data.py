@@ -198,4 +198,3 @@ def findings_job(path: str, as_of: dt.datetime, models: list[str], horizon: int,
     """All findings of a report in one worker, sharing one read of the scored cells."""
     with _open(path) as book:
         return _findings(book, models, as_of, horizon, incumbent, benchmark, overrides)
-

@@ -16,7 +16,9 @@ from importlib import resources
 import jinja2
 import markupsafe
 
-from .text import SMALL_SAMPLE, bias_words, num, pct
+from ledger.wording import num, p_value, pct
+
+from .text import SMALL_SAMPLE, bias_words
 
 __all__ = ["CSP", "environment", "findings_table", "render_page"]
 
@@ -63,9 +65,7 @@ def _share(x):
 
 
 def _pvalue(p):
-    if not _finite(p):
-        return "–"
-    return _data(p, "< 0.0001" if p < 0.0001 else f"{p:.2g}")
+    return _data(p, p_value(p)) if _finite(p) else p_value(p)
 
 
 @functools.cache

@@ -15,7 +15,9 @@ import pandas as pd
 
 from .coverage import coverage_cell
 from .data import LedgerData
-from .text import coverage_words, is_small, num, pct, plural, sample_note
+from ledger.wording import num, pct, severity_rank
+
+from .text import coverage_words, is_small, plural, sample_note
 
 __all__ = ["TOP_FINDINGS", "HeadFigure", "Review", "TopFinding", "build_review", "missing_notes", "rank_flags"]
 
@@ -29,7 +31,6 @@ _ACTIONS = {
     "value": "question the step: the benchmark does as well at less cost",
     "data": "check the actuals and the series' history before trusting its scores",
 }
-_SEVERITY = {"alert": 0, "watch": 1, "note": 2}
 
 
 @dataclasses.dataclass(frozen=True)
@@ -66,11 +67,11 @@ def _f(x) -> float:
 
 
 def rank_flags(flags: pd.DataFrame) -> pd.DataFrame:
-    """Flags by severity (alert, watch, note; other words after watch), then impact (highest
-    first) when the findings carry an ``impact`` column, else in the order given."""
+    """Flags by severity (``ledger.wording.severity_rank``), then impact (highest first) when the
+    findings carry an ``impact`` column, else in the order given."""
     if flags.empty:
         return flags
-    keys = pd.DataFrame({"s": flags["severity"].map(lambda s: _SEVERITY.get(s, 1)) if "severity" in flags else 1,
+    keys = pd.DataFrame({"s": flags["severity"].map(lambda s: severity_rank(s)) if "severity" in flags else 1,
                          "i": -pd.to_numeric(flags["impact"], errors="coerce").fillna(0) if "impact" in flags else 0,
                          "o": range(len(flags))}, index=flags.index)
     return flags.loc[keys.sort_values(["s", "i", "o"], kind="stable").index]
@@ -190,10 +191,10 @@ def _picks(flags: pd.DataFrame) -> list[dict]:
     rows = flags.to_dict("records")
     if "impact" in flags.columns or len(rows) <= TOP_FINDINGS:
         return rows[:TOP_FINDINGS]
-    top = min(_SEVERITY.get(r.get("severity"), 1) for r in rows)
+    top = min(severity_rank(r.get("severity")) for r in rows)
     queues: dict[str, list[dict]] = {}
     for r in rows:
-        if _SEVERITY.get(r.get("severity"), 1) == top:
+        if severity_rank(r.get("severity")) == top:
             queues.setdefault(str(r.get("kind")), []).append(r)
     picked: list[dict] = []
     while len(picked) < TOP_FINDINGS and any(queues.values()):

@@ -15,7 +15,9 @@ import numpy as np
 import pandas as pd
 
 from . import charts
-from .text import num, plural
+from ledger.wording import num
+
+from .text import plural
 from .value_added import FvaRow, fva_rows
 
 __all__ = ["ROLLING", "fva_chart", "rolling", "trend_charts"]

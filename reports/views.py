@@ -14,6 +14,8 @@ from collections.abc import Sequence
 
 import pandas as pd
 
+from ledger.wording import num, pct
+
 from . import charts
 from .coverage import CoverageCell, coverage_cell
 from .data import LedgerData
@@ -25,8 +27,6 @@ from .text import (
     bias_words,
     coverage_words,
     is_small,
-    num,
-    pct,
     plural,
     sample_note,
     tolerance_band,

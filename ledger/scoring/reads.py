@@ -14,6 +14,7 @@ import datetime as dt
 import pandas as pd
 
 from ..store import Store, latest_actuals_sql, live_runs_sql
+from ..wording import format_level
 from .cells import Selection, bounds_join, cells_sql, forecasts_sql
 
 __all__ = [
@@ -95,7 +96,7 @@ def latest_forecasts(store: Store, as_of: dt.datetime) -> pd.DataFrame:
     """The newest live run of each model for each series: its forecasts, bounds as lower_L/upper_L.
 
     Columns: model, series, origin_index, period_index, horizon, point, then lower_L and upper_L
-    per interval level L (formatted with ``%g``); rows by series, model, period_index.
+    per interval level L (formatted by ``ledger.wording.format_level``); rows by series, model, period_index.
     """
     fc, params = forecasts_sql(Selection(as_of))
     con = store.con
@@ -119,7 +120,7 @@ def latest_forecasts(store: Store, as_of: dt.datetime) -> pd.DataFrame:
 def _widen_bounds(points: pd.DataFrame, bounds: pd.DataFrame) -> pd.DataFrame:
     keys = ["model", "series", "period_index"]
     for level, part in bounds.groupby("level", sort=True):
-        tag = f"{level:g}"
+        tag = format_level(level)
         part = part.drop(columns="level").rename(columns={"lower": f"lower_{tag}", "upper": f"upper_{tag}"})
         points = points.merge(part, on=keys, how="left")
     return points

@@ -186,6 +186,10 @@ class Ledger:
         """Cells with bounds and misses per model, horizon, level (see ``reads.interval_counts``)."""
         return reads.interval_counts(self.store, self.selection(**selection), head)
 
+    def report_state_hash(self, *, as_of=None) -> str:
+        """SHA-256 of all a report reads at the as-of: runs, actuals, series, attributes, settings."""
+        return reads.report_state_hash(self.store, parse_as_of(as_of))
+
     def quiet(self) -> "Ledger":
         """Turn off DuckDB's progress bar on this connection (it writes to stdout); returns self."""
         reads.hide_progress(self.store)

@@ -106,7 +106,7 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
     window = _window(by_model_period, book.main_frequency(as_of=as_of) or "monthly")
     head_q = dict(q, since=window.first or since)
     return LedgerData(
-        as_of=as_of, state_hash=book.store.state_hash(as_of), since=since, until=until,
+        as_of=as_of, state_hash=book.report_state_hash(as_of=as_of), since=since, until=until,
         horizon=horizon, incumbent=incumbent, benchmark=benchmark, models=models, overrides=overrides,
         series=book.series_table(as_of=as_of), runs=book.live_runs(as_of=as_of),
         by_model_h=book.scores(by=["model", "horizon"], **q),

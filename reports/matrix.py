@@ -21,7 +21,7 @@ from ledger.findings.base import FlagOptions
 from .coverage import CoverageCell, coverage_cell
 from .text import is_small
 
-__all__ = ["CoverageMark", "Matrix", "MatrixCell", "MatrixRow", "build_matrix", "horizon_columns", "mark"]
+__all__ = ["CoverageMark", "Matrix", "MatrixCell", "MatrixRow", "build_matrix", "horizon_columns", "mark", "pooled_mase"]
 
 #: Horizon buckets of the matrix: the findings' own (ledger.findings.base.FlagOptions.buckets).
 BUCKETS: tuple[int, ...] = FlagOptions().buckets
@@ -111,12 +111,17 @@ def build_matrix(by_model_h: pd.DataFrame, intervals: pd.DataFrame, levels: Sequ
     return Matrix([label for label, _ in cols], rows, list(levels), marked)
 
 
-def _cell(part: pd.DataFrame, counts: pd.DataFrame, levels) -> tuple[float, int, list[CoverageMark]]:
-    n = int(part["n"].sum())
+def pooled_mase(part: pd.DataFrame) -> float:
+    """MASE over the cells of several rows of ``Ledger.scores`` (weights: scaled cells n − n_unscaled)."""
     scaled = part["n"] - part["n_unscaled"]
     ok = part["mase"].notna() & (scaled > 0)
     total = float(scaled[ok].sum())
-    mase = float((part.loc[ok, "mase"] * scaled[ok]).sum() / total) if total > 0 else math.nan
+    return float((part.loc[ok, "mase"] * scaled[ok]).sum() / total) if total > 0 else math.nan
+
+
+def _cell(part: pd.DataFrame, counts: pd.DataFrame, levels) -> tuple[float, int, list[CoverageMark]]:
+    n = int(part["n"].sum())
+    mase = pooled_mase(part)
     marks = []
     for level in levels:
         hit = counts[counts["level"] == level]

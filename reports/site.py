@@ -23,11 +23,13 @@ import pandas as pd
 from markupsafe import Markup
 
 from ledger import Ledger, __version__
+from ledger.findings.base import FlagOptions
 from ledger.store import parse_as_of, utc_now
 
 from . import charts
 from .data import LedgerData, check_roles, findings_job, load, quiet, report_models, series_count
-from .value_added import check_overrides
+from .trends import ROLLING
+from .value_added import SEASONAL_NAIVE_NAMES, check_overrides
 from .group_views import GROUPS_PAGE, GroupData, build_groups, check_group_by, count_findings, load_groups
 from .names import page_names
 from .review import rank_flags
@@ -77,6 +79,7 @@ class ReportResult:
     index_bytes: int
     state_hash: str
     as_of: str
+    advice: str          # the review's advice sentence (first screen of index.html)
 
 
 def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None, until: str | None = None,
@@ -131,7 +134,8 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
     return ReportResult(out_dir=out.resolve(), index=out.resolve() / "index.html",
                         pages=len(FIXED_PAGES) + extra + len(data.models) + len(inputs), model_pages=len(data.models),
                         series_pages=len(inputs), findings=len(rows), cells_scored=overview.counts["cells_scored"],
-                        index_bytes=(out / "index.html").stat().st_size, state_hash=data.state_hash, as_of=ctx.footer.as_of)
+                        index_bytes=(out / "index.html").stat().st_size, state_hash=data.state_hash, as_of=ctx.footer.as_of,
+                        advice=overview.review.advice)
 
 
 def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict):
@@ -145,13 +149,19 @@ def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict):
     write_page(out, "series.html", render_page("series_index.html", rows=build_series_index(data, ctx),
                                                ctx=ctx, page="series-index", **nav))
     tick("series index")
-    write_page(out, "methods.html", render_page("methods.html", ctx=ctx, page="methods", **nav))
+    write_page(out, "methods.html", render_page("methods.html", ctx=ctx, page="methods", **method_constants(), **nav))
     tick("methods")
     for model in data.models:
         view = build_model(data, ctx, model)
         write_page(out, view.href, render_page("model.html", v=view, ctx=ctx, page=view.href, **nav))
         tick(f"model {model}")
     return overview, rows
+
+
+def method_constants() -> dict:
+    """The figures the methods page states, read from the code that uses them."""
+    return {"opts": FlagOptions(), "rolling": ROLLING,
+            "naive_names": " or ".join(SEASONAL_NAIVE_NAMES)}
 
 
 def _write_groups(groups: GroupData, ctx: Context, out: Path, tick) -> None:

@@ -43,7 +43,9 @@ def summary_lines(result) -> list[str]:
     lines = [f"Replayed {r.scenario}: {r.runs} runs ({r.cells:,} forecasts), {r.actual_values:,} actuals, "
              f"{r.revisions} revision(s), {r.superseded} superseded run(s), into {r.ledger_path}",
              f"Findings: {found}",
-             "Lowest MASE by horizon (an estimate from past errors, not a promise):"]
+             f"Advice: {result.report.advice}",
+             "Lowest MASE by horizon (an estimate from past errors, not a promise; the advice above says why "
+             "the lowest is not always the one to use):"]
     lines += [f"  h={row.horizon:<2} {row.model:<20} MASE {row.mase:.2f}  ({row.n} cells)"
               for row in result.best_by_horizon.itertuples(index=False)]
     return lines + [f"Report: {result.report.index}"]

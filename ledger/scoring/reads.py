@@ -10,6 +10,7 @@ Reports call these through :class:`ledger.Ledger` methods and run no SQL of thei
 from __future__ import annotations
 
 import datetime as dt
+import hashlib
 
 import pandas as pd
 
@@ -25,6 +26,7 @@ __all__ = [
     "live_runs",
     "main_frequency",
     "pending_cells",
+    "report_state_hash",
     "scored_models",
     "series_table",
 ]
@@ -134,6 +136,27 @@ def pending_cells(store: Store, sel: Selection) -> int:
         LEFT JOIN ({latest_actuals_sql()}) a ON a.series = f.series AND a.period_index = f.period_index
         WHERE a.series IS NULL""", params).fetchall()
     return int(row[0][0])
+
+
+#: meta rows that describe the file, not what it holds (left out of the report's state hash).
+_FILE_FACTS = ("schema_version", "created_at", "writer_version")
+
+
+def report_state_hash(store: Store, as_of: dt.datetime) -> str:
+    """SHA-256 of everything a report reads at ``as_of``: the ledger's state hash (live runs, with
+    their forecasts, bounds and quantiles, and actual revisions), the series known by then, the
+    attribute versions recorded by then, and the settings (such as the incumbent)."""
+    digest = hashlib.sha256(store.state_hash(as_of).encode())
+    for name, sql in (
+        ("series", "SELECT series, frequency, season_length, first_seen FROM series WHERE first_seen <= $as_of ORDER BY ALL"),
+        ("attributes", "SELECT series, name, value, recorded_at FROM attributes WHERE recorded_at <= $as_of ORDER BY ALL"),
+        ("settings", "SELECT key, value FROM meta WHERE key NOT IN ('" + "', '".join(_FILE_FACTS) + "') ORDER BY ALL"),
+    ):
+        params = {"as_of": as_of} if "$as_of" in sql else {}
+        digest.update(f"\x00{name}\x00".encode())
+        for row in store.con.execute(sql, params).fetchall():
+            digest.update("\x1f".join("\x1e" if v is None else str(v) for v in row).encode() + b"\x1d")
+    return digest.hexdigest()
 
 
 def hide_progress(store: Store) -> None:

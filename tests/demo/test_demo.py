@@ -30,8 +30,11 @@ def test_summary_printed(demo):
     assert lines[0].startswith("Replayed Fernhollow Garden Supply (invented): 185 runs (39,960 forecasts), 1,905 actuals, "
                                "1 revision(s), 1 superseded run(s)")
     assert lines[1].startswith("Findings: ") and "drift" in lines[1] and "calibration" in lines[1]
-    assert lines[2] == "Lowest MASE by horizon (an estimate from past errors, not a promise):"
-    assert len(lines) == 3 + 12 + 1
+    # the advice and the ranking, joined: the lowest MASE is not the model to use, and why
+    assert lines[2].startswith("Advice: Keep incumbent-hw: challenger-damped has the lowest MASE at horizon 1")
+    assert "not statistically significant" in lines[2]
+    assert lines[3].startswith("Lowest MASE by horizon (an estimate from past errors, not a promise; the advice")
+    assert len(lines) == 4 + 12 + 1
     assert lines[-1] == f"Report: {(out / 'report' / 'index.html').resolve()}"
 
 

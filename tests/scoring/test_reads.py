@@ -77,3 +77,18 @@ def test_scored_models_series_and_frequency(book):
     assert book.series_table(as_of=AS_OF)["series"].tolist() == ["s1"]
     assert book.main_frequency(as_of=AS_OF) == "monthly"
     assert book.main_frequency(as_of="2000-01-01") is None
+
+
+def test_report_state_hash_covers_attributes_and_settings(book):
+    """Two groupings of the same forecasts carry different hashes; a later write does not change
+    the hash at an earlier as-of."""
+    before = book.report_state_hash(as_of=AS_OF)
+    assert before == book.report_state_hash(as_of=AS_OF)
+    book.record_attributes(pd.DataFrame([{"series": "s1", "region": "north"}]), name="attrs.csv")
+    north = book.report_state_hash(as_of=AS_OF)
+    book.record_attributes(pd.DataFrame([{"series": "s1", "region": "south"}]), name="attrs2.csv")
+    south = book.report_state_hash(as_of=AS_OF)
+    assert len({before, north, south}) == 3
+    book.set_incumbent("a")
+    assert book.report_state_hash(as_of=AS_OF) != south
+    assert book.report_state_hash(as_of="2000-01-01") == book.report_state_hash(as_of="2000-01-02")

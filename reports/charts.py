@@ -321,6 +321,11 @@ def calibration_chart(chart_id: str, title: str, summary: str, points: Sequence[
         lo, hi = (min(levels) - 10, 100) if levels else (0, 100)
         ax.plot([lo, hi], [lo, hi], color=BAND, linewidth=0.9, linestyle=(0, (2, 2)), label="as stated")
         width = 6.0 / max(len(models), 1)
+        # markers are spread sideways so they do not hide each other; a short dashed tick at each
+        # level marks "as stated" level with them, so none seems off the diagonal
+        span = width * max(len(models), 1) / 2 + 0.6
+        ax.hlines(levels, [v - span for v in levels], [v + span for v in levels], color=BAND, linewidth=0.9,
+                  linestyles=(0, (2, 2)))
         for i, model in enumerate(models):
             st = styles[model]
             mine = [p for p in points if p.model == model]
@@ -369,6 +374,16 @@ def series_chart(chart_id: str, title: str, summary: str, *, x: Sequence[float],
 _CSS_DASH = {"-": "solid", "--": "dashed", "-.": "dashed", ":": "dotted"}
 
 
+def band_alpha(i: int) -> float:
+    """Opacity of the i-th fan band, widest first (the narrower bands are drawn over it)."""
+    return 0.14 + 0.12 * i
+
+
+def _seen_alpha(i: int) -> float:
+    """How opaque the i-th band looks where it overlaps every wider band (what its swatch shows)."""
+    return 1 - math.prod(1 - band_alpha(j) for j in range(i + 1))
+
+
 def legend_entries(models: Sequence[str], styles: Mapping[str, dict], horizon: int,
                    fan_model: str | None, levels: Sequence[str]) -> list[dict]:
     """The series chart's legend as data for the page: label, colour, CSS line style, kind."""
@@ -378,8 +393,8 @@ def legend_entries(models: Sequence[str], styles: Mapping[str, dict], horizon: i
     if fan_model:
         color = styles[fan_model]["color"]
         out.append({"label": f"{fan_model}, latest run", "color": color, "line": "solid", "kind": "line"})
-        out += [{"label": f"{lv}% interval, latest run", "color": color, "line": "solid", "kind": "band"}
-                for lv in sorted(levels, key=float, reverse=True)]
+        out += [{"label": f"{lv}% interval, latest run", "color": color, "line": "solid", "kind": "band",
+                 "opacity": round(_seen_alpha(i), 3)} for i, lv in enumerate(sorted(levels, key=float, reverse=True))]
     return out
 
 
@@ -454,7 +469,7 @@ class _SeriesCanvas:
             color = styles[fan_model]["color"]
             for i, level in enumerate(levels):
                 self.bands[level] = top.add_patch(Polygon(np.zeros((1, 2)), closed=True, facecolor=color,
-                                                          alpha=0.14 + 0.12 * i, linewidth=0,
+                                                          alpha=band_alpha(i), linewidth=0,
                                                           label=f"{level:g}% interval, latest"))
             self.fan_line, = top.plot([], [], color=color, linewidth=1.6, marker="o", markersize=2.5,
                                       label=f"{_short(fan_model)}, latest run")

@@ -19,7 +19,7 @@ import pandas as pd
 from ledger import Ledger
 from ledger.errors import UnknownName
 from ledger.periods import SEASON_LENGTHS
-from ledger.findings import standings as _standings
+from ledger.findings import standings
 from ledger.findings.flags import flags as _flag_cells
 from ledger.scoring.cells import Selection, score_cells
 
@@ -102,20 +102,24 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
     overrides = dict(overrides or {})
     check_overrides(overrides, models)
     q = dict(as_of=as_of, since=since, until=until)
-    by_model_period = book.scores(by=["model", "period"], horizons=[horizon], **q)
+    runs = book.live_runs(as_of=as_of)
+    # a ledger with no forecast yet has no horizon to select (the selection check would refuse
+    # --horizon); every frame is empty then either way
+    hs = [horizon] if len(runs) else []
+    by_model_period = book.scores(by=["model", "period"], horizons=hs, **q)
     window = _window(by_model_period, book.main_frequency(as_of=as_of) or "monthly")
     head_q = dict(q, since=window.first or since)
     return LedgerData(
         as_of=as_of, state_hash=book.report_state_hash(as_of=as_of), since=since, until=until,
         horizon=horizon, incumbent=incumbent, benchmark=benchmark, models=models, overrides=overrides,
-        series=book.series_table(as_of=as_of), runs=book.live_runs(as_of=as_of),
+        series=book.series_table(as_of=as_of), runs=runs,
         by_model_h=book.scores(by=["model", "horizon"], **q),
         by_model_period=by_model_period,
         by_series_model=book.scores(by=["series", "model"], **q),
         window=window,
-        headline=book.scores(by=["model"], horizons=[horizon], **head_q),
-        **_interval_counts(book, sel, book.selection(horizons=[horizon], **head_q)),
-        cells=book.cells(horizons=[horizon], **q),
+        headline=book.scores(by=["model"], horizons=hs, **head_q),
+        **_interval_counts(book, sel, book.selection(horizons=hs, **head_q) if hs else None),
+        cells=book.cells(horizons=hs, **q),
         actuals=book.actual_history(as_of=as_of), latest=book.latest_forecasts(as_of=as_of),
         pending=book.pending_cells(**q),
         findings=_findings(book, models, as_of, horizon, incumbent, benchmark, overrides) if with_findings else None,
@@ -152,7 +156,7 @@ def _window(by_period: pd.DataFrame, freq: str) -> Window:
     return Window(len(chosen), _UNITS.get(freq, "periods"), str(chosen[0]), str(chosen[-1]))
 
 
-def _interval_counts(book: Ledger, sel: Selection, head: Selection) -> dict[str, pd.DataFrame]:
+def _interval_counts(book: Ledger, sel: Selection, head: Selection | None) -> dict[str, pd.DataFrame]:
     """n cells with bounds and misses (actual outside): per model, horizon and level over ``sel``
     (``intervals``), and per model and level over ``head`` (``headline_intervals``: one horizon
     from the window's first period on, a subset of ``sel``), from one read of the cells."""
@@ -173,10 +177,10 @@ def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, b
     store, sel = book.store, book.selection(as_of=as_of)
     cells = score_cells(store, sel)
     found = _flag_cells(store, sel, cells=cells, **({"benchmark": benchmark} if benchmark else {}))
-    comparisons = {(a, b): _standings.compare(store, sel, a, b, cells=cells)
+    comparisons = {(a, b): standings.compare(store, sel, a, b, cells=cells)
                    for a, b in itertools.combinations(models, 2)}
-    ranks = _standings.standings(store, dataclasses.replace(sel, horizons=(horizon,)), cells=cells)
-    advice = (_standings.advise(store, sel, incumbent, cells=cells)
+    ranks = standings.standings(store, dataclasses.replace(sel, horizons=(horizon,)), cells=cells)
+    advice = (standings.advise(store, sel, incumbent, cells=cells)
               if incumbent and len(models) > 1 else None)
     fva = fva_steps(cells, models, default_benchmark(models, benchmark), overrides)
     return Findings(found, comparisons, ranks, advice, fva)

@@ -317,10 +317,10 @@ def _count_kinds(rows: list[FindingRow]) -> dict[str, int]:
 
 def _headlines(data: LedgerData, ctx: Context, counts: dict) -> list[str]:
     """The figures in words: scope, then each model's recent accuracy, bias and coverage."""
-    return [_scope_sentence(data, counts)] + _model_sentences(data, ctx)
+    return [_scope_sentence(counts)] + _model_sentences(data, ctx)
 
 
-def _scope_sentence(data: LedgerData, counts: dict) -> str:
+def _scope_sentence(counts: dict) -> str:
     return (f"The ledger holds {plural(counts['series'], 'series', 'series')}, "
             f"{plural(counts['models'], 'model')} and {plural(counts['runs'], 'live run')}; "
             f"{counts['cells_scored']:,} forecasts have been scored against actuals and "

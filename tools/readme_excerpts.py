@@ -5,8 +5,8 @@
 
 LEDGER defaults to a fresh demo built in a temporary folder (``backsight demo``). Each excerpt
 sits in README.md between ``<!-- excerpt NAME … -->`` and ``<!-- /excerpt -->`` as a console
-block: the command, run with an explicit ``--as-of`` (the finished demo), and its output, cut
-the way the shown command says. ``tests/demo/test_readme_excerpts.py`` fails when they differ.
+block: the command, run on the finished demo ledger, and its output, cut the way the shown
+command says. ``tests/demo/test_readme_excerpts.py`` fails when they differ.
 """
 
 from __future__ import annotations
@@ -19,25 +19,17 @@ from pathlib import Path
 
 README = Path(__file__).resolve().parent.parent / "README.md"
 
-#: The as-of of every excerpt: after the demo's last recorded file (2026-11-02).
-AS_OF = "2026-11-30"
-
-
-def _cut(fields: int) -> Callable[[str], str]:
-    return lambda out: "".join(",".join(line.split(",")[:fields]) + "\n" for line in out.splitlines())
-
-
-def _tail(n: int) -> Callable[[str], str]:
-    return lambda out: "".join(line + "\n" for line in out.splitlines()[-n:])
+#: How the excerpts name the ledger (the one ``backsight demo`` writes); nothing is recorded in it
+#: after 2026-11-02, so every later as-of gives the same output.
+SHOWN_LEDGER = "backsight-demo/demo.duckdb"
 
 
 #: name -> (arguments after ``backsight``, what the shown shell pipe does, that pipe in Python)
 EXCERPTS: dict[str, tuple[list[str], str, Callable[[str], str]]] = {
-    "scores": (["scores", "--by", "model", "--horizon", "1", "--as-of", AS_OF, "--format", "csv"],
-               " | cut -d, -f1-9", _cut(9)),
-    "compare": (["compare", "incumbent-hw", "challenger-damped", "--horizon", "1", "--as-of", AS_OF,
-                 "--format", "csv"], "", lambda out: out),
-    "standings": (["standings", "--horizon", "1", "--as-of", AS_OF, "--format", "csv"], " | tail -2", _tail(2)),
+    "scores": (["scores", "--by", "model", "--horizon", "1"], "", lambda out: out),
+    "compare": (["compare", "incumbent-hw", "challenger-damped", "--horizon", "1", "--format", "csv"], "",
+                lambda out: out),
+    "standings": (["standings", "--horizon", "1"], "", lambda out: out),
 }
 
 _BLOCK = re.compile(r"(<!-- excerpt (\w+)[^>]*-->\n)(.*?)(<!-- /excerpt -->)", re.DOTALL)
@@ -58,7 +50,7 @@ def run(ledger: Path, args: list[str]) -> str:
 def excerpt(ledger: Path, name: str) -> str:
     """The console block of one excerpt."""
     args, pipe, cut = EXCERPTS[name]
-    return f"```console\n$ backsight {' '.join(args)}{pipe}\n{cut(run(ledger, args))}```\n"
+    return f"```console\n$ backsight --ledger {SHOWN_LEDGER} {' '.join(args)}{pipe}\n{cut(run(ledger, args))}```\n"
 
 
 def regenerate(text: str, ledger: Path) -> str:

@@ -24,7 +24,6 @@ class CoverageCell:
     small: bool
 
 
-
 def coverage_cell(level: float, n: int, misses: int) -> CoverageCell:
     """Observed coverage and its tolerance zone (ledger.stats.intervals.coverage_zone)."""
     if n == 0:

@@ -19,7 +19,7 @@ from ledger.wording import num, pct, severity_rank
 
 from .text import coverage_words, is_small, plural, sample_note
 
-__all__ = ["TOP_FINDINGS", "HeadFigure", "Review", "TopFinding", "build_review", "missing_notes", "rank_flags"]
+__all__ = ["TOP_FINDINGS", "HeadFigure", "Review", "TopFinding", "advice_sentence", "build_review", "missing_notes", "rank_flags"]
 
 #: Findings on the first screen; the findings section and page list the rest.
 TOP_FINDINGS = 5
@@ -80,7 +80,7 @@ def rank_flags(flags: pd.DataFrame) -> pd.DataFrame:
 def build_review(data: LedgerData, ctx, counts: dict, period_range: tuple[str, str]) -> Review:
     """The first screen of the overview (``ctx``: the pages' shared :class:`reports.views.Context`)."""
     flags = rank_flags(data.findings.flags)
-    verdict, advice = _advice_sentence(data)
+    verdict, advice = advice_sentence(data)
     return Review(scope=_scope(data, ctx, counts, period_range), verdict=verdict, advice=advice,
                   missing=missing_notes(data, counts), findings=_top(flags, ctx), findings_total=len(flags),
                   figures=_figures(data, counts, flags))
@@ -118,7 +118,8 @@ def missing_notes(data: LedgerData, counts: dict) -> list[str]:
 # ---------------------------------------------------------------- the advice sentence
 
 
-def _advice_sentence(data: LedgerData) -> tuple[str, str]:
+def advice_sentence(data: LedgerData) -> tuple[str, str]:
+    """(verdict, sentence): keep / replace / not enough evidence / no advice, and why, in one sentence."""
     advice = data.findings.advice
     if not len(data.models) or not len(data.by_model_h):
         return "not enough evidence", "Not enough evidence to advise yet: no forecast has been scored."
@@ -135,8 +136,9 @@ def _advice_sentence(data: LedgerData) -> tuple[str, str]:
         best = min(chosen, key=lambda r: (_f(r["mase_challenger"]), r["challenger"]))
         return "replace", _sentence(str(best["advice"]))
     if all(r["reason"] == "not enough data" for r in rows):
-        return "not enough evidence", _sentence("not enough evidence to replace " + str(rows[0]["advice"]).split(": ", 1)[-1]
-                                                + f", so keep {data.incumbent} for now")
+        why = str(rows[0]["advice"]).split(": ", 1)[-1]
+        return "not enough evidence", _sentence(f"not enough evidence to replace {data.incumbent} yet ({why}); "
+                                                "keep it until the comparison can be tested")
     return "keep", _keep_sentence(data, rows)
 
 

@@ -73,6 +73,40 @@ def test_no_leaderboard_and_one_matrix(pages):
     assert index.count("<table") == 4          # matrix, value added, findings, advice; none per horizon
 
 
+def _advice_case(rows: list[dict], models=("a", "b", "c"), incumbent="a") -> tuple[str, str]:
+    from types import SimpleNamespace
+
+    from reports.review import advice_sentence
+
+    by_h = pd.DataFrame({"model": list(models), "horizon": 1, "mase": [0.9, 0.8, 1.2][:len(models)],
+                         "n": 100, "n_unscaled": 0})
+    advice = pd.DataFrame(rows) if rows else None
+    data = SimpleNamespace(findings=SimpleNamespace(advice=advice), models=list(models), by_model_h=by_h,
+                           incumbent=incumbent, horizon=1)
+    return advice_sentence(data)
+
+
+def _row(ch, recommend, reason, advice, periods=12, mase=1.0):
+    return dict(challenger=ch, recommend=recommend, reason=reason, advice=advice, periods=periods,
+                mase_challenger=mase)
+
+
+def test_advice_sentence_in_every_case():
+    v, s = _advice_case([_row("b", True, "recommended", "replace a with b: better over the last 12 evaluation periods"),
+                         _row("c", False, "not better", "keep a: c is not better")])
+    assert v == "replace" and s == "Replace a with b: better over the last 12 evaluation periods."
+    v, s = _advice_case([_row("b", False, "not enough data", "keep a: only 5 common evaluation periods with b; "
+                                                            "the recent window needs 12", periods=5),
+                         _row("c", False, "not enough data", "keep a: c has no common cells with it", periods=0)])
+    assert v == "not enough evidence" and s.startswith("Not enough evidence to replace a yet (only 5 common")
+    v, s = _advice_case([_row("b", False, "mixed by horizon", "keep a: mixed"), _row("c", False, "not better", "keep a")])
+    assert v == "keep" and "b has the lowest MASE" in s and "significantly better at some horizons and worse at others" in s
+    v, s = _advice_case([], models=("a",))
+    assert v == "not enough evidence" and "only model" in s
+    v, s = _advice_case([], incumbent=None)
+    assert v == "no advice" and "--incumbent MODEL" in s
+
+
 # ---------------------------------------------------------------- the matrix
 
 

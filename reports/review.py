@@ -15,9 +15,9 @@ import pandas as pd
 
 from .coverage import coverage_cell
 from .data import LedgerData
-from ledger.wording import num, pct, severity_rank
+from ledger.wording import num, pct, plural, severity_rank
 
-from .text import coverage_words, is_small, plural, sample_note
+from .text import coverage_words, is_small, sample_note
 
 __all__ = ["TOP_FINDINGS", "HeadFigure", "Review", "TopFinding", "advice_sentence", "build_review", "missing_notes", "rank_flags"]
 
@@ -243,8 +243,8 @@ def _figures(data: LedgerData, counts: dict, flags: pd.DataFrame) -> list[HeadFi
             figs.append(HeadFigure(f"MASE, {model}", num(_f(r["mase"])),
                                    f"{role + ', ' if role else ''}h = {data.horizon}, {span}, {sample_note(int(r['n']))}"))
         figs += _coverage_figure(data, focus or str(ranked["model"].iloc[0]), span)
-    alerts = int((flags["severity"] == "alert").sum()) if len(flags) and "severity" in flags else 0
-    figs.append(HeadFigure("Alerts", f"{alerts:,}", f"of {plural(len(flags), 'finding')} in all"))
+    urgent = int(sum(severity_rank(s) == 0 for s in flags["severity"])) if len(flags) and "severity" in flags else 0
+    figs.append(HeadFigure("Findings to act on", f"{urgent:,}", f"of {plural(len(flags), 'finding')} in all"))
     return figs[:5]
 
 

@@ -14,10 +14,9 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
-from . import charts
-from ledger.wording import num
+from ledger.wording import num, plural
 
-from .text import plural
+from . import charts
 from .value_added import FvaRow, fva_rows
 
 __all__ = ["ROLLING", "fva_chart", "rolling", "trend_charts"]

@@ -31,7 +31,7 @@ from ledger import Ledger
 from ledger.store import parse_as_of
 from reports import render_report
 from reports.data import load
-from reports.names import UnsafePath, page_name, safe_write
+from reports.names import MARKER, UnsafePath, page_name, safe_write   # MARKER: the folder marker, not a page
 from reports.series_views import build_series
 from reports.site import build_context, series_inputs
 from reports.views import build_model, build_overview, build_series_index

@@ -25,7 +25,7 @@ from ledger.store import parse_as_of
 from ledger.scoring.totals import INTERVAL_NOTE
 from reports import render_report
 from reports.group_views import GROUPS_PAGE, NO_GROUP, build_groups, count_findings, load_groups
-from reports.names import page_name
+from reports.names import MARKER, page_name
 from ledger.wording import num, pct
 from reports.text import bias_words
 from tests.reports.test_report import _parse

@@ -116,19 +116,21 @@ class Ledger:
     def scores(self, *, by: Sequence[str] = ("model", "horizon"), as_of=None,
                models: Sequence[str] = (), series: Sequence[str] = (), horizons: Sequence[int] = (),
                since: str | None = None, until: str | None = None, where: Sequence[str] = (),
-               weight: str | None = None) -> pd.DataFrame:
+               weight: str | None = None, quantile_detail: bool = False) -> pd.DataFrame:
         """Accuracy metrics per group of cells (columns as in the README's Definitions).
 
         ``by`` takes series, model, horizon, origin, period and any attribute name; ``where``
         takes "ATTR=VALUE" filters; ``weight`` ("volume" or a numeric attribute) adds the
-        weighted columns of :mod:`ledger.scoring.weighted`.
+        weighted columns of :mod:`ledger.scoring.weighted`; ``quantile_detail`` adds below_qNN
+        and pinball_qNN per quantile level.
         """
         sel = self.selection(as_of=as_of, models=models, series=series, horizons=horizons,
                              since=since, until=until)
         conditions = parse_where(where)
         if weight is not None:
-            return weighted_scores(self.store, sel, by, weight=weight, where=conditions)
-        return scores(self.store, sel, by, where=conditions)
+            return weighted_scores(self.store, sel, by, weight=weight, where=conditions,
+                                   quantile_detail=quantile_detail)
+        return scores(self.store, sel, by, where=conditions, quantile_detail=quantile_detail)
 
     def totals(self, attribute: str, *, as_of=None, models: Sequence[str] = (), horizons: Sequence[int] = (),
                since: str | None = None, until: str | None = None) -> pd.DataFrame:

@@ -74,17 +74,19 @@ def scores(
     where: Annotated[list[str] | None, typer.Option("--where", metavar="ATTR=VALUE", help="Only series with this attribute value (repeatable).")] = None,
     weight: Annotated[str | None, typer.Option("--weight", help="Add weighted MAPE, bias, MASE, RMSSE: 'volume' or a numeric attribute (× volume).")] = None,
     totals: Annotated[str | None, typer.Option("--totals", metavar="ATTR", help="Score each group's total (sum of members) instead of cells.")] = None,
+    quantile_detail: Annotated[bool, typer.Option("--quantile-detail", help="Add below_qNN (share of actuals below) and pinball_qNN per quantile level.")] = False,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
 ) -> None:
-    """Accuracy per group: MAE, RMSE, MAPE, sMAPE, WAPE, MASE, RMSSE, bias, coverage, interval score."""
+    """Accuracy per group: MAE, RMSE, MAPE, sMAPE, WAPE, MASE, RMSSE, bias, coverage, interval score, WIS."""
     with open_ledger(ctx) as book, busy("Scoring"):
         if totals is not None:
             frame = book.totals(totals, as_of=as_of, models=model or (), horizons=horizon or (),
                                 since=since, until=until)
         else:
             frame = book.scores(by=by.split(","), as_of=as_of, models=model or (), series=series or (),
-                                horizons=horizon or (), since=since, until=until, where=where or (), weight=weight)
+                                horizons=horizon or (), since=since, until=until, where=where or (), weight=weight,
+                                quantile_detail=quantile_detail)
     if totals is not None:
         notice(f"totals by {totals}: {INTERVAL_NOTE}; target periods where a member lacks a forecast or an "
                "actual are left out (n_left_out)")

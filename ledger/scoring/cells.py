@@ -251,7 +251,9 @@ def _materialise(store: Store, sel: Selection, attrs: list[str], where: list[tup
         filters.append(f"a{attrs.index(name)}.value = $where{j}")
     cols = "".join(f", a{i}.value AS g__{name}" for i, name in enumerate(attrs))
     cond = f"WHERE {' AND '.join(filters)}" if filters else ""
-    store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT c.*{cols} FROM ({sql}) c "
+    # cell_id: an integer key for the grouped joins of quantile_sql
+    store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT row_number() OVER () AS cell_id, c.*{cols} "
+                      f"FROM ({sql}) c "
                       f"{' '.join(joins)} {cond}", params)
 
 

@@ -37,6 +37,7 @@ _D = FlagOptions()
 class Kind(str, enum.Enum):
     drift = "drift"
     calibration = "calibration"
+    quantiles = "quantiles"
     value = "value"
     data = "data"
 

@@ -46,7 +46,7 @@ __all__ = [
     "list_names",
 ]
 
-FindingKind = Literal["drift", "calibration", "value", "data"]
+FindingKind = Literal["drift", "calibration", "quantiles", "value", "data"]
 Severity = Literal["alert", "watch", "note"]
 Correction = Literal["bh", "holm"]
 KINDS: tuple[str, ...] = get_args(FindingKind)

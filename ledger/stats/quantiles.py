@@ -39,6 +39,7 @@ __all__ = [
     "pit_bin_counts",
     "pit_uniformity",
     "quantile_binomial",
+    "binomial_band",
 ]
 
 FloatArray = npt.NDArray[np.float64]
@@ -251,3 +252,19 @@ def quantile_binomial(below: int, n: int, *, tau: float) -> float:
     if n == 0:
         return float("nan")
     return float(stats.binomtest(int(below), int(n), float(tau)).pvalue)
+
+
+def binomial_band(n: npt.ArrayLike, tau: npt.ArrayLike, *, level: float = 0.95) -> tuple[FloatArray, FloatArray]:
+    """Central ``level`` range of the share below a calibrated tau quantile out of n cells.
+
+    From the Binomial(n, tau) quantiles at (1 - level)/2 and (1 + level)/2, divided by n: where
+    the observed share of a reliability diagram falls ``level`` of the time when the quantile is
+    calibrated (a pointwise band, not a simultaneous one). NaN where n = 0.
+    """
+    n = np.asarray(n, dtype=float)
+    tau = np.asarray(tau, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        lo = stats.binom.ppf((1 - level) / 2, n, tau) / n
+        hi = stats.binom.ppf((1 + level) / 2, n, tau) / n
+    bad = n <= 0
+    return np.where(bad, np.nan, lo), np.where(bad, np.nan, hi)

@@ -93,7 +93,8 @@ class Ledger:
 
     def backtest(self, data, *, methods: Sequence[str], horizon: int | None = None,
                  holdout: int | None = None, origins: str | None = None,
-                 levels: Sequence[float] = (80, 95), freq: str | None = None, jobs: int | None = None,
+                 levels: Sequence[float] = (80, 95), quantiles: Sequence[float] = (),
+                 freq: str | None = None, jobs: int | None = None,
                  fill: str | None = None, progress=None, name: str | None = None,
                  supersede: bool = False):
         """Record a history file as actuals and snapshot reference backtests as ``ref-<method>`` runs.
@@ -105,7 +106,7 @@ class Ledger:
         from .methods.recorded import run_backtest
 
         return run_backtest(self, data, methods=methods, horizon=horizon, holdout=holdout, origins=origins,
-                            levels=levels, freq=freq, jobs=jobs, fill=fill, progress=progress, name=name,
+                            levels=levels, quantiles=quantiles, freq=freq, jobs=jobs, fill=fill, progress=progress, name=name,
                             supersede=supersede)
 
     def selection(self, *, as_of=None, models: Sequence[str] = (), series: Sequence[str] = (),

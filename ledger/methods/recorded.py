@@ -32,6 +32,7 @@ from ..intake.ingest import MAX_HORIZON, read_actuals, read_forecasts
 from ..periods import SEASON_LENGTHS, index_start, parse_period, period_index, period_label
 from ..intake.record import ActualsResult, RunResult, write_actuals, write_runs
 from ..store import Store
+from .quantile_output import check_quantiles
 
 if TYPE_CHECKING:
     from ..api import Ledger
@@ -81,7 +82,7 @@ class BacktestResult:
 
 def check_options(*, methods: Sequence[str], horizon: int | None, holdout: int | None,
                   origins: str | None, levels: Sequence[float], jobs: int | None,
-                  fill: str | None) -> None:
+                  fill: str | None, quantiles: Sequence[float] = ()) -> None:
     """Refuse bad backtest options before anything is read or written (UnknownName)."""
     _check_methods(methods)
     if (holdout is None) == (origins is None):
@@ -95,6 +96,7 @@ def check_options(*, methods: Sequence[str], horizon: int | None, holdout: int |
     for level in levels:
         if not 0.0 < float(level) < 100.0:
             raise UnknownName(f"backtest: interval level {level:g} is outside (0, 100); use e.g. 80,95")
+    check_quantiles(quantiles)
     if fill is not None and fill not in FILL_NAMES:
         raise UnknownName(f"backtest: fill {fill!r} is not a fill method; use one of {', '.join(FILL_NAMES)}")
 
@@ -219,6 +221,7 @@ def run_backtest(
     holdout: int | None = None,
     origins: str | None = None,
     levels: Sequence[float] = (80, 95),
+    quantiles: Sequence[float] = (),
     freq: str | None = None,
     jobs: int | None = None,
     fill: str | None = None,
@@ -235,6 +238,8 @@ def run_backtest(
     periods ahead (default one season of the file's frequency, at least 1). ``fill``: None
     (a series-origin whose history has a gap is skipped with a note), "linear" or "previous".
     ``jobs``: worker processes (default all cores). ``progress(done, total)``: series finished.
+    ``quantiles``: levels tau in (0, 1) recorded as q<NN> columns from each method's predictive
+    distribution (:mod:`ledger.methods.quantile_output`).
 
     Notes name periods by their labels. Raises :class:`ledger.errors.UnknownName` for bad options,
     :class:`~ledger.errors.InputError` / :class:`~ledger.errors.FrequencyError` for a bad file
@@ -246,7 +251,7 @@ def run_backtest(
     store = store_or_ledger if isinstance(store_or_ledger, Store) else store_or_ledger.store
     methods = list(methods)
     check_options(methods=methods, horizon=horizon, holdout=holdout, origins=origins, levels=levels,
-                  jobs=jobs, fill=fill)
+                  jobs=jobs, fill=fill, quantiles=quantiles)
     with read_actuals(store, history, freq=freq, name=name) as actuals:
         span = None if origins is None else _origin_indices(origins, actuals.frequency)
         steps = int(horizon) if horizon is not None else SEASON_LENGTHS[actuals.frequency]
@@ -254,7 +259,7 @@ def run_backtest(
         keys = actuals.stage.series()
     frame, seasons = _latest_history(store, keys)
     forecasts, notes = backtest(frame, methods=methods, horizon=steps, m=seasons, levels=levels,
-                                holdout=holdout, origins=span, jobs=jobs, fill=fill, progress=progress)
+                                quantiles=quantiles, holdout=holdout, origins=span, jobs=jobs, fill=fill, progress=progress)
     notes = [_relabel(n, actuals.frequency) for n in notes]
     runs, warnings = _snapshot(store, forecasts, actuals.frequency, actuals.source, fill, supersede)
     return BacktestResult(actuals.source, actuals.frequency, steps, written, runs, notes,

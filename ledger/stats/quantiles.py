@@ -24,7 +24,6 @@ import dataclasses
 
 import numpy as np
 import numpy.typing as npt
-from scipy import stats
 
 __all__ = [
     "WISParts",
@@ -240,6 +239,7 @@ def pit_uniformity(pit: npt.ArrayLike, *, taus: npt.ArrayLike) -> tuple[float, f
         return float("nan"), float("nan"), counts, widths
     expected = n * widths
     x2 = float(((counts - expected) ** 2 / expected).sum())
+    from scipy import stats   # on first use: scoring imports this module, and scipy slows start-up
     return x2, float(stats.chi2.sf(x2, widths.size - 1)), counts, widths
 
 
@@ -251,6 +251,7 @@ def quantile_binomial(below: int, n: int, *, tau: float) -> float:
     """
     if n == 0:
         return float("nan")
+    from scipy import stats
     return float(stats.binomtest(int(below), int(n), float(tau)).pvalue)
 
 
@@ -261,6 +262,7 @@ def binomial_band(n: npt.ArrayLike, tau: npt.ArrayLike, *, level: float = 0.95) 
     the observed share of a reliability diagram falls ``level`` of the time when the quantile is
     calibrated (a pointwise band, not a simultaneous one). NaN where n = 0.
     """
+    from scipy import stats
     n = np.asarray(n, dtype=float)
     tau = np.asarray(tau, dtype=float)
     with np.errstate(invalid="ignore", divide="ignore"):

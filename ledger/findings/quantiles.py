@@ -28,7 +28,8 @@ import pandas as pd
 
 from ..stats.intervals import benjamini_hochberg, holm
 from ..stats.quantiles import pit_from_quantiles, pit_uniformity, quantile_binomial, tau_name
-from .base import Finding, FlagOptions, label, pval
+from .base import Finding, FlagOptions
+from ..wording import label, pval
 from .calibration import bucket_labels
 
 __all__ = ["KIND", "quantile_findings", "pit_inputs"]

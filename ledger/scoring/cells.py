@@ -21,11 +21,11 @@ from typing import Literal, get_args
 import pandas as pd
 
 from ..errors import LedgerError, UnknownName
-from ..intake.ingest import format_level
 from ..periods import index_start, parse_label, period_index, period_label
 from .attributes import attributes_sql, check_attribute, known_attributes
 from .quantile_sql import add_probabilistic_columns, quantile_detail_sql, wis_group_sql
 from ..store import Store, latest_actuals_sql, live_runs_sql
+from ..wording import format_level
 
 __all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "forecasts_sql", "score_cells", "interval_cells", "interval_misses", "scores", "POINT_COLUMNS"]
 

@@ -155,6 +155,16 @@ class Ledger:
         """Every scored cell and interval level, with bounds and whether the actual fell outside."""
         return interval_cells(self.store, self.selection(**selection))
 
+    def quantile_cells(self, **selection) -> pd.DataFrame:
+        """Every scored cell and quantile level: value, actual and whether the actual fell below."""
+        from .scoring.quantile_reads import quantile_cells
+        return quantile_cells(self.store, self.selection(**selection))
+
+    def wis_by_horizon(self, **selection) -> pd.DataFrame:
+        """Per model and horizon: cells with a WIS and the means of WIS and its three parts."""
+        from .scoring.quantile_reads import wis_by_horizon
+        return wis_by_horizon(self.store, self.selection(**selection))
+
     def verify(self, *, progress=None) -> list[Problem]:
         """Integrity problems of the ledger file (empty when sound)."""
         return verify(self.store, progress=progress)

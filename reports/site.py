@@ -32,6 +32,7 @@ from .group_views import GROUPS_PAGE, GroupData, build_groups, check_group_by, c
 from .names import page_names, safe_write
 from .render import findings_table, render_page
 from .series_views import Columns, SeriesInput, build_series, metrics_for
+from .quantile_views import QuantileData, build_quantile_view, load_quantile_data
 from .views import (
     Context,
     Footer,
@@ -110,6 +111,7 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
         core = load(book, as_of=stamp, since=since, until=until, horizon=horizon,
                     incumbent=incumbent, benchmark=benchmark, with_findings=False, models=models)
         groups = load_groups(book, group_by, as_of=stamp, since=since, until=until) if group_by else None
+        quantiles = load_quantile_data(book, as_of=stamp, since=since, until=until)
         ctx = build_context(core, title or "Forecast accuracy report")
         inputs = series_inputs(core, ctx)
         nav = {"groups_page": GROUPS_PAGE if groups is not None else None}
@@ -118,7 +120,7 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
         tick = _ticker(progress, 4 + extra + len(core.models) + len(inputs))
         tick("computing findings", 0)
         data = dataclasses.replace(core, findings=found.result())
-        overview, rows = _write_fixed(data, ctx, out, tick, nav)
+        overview, rows = _write_fixed(data, ctx, out, tick, nav, quantiles)
         if groups is not None:
             _write_groups(count_findings(book, groups, data.findings.flags, stamp), ctx, out, tick)
         _write_series(pages, data, ctx, out, tick)
@@ -128,8 +130,9 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
                         index_bytes=(out / "index.html").stat().st_size, state_hash=data.state_hash, as_of=ctx.footer.as_of)
 
 
-def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict):
-    """Overview, findings, series index, methods and model pages (``nav``: optional navigation links)."""
+def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict, quantiles: QuantileData | None = None):
+    """Overview, findings, series index, methods and model pages (``nav``: optional navigation links;
+    ``quantiles``: the frames of the model pages' quantile sections)."""
     overview = build_overview(data, ctx)
     safe_write(out, "index.html", render_page("index.html", v=overview, ctx=ctx, page="index", **nav))
     tick("overview")
@@ -143,7 +146,8 @@ def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict):
     tick("methods")
     for model in data.models:
         view = build_model(data, ctx, model)
-        safe_write(out, view.href, render_page("model.html", v=view, ctx=ctx, page=view.href, **nav))
+        safe_write(out, view.href, render_page("model.html", v=view, ctx=ctx, page=view.href,
+                                               quantiles=build_quantile_view(quantiles, model), **nav))
         tick(f"model {model}")
     return overview, rows
 

@@ -13,7 +13,7 @@ from ..store import Store
 from .cells import Selection, cells_sql
 from .quantile_sql import wis_cells_sql
 
-__all__ = ["quantile_cells", "wis_cells"]
+__all__ = ["quantile_cells", "wis_cells", "wis_by_horizon"]
 
 
 def quantile_cells(store: Store, sel: Selection) -> pd.DataFrame:
@@ -44,5 +44,21 @@ def wis_cells(store: Store, sel: Selection) -> pd.DataFrame:
                    wis_overprediction, wis_underprediction, crps_q
             FROM ({wis_cells_sql('_wis_cells')})
             ORDER BY model, series, horizon, period_index""").df()
+    finally:
+        con.execute("DROP TABLE IF EXISTS _wis_cells")
+
+
+def wis_by_horizon(store: Store, sel: Selection) -> pd.DataFrame:
+    """Per model and horizon: cells with a WIS (n_wis) and the means of wis and its three parts."""
+    sql, params = cells_sql(sel)
+    con = store.con
+    con.execute(f"CREATE OR REPLACE TEMP TABLE _wis_cells AS SELECT row_number() OVER () AS cell_id, * "
+                f"FROM ({sql})", params)
+    try:
+        return con.execute(f"""
+            SELECT model, horizon, count(wis) AS n_wis, avg(wis) AS wis, avg(wis_dispersion) AS wis_dispersion,
+                   avg(wis_overprediction) AS wis_overprediction, avg(wis_underprediction) AS wis_underprediction
+            FROM ({wis_cells_sql('_wis_cells')}) WHERE wis IS NOT NULL
+            GROUP BY model, horizon ORDER BY model, horizon""").df()
     finally:
         con.execute("DROP TABLE IF EXISTS _wis_cells")

@@ -132,23 +132,28 @@ def _bucket_text(buckets: list[str]) -> str:
     return f"horizon {names[0]}" if len(names) == 1 and names[0].isdigit() else f"horizons {', '.join(names)}"
 
 
+def _bucket_key(bucket: str) -> int:
+    return int(bucket.split("-")[0].rstrip("+"))
+
+
 def _finding(model: str, rows: list[tuple[_Test, float]], failing: list[tuple[_Test, float]]) -> Finding:
     levels = [t for t, _ in failing if t.test == "level"]
     pits = [(t, a) for t, a in failing if t.test == "pit"]
-    buckets = sorted({t.bucket for t, _ in failing}, key=lambda b: int(b.split("-")[0].rstrip("+")))
+    buckets = sorted({t.bucket for t, _ in failing}, key=_bucket_key)
     first = min(failing, key=lambda r: r[0].since)[0]
     since = label(first.since, first.freq)
     n = sum(t.n for t, _ in rows if t.test == "pit") or max(t.n for t, _ in rows)
     parts = []
     if levels:
         worst = sorted(levels, key=lambda t: -abs(t.below / t.n - t.tau))[:4]
-        shown = ", ".join(f"{tau_name(t.tau)} {t.below / t.n:.0%} below of {t.n} (expected {t.tau:.0%})"
-                          for t in sorted(worst, key=lambda t: (t.bucket, t.tau)))
+        shown = ", ".join(f"{tau_name(t.tau)} at {_bucket_text([t.bucket])} {t.below / t.n:.0%} below of {t.n} "
+                          f"(expected {t.tau:.0%})" for t in sorted(worst, key=lambda t: (_bucket_key(t.bucket), t.tau)))
         parts.append(f"{_direction(levels)}: {shown}")
-    for t, a in pits:
-        small = "; small sample" if t.min_expected < 5 else ""
-        parts.append(f"PIT histogram not uniform at {_bucket_text([t.bucket])} (chi-square {t.statistic:.1f}, "
-                     f"{t.bins} bins, adjusted {pval(a)}{small})")
+    if pits:
+        small = "; small sample" if any(t.min_expected < 5 for t, _ in pits) else ""
+        stats_text = ", ".join(f"{t.statistic:,.1f}" for t, _ in pits)
+        parts.append(f"PIT histogram not uniform at {_bucket_text([t.bucket for t, _ in pits])} (chi-square "
+                     f"{stats_text} on {pits[0][0].bins - 1} df, adjusted {pval(max(a for _, a in pits))} or less{small})")
     level_count = len({t.tau for t, _ in rows if t.test == "level"})
     text = (f"quantiles at {_bucket_text(buckets)} since {since} ({level_count} levels): " + "; ".join(parts)
             + "; binomial test per level and PIT chi-square, Benjamini-Hochberg across all")

@@ -49,6 +49,11 @@ class QuantileRow:
     band_high: float
     outside: bool
 
+    @property
+    def texts(self) -> tuple[str, str, str]:
+        """tau, share below and band as the table prints them (one decimal: bands are narrow)."""
+        return f"{self.tau:g}", f"{self.share:.1%}", f"{self.band_low:.1%}–{self.band_high:.1%}"
+
 
 @dataclasses.dataclass(frozen=True)
 class QuantileView:

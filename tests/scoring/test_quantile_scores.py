@@ -131,6 +131,41 @@ def test_swis_divides_each_cell_by_its_scale(book_and_cells):
     assert got["swis"] == pytest.approx(np.mean(parts.wis / merged["q"].to_numpy()), rel=1e-10)
 
 
+def test_cells_with_blank_quantiles_pair_on_their_own_levels(tmp_path):
+    # Most cells of a run send q10, q25, q50, q75, q90 and 80% bounds; some leave q90 blank (so
+    # their 80% interval comes from the bounds), some leave q25 blank (no 50% interval).
+    rng = np.random.default_rng(31)
+    months = pd.period_range("2024-01", periods=14, freq="M")
+    taus = [0.1, 0.25, 0.5, 0.75, 0.9]
+    rows, want = [], []
+    for i in range(60):
+        s, t = f"s{i % 6}", 1 + i // 6
+        mu, sd = float(rng.normal(100, 3)), 8.0
+        q = {tau: mu + sd * float(stats.norm.ppf(tau)) for tau in taus}
+        y = float(rng.normal(100, 9))
+        row = {"series": s, "period": str(months[t]), "forecast": mu, "lower_80": mu - 12, "upper_80": mu + 12,
+               **{_name(tau): v for tau, v in q.items()}}
+        lo, hi, alphas = [q[0.1], q[0.25]], [q[0.9], q[0.75]], [0.2, 0.5]
+        if i % 5 == 1:
+            row["q90"] = None
+            lo, hi = [mu - 12, q[0.25]], [mu + 12, q[0.75]]
+        elif i % 5 == 2:
+            row["q25"] = None
+            lo, hi, alphas = [q[0.1]], [q[0.9]], [0.2]
+        rows.append(row)
+        p = Q.weighted_interval_score([y], [q[0.5]], [lo], [hi], alphas=alphas)
+        want.append((s, str(months[t]), y, float(p.wis[0]), float(p.dispersion[0])))
+    with Ledger.open(tmp_path / "l.duckdb") as book:
+        book.record_actuals(pd.DataFrame([{"series": s, "period": m, "actual": y} for s, m, y, _, _ in want]
+                                         + [{"series": f"s{k}", "period": str(months[0]), "actual": 100.0}
+                                            for k in range(6)]), name="a.csv")
+        book.snapshot(pd.DataFrame(rows), model="gappy", origin=str(months[0]), name="gappy.csv")
+        got = book.scores(by=["model"]).iloc[0]
+    assert got["n"] == 60
+    assert got["wis"] == pytest.approx(np.mean([w for *_, w, _ in want]), rel=1e-10)
+    assert got["wis_dispersion"] == pytest.approx(np.mean([d for *_, d in want]), rel=1e-10)
+
+
 def test_cli_quantile_detail(book_and_cells, runner):
     path, _ = book_and_cells
     result = runner.invoke(app, ["--ledger", str(path), "scores", "--by", "model", "--quantile-detail",

@@ -108,8 +108,7 @@ class Ledger:
         """
         return run_backtest(self.store, data, methods=methods, horizon=horizon, holdout=holdout, origins=origins,
                             levels=levels, quantiles=quantiles, freq=freq, jobs=jobs, fill=fill, progress=progress,
-                            name=name,
-                            supersede=supersede)
+                            name=name, supersede=supersede)
 
     def selection(self, *, as_of=None, models: Sequence[str] = (), series: Sequence[str] = (),
                   horizons: Sequence[int] = (), since: str | None = None,

@@ -11,6 +11,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+import scoringrules as sr
 from scipy import stats
 
 from ledger import Ledger
@@ -106,6 +107,9 @@ def test_quantile_detail_columns(book_and_cells):
     shares = Q.below_shares(y, q, taus=TAUS)
     e = y[:, None] - q
     pinball = np.maximum(TAUS * e, (TAUS - 1) * e).mean(axis=0)
+    # scoringrules 0.10.0 quantile_score (the pinball loss), level by level
+    outside = [float(np.mean(sr.quantile_score(y, q[:, i], float(t), backend="numpy"))) for i, t in enumerate(TAUS)]
+    np.testing.assert_allclose(pinball, outside, rtol=1e-12)
     for i, n in enumerate(names):
         assert row[f"below_{n}"] == pytest.approx(shares[i], abs=1e-12)
         assert row[f"pinball_{n}"] == pytest.approx(pinball[i], rel=1e-10)

@@ -223,9 +223,10 @@ class Ledger:
         """Drift, calibration, value-added and data-quality findings, one row per finding.
 
         Columns: kind, series, model, horizon, level, since, figure, evidence, check, severity,
-        zone, horizons, raised, measure, p_value, n. The filters are those of :meth:`selection`
+        zone, horizons, raised, measure, p_value, n, impact, action, action_figure, action_measure,
+        series_list, key; ranked by severity (act, watch, note) then impact. The filters are those of :meth:`selection`
         (findings are computed on the selected cells; a series filter keeps model-level findings,
-        which are then about the selected series); ``severities`` keeps alert, watch or note.
+        which are then about the selected series); ``severities`` keeps act, watch or note.
         ``thresholds``: the fields of :class:`ledger.findings.base.FlagOptions` (e.g.
         ``drift_h=5.5``, ``fdr=0.05``, ``benchmark="ref-snaive"``), each with its stated default.
         """

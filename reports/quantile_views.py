@@ -17,12 +17,12 @@ import pandas as pd
 from ledger import Ledger
 from ledger.findings.calibration import bucket_labels
 from ledger.findings.quantiles import pit_inputs
-from ledger.stats.quantiles import binomial_band, pit_from_quantiles, pit_uniformity, tau_name
-from ledger.wording import pval
+from ledger.stats.quantiles import binomial_band, pit_from_quantiles, pit_uniformity
+from ledger.wording import plural, pval, quantile_name
 
 from . import quantile_charts
 from .charts import Chart
-from .text import SMALL_SAMPLE, plural
+from .text import SMALL_SAMPLE
 
 __all__ = ["QuantileData", "QuantileView", "QuantileRow", "load_quantile_data", "build_quantile_view"]
 
@@ -100,7 +100,7 @@ def _rows(cells: pd.DataFrame) -> list[QuantileRow]:
     taus = per.index.to_numpy(float)
     low, high = binomial_band(n, taus)
     share = per["sum"].to_numpy(float) / n
-    return [QuantileRow(tau_name(t), float(t), int(k), float(s), float(lo), float(hi), bool(s < lo or s > hi))
+    return [QuantileRow(quantile_name(t), float(t), int(k), float(s), float(lo), float(hi), bool(s < lo or s > hi))
             for t, k, s, lo, hi in zip(taus, n, share, low, high)]
 
 

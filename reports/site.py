@@ -24,12 +24,12 @@ from markupsafe import Markup
 
 from ledger import Ledger, __version__
 from ledger.store import parse_as_of, utc_now
-from ledger.wording import severity_rank
+from ledger.wording import format_level, severity_rank
 
 from . import charts
 from .data import LedgerData, check_roles, findings_job, load, quiet, report_models, series_count
 from .group_views import GROUPS_PAGE, GroupData, build_groups, check_group_by, count_findings, load_groups
-from .names import page_names, safe_write
+from .names import claim_folder, page_names, safe_write
 from .render import findings_table, render_page
 from .series_views import Columns, SeriesInput, build_series, metrics_for
 from .quantile_views import QuantileData, build_quantile_view, load_quantile_data
@@ -98,7 +98,7 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
     """
     stamp = parse_as_of(as_of)
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
+    claim_folder(out)
     path = str(Path(ledger_path).resolve())
     with quiet(Ledger.open(ledger_path, create=False, read_only=True)) as book, \
             _executor(_worker_count(series_count(book, stamp), workers)) as pool:
@@ -213,7 +213,7 @@ def series_inputs(data: LedgerData, ctx: Context, *, with_chart: bool = True) ->
     acts, _ = _by_series(data.actuals, ["period_index", "value"])
     cells, empty_cells = _by_series(data.cells, _CELL_COLUMNS)
     latest, empty_latest = _by_series(data.latest, [c for c in data.latest.columns if c != "series"])
-    levels = [f"{lv:g}" for lv in ctx.levels]
+    levels = [format_level(lv) for lv in ctx.levels]
     metrics: dict[str, list] = {}
     for key, row in zip(data.by_series_model["series"].tolist(), metrics_for(data.by_series_model, ctx.model_href, levels)):
         metrics.setdefault(key, []).append(row)

@@ -13,7 +13,14 @@ Per model × horizon bucket (the buckets of :mod:`ledger.findings.calibration`) 
 All p-values of one ``flags`` call form one family under Benjamini-Hochberg (``correction="holm"``
 for Holm), at ``fdr``. A model with any rejected test gets one finding: the levels that fail are
 its evidence, with the direction read from them (too narrow, too wide, too high, too low).
-Groups with fewer than ``min_cells`` cells are not tested and a note says so. The binomial test
+Groups with fewer than ``min_cells`` cells are not tested and a note says so.
+
+Severity and impact: a finding is a ``watch`` with impact 0. Impact is measured in excess scaled
+absolute error of the point forecasts (:mod:`ledger.findings.base`), which miscalibrated
+quantiles do not cost; their cost shows in ``wis`` instead. The action names the level the worst
+quantile actually achieves (its observed share below) and the remedy: re-map the levels to the
+shares they achieve (quantile recalibration, Kuleshov, Fenner & Ermon 2018, "Accurate
+uncertainties for deep learning using calibrated regression", ICML; from memory). The binomial test
 treats the cells of a group as independent; forecasts of one target period at neighbouring
 horizons share its actual, which is why groups are horizon buckets, not all horizons pooled.
 """
@@ -27,7 +34,8 @@ import numpy as np
 import pandas as pd
 
 from ..stats.intervals import benjamini_hochberg, holm
-from ..stats.quantiles import pit_from_quantiles, pit_uniformity, quantile_binomial, tau_name
+from ..stats.quantiles import pit_from_quantiles, pit_uniformity, quantile_binomial
+from ..wording import quantile_name
 from .base import Finding, FlagOptions
 from ..wording import label, pval
 from .calibration import bucket_labels
@@ -146,7 +154,7 @@ def _finding(model: str, rows: list[tuple[_Test, float]], failing: list[tuple[_T
     parts = []
     if levels:
         worst = sorted(levels, key=lambda t: -abs(t.below / t.n - t.tau))[:4]
-        shown = ", ".join(f"{tau_name(t.tau)} at {_bucket_text([t.bucket])} {t.below / t.n:.0%} below of {t.n} "
+        shown = ", ".join(f"{quantile_name(t.tau)} at {_bucket_text([t.bucket])} {t.below / t.n:.0%} below of {t.n} "
                           f"(expected {t.tau:.0%})" for t in sorted(worst, key=lambda t: (_bucket_key(t.bucket), t.tau)))
         parts.append(f"{_direction(levels)}: {shown}")
     if pits:
@@ -158,10 +166,25 @@ def _finding(model: str, rows: list[tuple[_Test, float]], failing: list[tuple[_T
     text = (f"quantiles at {_bucket_text(buckets)} since {since} ({level_count} levels): " + "; ".join(parts)
             + "; binomial test per level and PIT chi-square, Benjamini-Hochberg across all")
     figure = max((abs(t.below / t.n - t.tau) for t in levels), default=math.nan)
+    action, action_figure = _action(levels, pits)
     return _make(model=model, horizon=int(buckets[0]) if len(buckets) == 1 and buckets[0].isdigit() else None,
                  since=since, figure=figure, evidence=text,
                  check=_direction(levels) if levels else "PIT not uniform", horizons=",".join(buckets),
-                 measure="largest |share below - tau|", p_value=min(a for _, a in failing), n=n)
+                 measure="largest |share below - tau|", p_value=min(a for _, a in failing), n=n,
+                 severity="watch", action=action, action_figure=action_figure,
+                 action_measure="share below the worst quantile" if levels else "")
+
+
+def _action(levels: list[_Test], pits: list) -> tuple[str, float]:
+    """What to do, and its figure: the share below the level furthest from its tau."""
+    if not levels:
+        return ("check the shape between the quantiles: the levels hold about the right shares but the "
+                "PIT histogram is not flat, so the interpolated distribution is off", math.nan)
+    worst = max(levels, key=lambda t: abs(t.below / t.n - t.tau))
+    share = worst.below / worst.n
+    return (f"recalibrate the quantile levels: {quantile_name(worst.tau)} at {_bucket_text([worst.bucket])} behaves "
+            f"like the {share:.0%} quantile (stated {worst.tau:.0%}); map each level to the share it achieves, "
+            f"or widen the tails", share)
 
 
 def _small_note(model: str, groups: list[tuple[str, int, pd.DataFrame]], options: FlagOptions) -> Finding:
@@ -176,8 +199,10 @@ def _small_note(model: str, groups: list[tuple[str, int, pd.DataFrame]], options
 
 
 def _make(*, model: str, horizon: int | None, since: str, figure: float, evidence: str, check: str,
-          horizons: str, measure: str, n: int, p_value: float = math.nan, severity: str = "alert") -> Finding:
+          horizons: str, measure: str, n: int, p_value: float = math.nan, severity: str = "watch",
+          action: str = "", action_figure: float = math.nan, action_measure: str = "") -> Finding:
     """The one place this kind builds a Finding (so a change to Finding's fields is made here)."""
     return Finding(kind=KIND, series="", model=model, horizon=horizon, level=None, since=since, figure=figure,
                    evidence=evidence, check=check, severity=severity, horizons=horizons, measure=measure,
-                   p_value=p_value, n=n)
+                   p_value=p_value, n=n, impact=0.0, action=action, action_figure=action_figure,
+                   action_measure=action_measure)

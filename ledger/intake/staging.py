@@ -68,7 +68,8 @@ class Stage:
         try:
             self.con.execute(f"INSERT INTO {self.table} BY NAME SELECT * FROM _chunk")
         finally:
-            self.con.unregister("_chunk")
+            with contextlib.suppress(duckdb.Error):     # after a failed write the first error is the news
+                self.con.unregister("_chunk")
 
     def known_frequencies(self) -> set[str]:
         """The frequencies the ledger has recorded for the staged series."""
@@ -100,7 +101,8 @@ class Stage:
         try:
             self.con.execute(f"CREATE TEMP TABLE {lab} AS SELECT * FROM _labels")
         finally:
-            self.con.unregister("_labels")
+            with contextlib.suppress(duckdb.Error):
+                self.con.unregister("_labels")
         joins, exprs = [], []
         for i, col in enumerate(label_columns):
             joins.append(f"JOIN {lab} l{i} ON l{i}.label = s.{col}")
@@ -131,6 +133,17 @@ class Stage:
             "WHERE row > first ORDER BY row LIMIT 1").fetchall()
         if rows:
             raise InputError(source, f"{what} (first at row {rows[0][1]})", row=rows[0][0], column=column)
+
+    def case_twins(self, column: str, table: str, limit: int = 6) -> list[list[str]]:
+        """Groups of keys in ``column`` (with the ledger's ``table``.``column``) equal but for case,
+        each holding at least one key of this file."""
+        rows = self.con.execute(f"""
+            WITH mine AS (SELECT DISTINCT {column} AS k FROM {self.ready}),
+                 keys AS (SELECT k FROM mine UNION SELECT DISTINCT {column} FROM {table}
+                          WHERE lower({column}) IN (SELECT lower(k) FROM mine))
+            SELECT list(k ORDER BY k) FROM keys GROUP BY lower(k) HAVING count(*) > 1
+            ORDER BY 1 LIMIT {int(limit)}""").fetchall()
+        return [r[0] for r in rows]
 
     def series(self) -> list[str]:
         return [r[0] for r in self.con.execute(f"SELECT DISTINCT series FROM {self.ready} ORDER BY series").fetchall()]

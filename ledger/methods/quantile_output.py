@@ -16,7 +16,8 @@ from collections.abc import Mapping, Sequence
 import numpy as np
 
 from ..errors import UnknownName
-from ..stats.quantiles import TAU_DIGITS, tau_name
+from ..stats.quantiles import TAU_DIGITS
+from ..wording import quantile_name
 
 __all__ = ["check_quantiles", "levels_with_quantiles", "add_quantiles"]
 
@@ -51,8 +52,8 @@ def add_quantiles(out: Mapping[str, np.ndarray], levels: Sequence[float], quanti
         result[f"upper_{name}"] = out[f"upper_{name}"]
     for tau in quantiles:
         if tau == 0.5:
-            result[tau_name(tau)] = out["forecast"]
+            result[quantile_name(tau)] = out["forecast"]
             continue
         side = "lower" if tau < 0.5 else "upper"
-        result[tau_name(tau)] = out[f"{side}_{level_name(_level_of(tau))}"]
+        result[quantile_name(tau)] = out[f"{side}_{level_name(_level_of(tau))}"]
     return result

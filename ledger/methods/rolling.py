@@ -30,8 +30,7 @@ import pandas as pd
 from .forecasters import LEVEL_DIGITS, forecast, min_history, season_length_note, short_history_note
 from .names import FillMethod, check_fill, check_levels, check_methods
 from ..errors import InputError, LedgerError, UnknownName
-from ..stats.quantiles import tau_name
-from ..wording import format_level
+from ..wording import format_level, quantile_name
 from .quantile_output import check_quantiles
 
 __all__ = ["backtest"]
@@ -288,7 +287,7 @@ def _assemble(chunks: list[_Chunk], levels: Sequence[float], quantiles: Sequence
     names = ["model", "series", "origin", "t", "horizon", "forecast"]
     for level in levels:
         names += [f"lower_{format_level(level, LEVEL_DIGITS)}", f"upper_{format_level(level, LEVEL_DIGITS)}"]
-    names += [tau_name(t) for t in quantiles]
+    names += [quantile_name(t) for t in quantiles]
     data = {}
     for name in names:
         parts = [a for c in chunks for a in c.columns.get(name, [])]

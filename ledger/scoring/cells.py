@@ -208,13 +208,19 @@ def interval_cells(store: Store, sel: Selection) -> pd.DataFrame:
 def interval_misses(store: Store, sel: Selection) -> pd.DataFrame:
     """The rows of :func:`interval_cells`, in its order, with only what calibration tests use.
 
-    Columns: model, series, period_index, horizon, level, below, above (fewer columns to
-    transfer: the findings of a large ledger read millions of these rows).
+    Columns: model, series, period_index, horizon, level, below, above, ratio (|e| over the
+    half-width on the side of the actual, NULL when that half-width is not positive), dist (how
+    far the actual fell outside the interval, over the scale q; 0 inside, NULL without a scale).
+    Fewer columns than :func:`interval_cells`: the findings of a large ledger read millions of
+    these rows.
     """
     sql, params = cells_sql(sel)
     return store.con.execute(f"""
         SELECT c.model, c.series, c.period_index, c.horizon, b.level,
-               c.actual < b.lower AS below, c.actual > b.upper AS above
+               c.actual < b.lower AS below, c.actual > b.upper AS above,
+               CASE WHEN c.e >= 0 AND b.upper > c.point THEN c.e / (b.upper - c.point)
+                    WHEN c.e < 0 AND c.point > b.lower THEN -c.e / (c.point - b.lower) END AS ratio,
+               (greatest(b.lower - c.actual, 0) + greatest(c.actual - b.upper, 0)) / c.q AS dist
         FROM ({sql}) c
         JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index
         ORDER BY c.model, b.level, c.series, c.horizon, c.period_index""", params).df()

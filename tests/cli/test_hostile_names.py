@@ -18,6 +18,7 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from ledger import Ledger
 from ledger.errors import LedgerError
+from ledger.intake.keys import key_problem
 from ledger.cli import app
 from ledger.cli.common import Format, emit
 from ledger.cli.terminal import printable, render_table
@@ -77,7 +78,8 @@ def hostile(tmp_path_factory):
     """A ledger whose model and series names are markup and escape sequences (if intake admits them)."""
     p = tmp_path_factory.mktemp("hostile") / "l.duckdb"
     y = planted.actuals(3, planted.HISTORY + 14, seed=9)
-    rename = dict(zip(planted.names(3), HOSTILE_SERIES))
+    # intake refuses control characters in keys (the identity rule, ledger/intake/keys.py)
+    rename = {old: new for old, new in zip(planted.names(3), HOSTILE_SERIES) if key_problem(new) is None}
     admitted = []
     with Ledger.open(p) as book:
         book.record_actuals(planted.actual_frame(y).replace({"series": rename}))

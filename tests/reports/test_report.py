@@ -31,7 +31,7 @@ from ledger import Ledger
 from ledger.store import parse_as_of
 from reports import render_report
 from reports.data import load
-from reports.names import UnsafePath, page_name, safe_write
+from reports.names import MARKER, UnsafePath, page_name, safe_write   # MARKER: the folder marker, not a page
 from reports.series_views import build_series
 from reports.site import build_context, series_inputs
 from reports.views import build_model, build_overview, build_series_index
@@ -116,7 +116,7 @@ def site(ledger_file, tmp_path_factory):
 @pytest.fixture(scope="module")
 def pages(site) -> dict[str, str]:
     result, _ = site
-    return {p.name: p.read_text(encoding="utf-8") for p in result.out_dir.iterdir()}
+    return {p.name: p.read_text(encoding="utf-8") for p in result.out_dir.iterdir() if p.name != MARKER}
 
 
 def _series_page(pages: dict[str, str], key: str) -> str:
@@ -368,8 +368,8 @@ def test_cli_report_prints_the_index_path_and_renders_reproducibly(runner, tiny,
     assert res.exit_code == 0, res.output
     assert res.stdout == f"{(out / 'index.html').resolve()}\n"
     again = render_report(tiny, tmp_path / "api", as_of=AS_OF, incumbent=INCUMBENT, benchmark="snaive", title="Tiny")
-    names = sorted(p.name for p in out.iterdir())
-    assert names == sorted(p.name for p in again.out_dir.iterdir()) and len(names) == 4 + 3 + 2
+    names = sorted(p.name for p in out.iterdir() if p.name != MARKER)
+    assert names == sorted(p.name for p in again.out_dir.iterdir() if p.name != MARKER) and len(names) == 4 + 3 + 2
     stamp = re.compile(r"<dt>Generated</dt><dd>[^<]*</dd>")
     for name in names:       # charts included: the SVG is deterministic too
         a, b = ((d / name).read_text(encoding="utf-8") for d in (out, again.out_dir))
@@ -383,7 +383,7 @@ def test_worker_processes_write_the_same_pages(pages, ledger_file, tmp_path):
 
     result = render_report(ledger_file, tmp_path / "pool", as_of=AS_OF, title="Invented review <i>Q4</i>",
                            incumbent=INCUMBENT, benchmark="snaive", workers=2)
-    names = sorted(p.name for p in result.out_dir.iterdir())
+    names = sorted(p.name for p in result.out_dir.iterdir() if p.name != MARKER)
     assert names == sorted(pages)
     stamp = re.compile(r"<dt>Generated</dt><dd>[^<]*</dd>")
     for name in names:

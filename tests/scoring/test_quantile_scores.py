@@ -17,13 +17,14 @@ from scipy import stats
 from ledger import Ledger
 from ledger.cli import app
 from ledger.stats import quantiles as Q
+from ledger.wording import quantile_name
 
 TAUS = np.round(np.arange(1, 20) * 0.05, 2)
 MONTHS = pd.period_range("2024-01", periods=30, freq="M")
 
 
 def _name(tau):
-    return Q.tau_name(tau)
+    return quantile_name(tau)
 
 
 @pytest.fixture(scope="module")

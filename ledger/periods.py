@@ -36,6 +36,7 @@ __all__ = [
     "period_label",
     "check_frequency",
     "index_start",
+    "period_sql",
 ]
 
 Frequency = Literal["yearly", "quarterly", "monthly", "weekly", "daily"]
@@ -210,3 +211,19 @@ def parse_period(text: str, freq: str) -> dt.date:
         raise ValueError(f"{text!r} is a {label_freq} label, not a {freq} period")
     return period_start(day, freq)
 
+
+
+def period_sql(day: str, freq: str) -> tuple[str, str]:
+    """SQL for (first day, index) of the period of frequency ``freq`` holding DATE ``day``:
+    the formulas of :func:`period_start` and :func:`period_index`, for set-based staging."""
+    freq = check_frequency(freq)
+    if freq == "yearly":
+        return f"make_date(year({day}), 1, 1)", f"year({day})"
+    if freq == "quarterly":
+        return f"CAST(date_trunc('quarter', {day}) AS DATE)", f"4 * year({day}) + (month({day}) - 1) // 3"
+    if freq == "monthly":
+        return f"CAST(date_trunc('month', {day}) AS DATE)", f"12 * year({day}) + month({day}) - 1"
+    if freq == "weekly":
+        monday = f"CAST({day} - CAST(isodow({day}) - 1 AS INTEGER) AS DATE)"
+        return monday, f"({monday} - DATE '1970-01-05') // 7"
+    return day, f"{day} - DATE '1970-01-01'"

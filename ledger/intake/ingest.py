@@ -11,7 +11,6 @@ is checked there in SQL. Memory stays flat whatever the file's size.
 from __future__ import annotations
 
 import dataclasses
-import datetime as dt
 import re
 
 import numpy as np
@@ -195,38 +194,35 @@ def _keys(source: str, frame: pd.DataFrame, column: str) -> pa.Array:
 
 
 class _Labels:
-    """Period labels seen in one column: each distinct label parsed once, with its first row."""
+    """Period labels of one column, parsed a chunk at a time into the stage's label table.
 
-    def __init__(self, column: str, parsed: dict[str, tuple[str | None, dt.date]]):
+    Only one chunk's distinct labels are in memory at once, however many the file holds.
+    """
+
+    def __init__(self, column: str, stage: Stage):
         self.column = column
-        self.parsed = parsed          # shared by the columns of one file
-        self.first: dict[str, int] = {}
+        self.stage = stage
 
     def learn(self, source: str, text: pa.Array, offset: int) -> None:
-        """Parse the labels of one chunk (rows ``offset + 1`` …) that were not seen before."""
+        """Parse the distinct labels of one chunk (rows ``offset + 1`` …)."""
         encoded = text.dictionary_encode()
         codes, uniques = encoded.indices.to_numpy(zero_copy_only=False), encoded.dictionary.to_pylist()
-        new = [i for i, label in enumerate(uniques) if label not in self.first]
-        if not new:
+        if not uniques:
             return
         first_pos = np.unique(codes, return_index=True)[1]  # codes number labels by first appearance
-        for i in new:
-            label = uniques[i]
-            if label not in self.parsed:
-                try:
-                    self.parsed[label] = parse_label(label)
-                except ValueError as exc:  # row within the chunk: the caller shifts it
-                    raise InputError(source, str(exc), row=int(first_pos[i]) + 1, column=self.column) from None
-            self.first[label] = offset + int(first_pos[i]) + 1
+        kinds, days = [], []
+        for i, label in enumerate(uniques):
+            try:
+                kind, day = parse_label(label)
+            except ValueError as exc:  # row within the chunk: the caller shifts it
+                raise InputError(source, str(exc), row=int(first_pos[i]) + 1, column=self.column) from None
+            kinds.append(kind)
+            days.append(day)
+        self.stage.add_labels(self.column, uniques, kinds, days, offset + first_pos + 1)
 
     def kinds(self) -> dict[str, int]:
         """Each label kind (frequency) found in the column, with the first row holding one."""
-        out: dict[str, int] = {}
-        for label, row in self.first.items():
-            kind = self.parsed[label][0]
-            if kind is not None and row < out.get(kind, row + 1):
-                out[kind] = row
-        return out
+        return self.stage.label_kinds(self.column)
 
 
 def _decide_frequency(source: str, columns: list[_Labels], freq: str | None, known: set[str]) -> str:
@@ -333,8 +329,7 @@ def read_forecasts(
     stage = Stage(store.con, {"model": "VARCHAR", "origin": "VARCHAR", "series": "VARCHAR", "period": "VARCHAR"}
                   | numbers)
     try:
-        parsed: dict[str, tuple[str | None, dt.date]] = {}
-        periods, origins = _Labels("period", parsed), _Labels("origin", parsed)
+        periods, origins = _Labels("period", stage), _Labels("origin", stage)
         outside = _Outside(source)
         for chunk in table.chunks:
             try:
@@ -345,7 +340,7 @@ def read_forecasts(
             stage.append(chunk.offset, staged)
         frequency = _decide_frequency(source, [periods, origins], freq, stage.known_frequencies())
         stage.check_recorded(source, frequency)
-        stage.resolve({label: day for label, (_, day) in parsed.items()}, frequency, ["period", "origin"])
+        stage.resolve(frequency, ["period", "origin"])
         stage.check_horizons(source, frequency, MAX_HORIZON)
         stage.check_unique(source, ["model", "origin_index", "series", "period_index"], "period",
                            "a second forecast for the same series, period, model and origin")
@@ -439,8 +434,7 @@ def read_actuals(store: Store, data, *, freq: str | None = None, name: str | Non
     warnings = [_ignored(source, extras)] if extras else []
     stage = Stage(store.con, {"series": "VARCHAR", "period": "VARCHAR", "value": "DOUBLE"})
     try:
-        parsed: dict[str, tuple[str | None, dt.date]] = {}
-        periods = _Labels("period", parsed)
+        periods = _Labels("period", stage)
         for chunk in table.chunks:
             try:
                 keys = _keys(source, chunk.frame, "series")
@@ -452,7 +446,7 @@ def read_actuals(store: Store, data, *, freq: str | None = None, name: str | Non
             stage.append(chunk.offset, {"series": keys, "period": text, "value": value})
         frequency = _decide_frequency(source, [periods], freq, stage.known_frequencies())
         stage.check_recorded(source, frequency)
-        stage.resolve({label: day for label, (_, day) in parsed.items()}, frequency, ["period"])
+        stage.resolve(frequency, ["period"])
         stage.check_unique(source, ["series", "period_index"], "period", "a second actual for the same series and period")
         warnings += _case_warnings(source, stage, ("series", "series"))
     except BaseException:

@@ -297,7 +297,8 @@ def _materialise(store: Store, sel: Selection, attrs: list[str], where: list[tup
     cols = "".join(f", a{i}.value AS g__{name}" for i, name in enumerate(attrs))
     cond = f"WHERE {' AND '.join(filters)}" if filters else ""
     # sorted by the cell's key, so that the aggregates add each group's values in one order
-    store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT c.*{cols} FROM ({sql}) c "
+    store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT row_number() OVER (ORDER BY c.model, c.series, "
+                      f"c.origin_index, c.period_index) AS cell_id, c.*{cols} FROM ({sql}) c "
                       f"{' '.join(joins)} {cond} ORDER BY c.model, c.series, c.origin_index, c.period_index",
                       params)
 

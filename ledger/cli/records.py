@@ -21,6 +21,7 @@ from .common import (
     say,
 )
 from .columns import choose_columns
+from .engines import Engine, EngineOpt, LakeOpt, SparkMasterOpt, reading_ledger
 from .filters import HorizonOpt, ModelOpt, SeriesOpt, SinceOpt, UntilOpt, WhereOpt, selection
 from ..wording import plural
 from ..scoring.totals import INTERVAL_NOTE
@@ -82,11 +83,14 @@ def scores(
     quantile_detail: Annotated[bool, typer.Option("--quantile-detail", help="Add below_qNN (share of actuals below) and pinball_qNN per quantile level (csv and json show them; the table with --metrics).")] = False,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
+    engine: EngineOpt = Engine.duckdb,
+    lake: LakeOpt = None,
+    spark_master: SparkMasterOpt = None,
 ) -> None:
     """Accuracy per group: MAE, RMSE, MAPE, sMAPE, WAPE, MASE, RMSSE, bias, coverage, interval score, WIS."""
     keys = [k.strip().lower() for k in (by or ("model" if totals else "model,horizon")).split(",") if k.strip()]
     chosen = selection(model=model, series=series, horizon=horizon, since=since, until=until, where=where)
-    with open_ledger(ctx) as book, busy("Scoring"):
+    with reading_ledger(ctx, engine, lake, spark_master) as book, busy("Scoring"):
         if totals is not None:
             if chosen["series"]:
                 raise typer.BadParameter("a total has no series; use --where ATTR=VALUE to choose groups",

@@ -251,7 +251,7 @@ _POINT_AGG = """
 # n: the cells that carry level L's bounds (a model may send bounds for some series only), so
 # coverage_L and width_L state how many cells they are over (column n_L).
 _LEVEL_AGG = """
-    avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN 1.0 ELSE 0.0 END) AS coverage,
+    avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN CAST(1 AS DOUBLE) ELSE CAST(0 AS DOUBLE) END) AS coverage,
     count(*) AS n,
     avg(b.upper - b.lower) AS width,
     avg((b.upper - b.lower)

@@ -97,7 +97,8 @@ class Ledger:
 
     def backtest(self, data, *, methods: Sequence[str], horizon: int | None = None,
                  holdout: int | None = None, origins: str | None = None,
-                 levels: Sequence[float] = (80, 95), freq: str | None = None, jobs: int | None = None,
+                 levels: Sequence[float] = (80, 95), quantiles: Sequence[float] = (),
+                 freq: str | None = None, jobs: int | None = None,
                  fill: str | None = None, progress=None, name: str | None = None,
                  supersede: bool = False):
         """Record a history file as actuals and snapshot reference backtests as ``ref-<method>`` runs.
@@ -107,8 +108,8 @@ class Ledger:
         :class:`ledger.methods.recorded.BacktestResult`.
         """
         return run_backtest(self.store, data, methods=methods, horizon=horizon, holdout=holdout, origins=origins,
-                            levels=levels, freq=freq, jobs=jobs, fill=fill, progress=progress, name=name,
-                            supersede=supersede)
+                            levels=levels, quantiles=quantiles, freq=freq, jobs=jobs, fill=fill, progress=progress,
+                            name=name, supersede=supersede)
 
     def selection(self, *, as_of=None, models: Sequence[str] = (), series: Sequence[str] = (),
                   horizons: Sequence[int] = (), since: str | None = None,
@@ -128,18 +129,19 @@ class Ledger:
     def scores(self, *, by: Sequence[str] = ("model", "horizon"), as_of=None,
                models: Sequence[str] = (), series: Sequence[str] = (), horizons: Sequence[int] = (),
                since: str | None = None, until: str | None = None, where: Sequence[str] = (),
-               weight: str | None = None) -> pd.DataFrame:
+               weight: str | None = None, quantile_detail: bool = False) -> pd.DataFrame:
         """Accuracy metrics per group of cells (columns as in the README's Definitions).
 
         ``by`` takes series, model, horizon, origin, period and any attribute name; ``where``
         takes "ATTR=VALUE" filters; ``weight`` ("volume" or a numeric attribute) adds the
-        weighted columns of :mod:`ledger.scoring.weighted`.
+        weighted columns of :mod:`ledger.scoring.weighted`; ``quantile_detail`` adds below_qNN
+        and pinball_qNN per quantile level.
         """
         sel = self.selection(as_of=as_of, models=models, series=series, horizons=horizons,
                              since=since, until=until, where=where)
         if weight is not None:
-            return weighted_scores(self.store, sel, by, weight=weight)
-        return scores(self.store, sel, by)
+            return weighted_scores(self.store, sel, by, weight=weight, quantile_detail=quantile_detail)
+        return scores(self.store, sel, by, quantile_detail=quantile_detail)
 
     def totals(self, attribute: str, *, by: Sequence[str] = ("model",), as_of=None, models: Sequence[str] = (),
                horizons: Sequence[int] = (), since: str | None = None, until: str | None = None,
@@ -210,6 +212,16 @@ class Ledger:
         """Turn off DuckDB's progress bar on this connection (it writes to stdout); returns self."""
         reads.hide_progress(self.store)
         return self
+
+    def quantile_cells(self, **selection) -> pd.DataFrame:
+        """Every scored cell and quantile level: value, actual and whether the actual fell below."""
+        from .scoring.quantile_reads import quantile_cells
+        return quantile_cells(self.store, self.selection(**selection))
+
+    def wis_by_horizon(self, **selection) -> pd.DataFrame:
+        """Per model and horizon: cells with a WIS and the means of WIS and its three parts."""
+        from .scoring.quantile_reads import wis_by_horizon
+        return wis_by_horizon(self.store, self.selection(**selection))
 
     def verify(self, *, progress=None) -> list[Problem]:
         """Integrity problems of the ledger file (empty when sound)."""

@@ -37,6 +37,7 @@ from .review import rank_flags
 from .tables import write_page
 from .render import findings_table, render_page
 from .series_views import Columns, SeriesInput, build_series, metrics_for
+from .quantile_views import QuantileData, build_quantile_view, load_quantile_data
 from .views import (
     Context,
     Footer,
@@ -120,6 +121,7 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
         core = load(book, as_of=stamp, since=since, until=until, horizon=horizon, incumbent=incumbent,
                     benchmark=benchmark, with_findings=False, models=models, overrides=overrides)
         groups = load_groups(book, group_by, as_of=stamp, since=since, until=until) if group_by else None
+        quantiles = load_quantile_data(book, as_of=stamp, since=since, until=until)
         ctx = build_context(core, title or "Forecast accuracy report")
         inputs = series_inputs(core, ctx)
         nav = {"groups_page": GROUPS_PAGE if groups is not None else None}
@@ -128,7 +130,7 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
         tick = _ticker(progress, 4 + extra + len(core.models) + len(inputs))
         tick("computing findings", 0)
         data = dataclasses.replace(core, findings=found.result())
-        overview, rows = _write_fixed(data, ctx, out, tick, nav)
+        overview, rows = _write_fixed(data, ctx, out, tick, nav, quantiles)
         if groups is not None:
             _write_groups(count_findings(book, groups, data.findings.flags, stamp), ctx, out, tick)
         _write_series(pages, data, ctx, out, tick)
@@ -139,8 +141,9 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
                         advice=overview.review.advice)
 
 
-def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict):
-    """Overview, findings, series index, methods and model pages (``nav``: optional navigation links)."""
+def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict, quantiles: QuantileData | None = None):
+    """Overview, findings, series index, methods and model pages (``nav``: optional navigation links;
+    ``quantiles``: the frames of the model pages' quantile sections)."""
     overview = build_overview(data, ctx)
     write_page(out, "index.html", render_page("index.html", v=overview, ctx=ctx, page="index", **nav))
     tick("overview")
@@ -154,7 +157,8 @@ def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict):
     tick("methods")
     for model in data.models:
         view = build_model(data, ctx, model)
-        write_page(out, view.href, render_page("model.html", v=view, ctx=ctx, page=view.href, **nav))
+        write_page(out, view.href, render_page("model.html", v=view, ctx=ctx, page=view.href,
+                                               quantiles=build_quantile_view(quantiles, model), **nav))
         tick(f"model {model}")
     return overview, rows
 

@@ -34,6 +34,7 @@ __all__ = ["flags", "compare", "standings", "advise"]
 class Kind(str, enum.Enum):
     drift = "drift"
     calibration = "calibration"
+    quantiles = "quantiles"
     value = "value"
     data = "data"
 

@@ -251,7 +251,7 @@ _POINT_AGG = """
 # n: the cells that carry level L's bounds (a model may send bounds for some series only), so
 # coverage_L and width_L state how many cells they are over (column n_L).
 _LEVEL_AGG = """
-    avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN 1.0 ELSE 0.0 END) AS coverage,
+    avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN CAST(1 AS DOUBLE) ELSE CAST(0 AS DOUBLE) END) AS coverage,
     count(*) AS n,
     avg(b.upper - b.lower) AS width,
     avg((b.upper - b.lower)
@@ -297,7 +297,8 @@ def _materialise(store: Store, sel: Selection, attrs: list[str], where: list[tup
     cols = "".join(f", a{i}.value AS g__{name}" for i, name in enumerate(attrs))
     cond = f"WHERE {' AND '.join(filters)}" if filters else ""
     # sorted by the cell's key, so that the aggregates add each group's values in one order
-    store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT c.*{cols} FROM ({sql}) c "
+    store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT row_number() OVER (ORDER BY c.model, c.series, "
+                      f"c.origin_index, c.period_index) AS cell_id, c.*{cols} FROM ({sql}) c "
                       f"{' '.join(joins)} {cond} ORDER BY c.model, c.series, c.origin_index, c.period_index",
                       params)
 

@@ -15,7 +15,7 @@ from collections.abc import Sequence
 import pandas as pd
 
 from ledger.stats.intervals import coverage_zone
-from ledger.wording import num, pct, severity_rank
+from ledger.wording import format_level, num, pct, plural, severity_rank
 
 from . import charts
 from .data import LedgerData
@@ -23,7 +23,6 @@ from .text import (
     bias_words,
     coverage_words,
     is_small,
-    plural,
     sample_note,
     tolerance_band,
 )
@@ -274,7 +273,7 @@ def finding_rows(flags: pd.DataFrame, ctx: Context) -> list[FindingRow]:
         horizon = "" if pd.isna(r["horizon"]) else str(int(r["horizon"]))
         if not horizon and _text(r.get("horizons")):
             horizon = _text(r.get("horizons"))
-        level = "" if pd.isna(r["level"]) else f"{float(r['level']):g}%"
+        level = "" if pd.isna(r["level"]) else f"{format_level(r['level'])}%"
         rows.append(FindingRow(
             kind=_text(r["kind"]), severity=_text(r["severity"]) if has_sev else "", series=series,
             series_href=ctx.series_href.get(series, ""), model=model, model_href=ctx.model_href.get(model, ""),
@@ -293,14 +292,13 @@ def _ranked(rows: list[FindingRow]) -> list[FindingRow]:
 
 def build_overview(data: LedgerData, ctx: Context) -> Overview:
     """The overview page: counts, headline sentences, leaderboard, charts, findings, advice."""
-    periods = sorted(data.by_model_period["period"].unique()) if len(data.by_model_period) else []
     all_periods = _scored_period_range(data)
     counts = {"series": len(data.series), "models": len(data.models), "runs": len(data.runs),
               "cells_scored": int(data.by_model_h["n"].sum()) if len(data.by_model_h) else 0,
               "cells_pending": data.pending}
     flag_rows = _ranked(finding_rows(data.findings.flags, ctx))
     advice = _advice_rows(data)
-    chart_list, notes = _overview_charts(data, ctx, periods)
+    chart_list, notes = _overview_charts(data, ctx)
     return Overview(
         title=ctx.title, as_of=ctx.footer.as_of, period_first=all_periods[0], period_last=all_periods[1],
         counts=counts, headlines=_headlines(data, ctx, counts, flag_rows, advice), horizon=data.horizon,
@@ -341,7 +339,7 @@ def _best_model(part: pd.DataFrame) -> str | None:
 
 def _headlines(data: LedgerData, ctx: Context, counts: dict, flags: list[FindingRow],
                advice: list[AdviceRow]) -> list[str]:
-    lines = [_scope_sentence(data, counts)]
+    lines = [_scope_sentence(counts)]
     lines += _model_sentences(data, ctx)
     lines += _winner_sentence(data)
     kinds = _count_kinds(flags)
@@ -352,7 +350,7 @@ def _headlines(data: LedgerData, ctx: Context, counts: dict, flags: list[Finding
     return lines
 
 
-def _scope_sentence(data: LedgerData, counts: dict) -> str:
+def _scope_sentence(counts: dict) -> str:
     return (f"The ledger holds {plural(counts['series'], 'series', 'series')}, "
             f"{plural(counts['models'], 'model')} and {plural(counts['runs'], 'live run')}; "
             f"{counts['cells_scored']:,} forecasts have been scored against actuals and "
@@ -386,7 +384,7 @@ def _coverage_clause(data: LedgerData, model: str) -> str:
     level = 80.0 if (counts["level"] == 80).any() else float(counts["level"].iloc[0])
     cell = coverage_cell(level, int(counts.loc[counts["level"] == level, "n"].sum()),
                          int(counts.loc[counts["level"] == level, "misses"].sum()))
-    return f"; its {level:g}% intervals {coverage_words(cell.observed, level, cell.direction, cell.zone)} ({sample_note(cell.n)})"
+    return f"; its {format_level(level)}% intervals {coverage_words(cell.observed, level, cell.direction, cell.zone)} ({sample_note(cell.n)})"
 
 
 def _winner_sentence(data: LedgerData) -> list[str]:
@@ -427,7 +425,7 @@ def _pivot(frame: pd.DataFrame, index: str, column: str, models: Sequence[str]) 
     return keys, {m: [float(v) for v in table[m]] for m in models if m in table.columns}
 
 
-def _overview_charts(data: LedgerData, ctx: Context, periods: list) -> tuple[list[charts.Chart], list[str]]:
+def _overview_charts(data: LedgerData, ctx: Context) -> tuple[list[charts.Chart], list[str]]:
     out, notes = [], []
     h = data.horizon
     if len(data.by_model_period):
@@ -473,7 +471,7 @@ def _calibration(data: LedgerData, ctx: Context) -> charts.Chart:
         cell = coverage_cell(float(r["level"]), int(r["n"]), int(r["misses"]))
         low, high = tolerance_band(cell.n, cell.level)
         points.append(charts.CalibrationPoint(str(r["model"]), cell.level, cell.observed, low, high, cell.n))
-        words.append(f"{r['model']} {cell.level:g}%: {cell.observed:.0f}% observed ({cell.direction}, {sample_note(cell.n)})")
+        words.append(f"{r['model']} {format_level(cell.level)}%: {cell.observed:.0f}% observed ({cell.direction}, {sample_note(cell.n)})")
     return charts.calibration_chart(
         "c-calibration", "Interval coverage: observed against nominal, all horizons",
         "Markers are observed coverage; grey bars are the range a model with honest intervals would stay "
@@ -515,7 +513,7 @@ def _coverage_chart(model: str, rows: list[MetricRow], ctx: Context) -> charts.C
     if not rows or not ctx.levels or all(c.n == 0 for r in rows for c in r.coverage):
         return None
     hs = [r.horizon for r in rows]
-    names = {lv: f"{lv:g}% interval" for lv in ctx.levels}
+    names = {lv: f"{format_level(lv)}% interval" for lv in ctx.levels}
     values = {names[lv]: [r.coverage[i].observed for r in rows] for i, lv in enumerate(ctx.levels)}
     styles = charts.model_styles(list(values))
     words = "; ".join(f"{name}: {num(v[0])}% at h={hs[0]}, {num(v[-1])}% at h={hs[-1]}" for name, v in values.items())

@@ -20,13 +20,14 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
+from .columns import bound_columns, is_level_column, misspelt_column, quantile_columns
 from ..errors import FrequencyError, InputError
 from ..periods import FREQUENCIES, check_frequency, parse_label
 from .problems import Problems, refuse
 from .sources import Chunk, open_table
 from .staging import Stage
 from ..store import Store
-from ..wording import format_level, list_names, shorten
+from ..wording import list_names, shorten
 
 __all__ = [
     "ForecastFrame",
@@ -35,13 +36,6 @@ __all__ = [
     "read_actuals",
 ]
 
-_BOUND = re.compile(r"^(lower|upper)_(\d+(?:\.\d+)?)$")
-_QUANTILE = re.compile(r"^q(\d{2,}|0\.\d+|\d+\.\d+)$")
-_BOUND_LIKE = re.compile(
-    r"^(lower|upper|lo|hi|low|high|lwr|upr|lb|ub)[\s_\-.]*(\d+(?:\.\d+)?)(%|pct)?$"
-)
-_QUANTILE_LIKE = re.compile(r"^(q|p|quantile|tau)[\s_\-.]*(\d+(?:\.\d+)?)$")
-_LOWER_WORDS = {"lower", "lo", "low", "lwr", "lb"}
 
 
 class _Staged:
@@ -116,9 +110,32 @@ def _mask(array: pa.Array) -> np.ndarray:
     return array.to_numpy(zero_copy_only=False)
 
 
+_NOT_TEXT = (bytes, bytearray, list, tuple, dict, set, np.ndarray)
+
+
+def _check_value_kinds(source: str, raw: pd.Series, column: str, *, number: bool) -> None:
+    """Refuse what a typed file (Parquet, a DataFrame) can hold but a key or a number is not:
+    true/false for a number, bytes or lists or maps anywhere. Never coerced silently."""
+    if number and pd.api.types.is_bool_dtype(raw):
+        raise InputError(source, "holds true/false values, not numbers", row=1, column=column)
+    if raw.dtype != object:
+        return
+    kind = pd.api.types.infer_dtype(raw, skipna=True)
+    if kind in ("string", "empty", "integer", "floating", "mixed-integer-float", "date", "datetime", "decimal"):
+        return
+    for i, value in enumerate(raw):
+        if isinstance(value, _NOT_TEXT) or (number and isinstance(value, (bool, np.bool_))):
+            what = {bytes: "binary data", bytearray: "binary data", dict: "a map"}.get(type(value), "a list")
+            if isinstance(value, (bool, np.bool_)):
+                what = "a true/false value"
+            raise InputError(source, f"holds {what}, not {'a number' if number else 'text'}; "
+                             "write the column as plain values", row=i + 1, column=column)
+
+
 def _numbers(source: str, frame: pd.DataFrame, column: str, *, allow_blank: bool) -> np.ndarray:
     """Parse a numeric column; refuse non-numbers, NaN and infinities with the first bad row."""
     raw = frame[column]
+    _check_value_kinds(source, raw, column, number=True)
     if pd.api.types.is_numeric_dtype(raw):
         values = raw.to_numpy(dtype="float64", na_value=np.nan)
         blank = np.isnan(values)
@@ -167,6 +184,7 @@ MAX_HORIZON = 1000
 
 
 def _keys(source: str, frame: pd.DataFrame, column: str) -> pa.Array:
+    _check_value_kinds(source, frame[column], column, number=False)
     text = _as_text(frame[column])
     empty = _mask(pc.equal(text, ""))
     refuse(source, empty, column, lambda i: "is empty")
@@ -247,14 +265,10 @@ def _extra_columns(columns: list[str], known: set[str], source: str) -> list[str
     extras = []
     problems = Problems(source)
     for col in columns:
-        if col in known or _BOUND.match(col) or _QUANTILE.match(col):
+        if col in known or is_level_column(col):
             continue
-        if m := _BOUND_LIKE.match(col):
-            side = "lower" if m[1] in _LOWER_WORDS else "upper"
-            problems.add(InputError(source, f"looks like an interval bound; name it {side}_{m[2]}", column=col))
-        elif m := _QUANTILE_LIKE.match(col):
-            problems.add(InputError(source, f"looks like a quantile; name it q{m[2].replace('.', '')} "
-                                    "(q10 is the 0.10 quantile)", column=col))
+        if fix := misspelt_column(col):
+            problems.add(InputError(source, fix, column=col))
         else:
             extras.append(col)
     problems.raise_if_any()
@@ -266,49 +280,16 @@ def _ignored(source: str, extras: list[str]) -> str:
     return f"{source}: ignored column{'s' if len(extras) > 1 else ''} {shown}"
 
 
-def _bound_columns(columns: list[str], source: str) -> dict[float, tuple[str, str]]:
-    levels: dict[float, dict[str, str]] = {}
-    problems, outside = Problems(source), set()
-    for col in columns:
-        if m := _BOUND.match(col):
-            level = float(m[2])
-            if not 0 < level < 100:
-                if level not in outside:   # once per level, at its first column
-                    problems.add(InputError(source, f"level {m[2]} is outside (0, 100)", column=col))
-                outside.add(level)
-                continue
-            levels.setdefault(level, {})[m[1]] = col
-    for level, sides in levels.items():
-        for side, other in (("lower", "upper"), ("upper", "lower")):
-            if side in sides and other not in sides:
-                problems.add(InputError(source, f"has no matching {other}_{format_level(level)} column"
-                                        f"{_lookalike(columns, other, level)}", column=sides[side]))
-    problems.raise_if_any()
-    return {level: (sides["lower"], sides["upper"]) for level, sides in sorted(levels.items())}
-
-
-def _lookalike(columns: list[str], side: str, level: float) -> str:
-    """'; lower80 looks like it: rename it lower_80' when a misspelt partner is in the file."""
-    for col in columns:
-        m = _BOUND_LIKE.match(col)
-        if m and not _BOUND.match(col) and ((m[1] in _LOWER_WORDS) == (side == "lower")) and float(m[2]) == level:
-            return f"; {col} looks like it: rename it {side}_{format_level(level)}"
-    return ""
-
-
-def _quantile_columns(columns: list[str], source: str) -> dict[float, str]:
-    taus = {}
-    problems = Problems(source)
-    for col in columns:
-        if m := _QUANTILE.match(col):
-            digits = m[1]
-            tau = float(digits) if "." in digits else float("0." + digits)
-            if not 0 < tau < 1:
-                problems.add(InputError(source, f"quantile level {tau:g} is outside (0, 1)", column=col))
-                continue
-            taus[tau] = col
-    problems.raise_if_any()
-    return dict(sorted(taus.items()))
+def _bounds_named(columns: list[str], source: str) -> dict[float, tuple[str, str]]:
+    """:func:`bound_columns`, naming a misspelt partner of a lone bound (lower80 beside upper_80)."""
+    try:
+        return bound_columns(columns, source)
+    except InputError as exc:
+        m = re.match(r"^has no matching (\S+) column$", exc.detail)
+        near = [c for c in columns if m and (fix := misspelt_column(c)) and fix.endswith(f"name it {m[1]}")]
+        if not near:
+            raise
+        raise InputError(source, f"{exc.detail}; {near[0]} looks like it: rename it {m[1]}", column=exc.column) from None
 
 
 def _model_origin(source, frame, model, origin) -> tuple[pa.Array, pa.Array]:
@@ -348,7 +329,7 @@ def read_forecasts(
     source, columns = table.source, table.columns
     problems = Problems(source)
     bound_cols, quant_cols, extras = _header(source, columns, ("series", "period", "forecast"), problems, {
-        "bounds": lambda: _bound_columns(columns, source), "quantiles": lambda: _quantile_columns(columns, source),
+        "bounds": lambda: _bounds_named(columns, source), "quantiles": lambda: quantile_columns(columns, source),
         "extras": lambda: _extra_columns(columns, {"series", "period", "forecast", "model", "origin"}, source)})
     warnings = [_ignored(source, extras)] if extras else []
     levels, taus = list(bound_cols), list(quant_cols)
@@ -362,7 +343,7 @@ def read_forecasts(
         outside = _Outside(source)
         for chunk in table.chunks:
             staged = _forecast_chunk(source, chunk, model, origin, periods, origins, bound_cols, quant_cols, problems)
-            outside.add(chunk.offset, staged, levels)
+            outside.add(chunk.offset, staged, len(levels))
             stage.append(chunk.offset, staged)
         frequency = None
         with problems.guard():
@@ -383,7 +364,8 @@ def read_forecasts(
     except BaseException:
         stage.close()
         raise
-    return ForecastFrame(source, frequency, stage, levels, taus, warnings + outside.warnings(levels))
+    return ForecastFrame(source, frequency, stage, levels, taus,
+                         warnings + outside.warnings([lower for lower, _ in bound_cols.values()]))
 
 
 def _header(source, columns, required, problems: Problems, checks: dict) -> tuple[dict, dict, list]:
@@ -418,6 +400,14 @@ def _recorded(stage: Stage, source: str, frequency: str, problems: Problems, opt
             problems.add(InputError(source, m[3], row=int(m[1]), column=m[2]) if m else InputError(source, str(exc)))
 
 
+def _text_or_blank(col: pd.Series) -> pa.Array:
+    """A refused column's text for the checks that still run, or blanks when it is not text at all."""
+    try:
+        return _as_text(col)
+    except (pa.ArrowTypeError, pa.ArrowInvalid, TypeError, ValueError, UnicodeDecodeError):  # already collected
+        return pa.array(np.full(len(col), "", dtype=object), pa.string())
+
+
 def _checked(problems: Problems, offset: int, check, fallback):
     """``check()``, or ``fallback()`` after its problems are collected (so the other checks still run)."""
     with problems.guard(offset):
@@ -432,10 +422,10 @@ def _forecast_chunk(source, chunk: Chunk, model, origin, periods: _Labels, origi
     blank = lambda: pa.array(np.full(n, "", dtype=object), pa.string())
     nan = lambda: np.full(n, np.nan)
     models, origin_text = _checked(problems, offset, lambda: _model_origin(source, frame, model, origin),
-                                   lambda: (blank(), _as_text(frame["origin"]) if "origin" in frame.columns
+                                   lambda: (blank(), _text_or_blank(frame["origin"]) if "origin" in frame.columns
                                             else pa.array(np.full(n, str(origin or ""), dtype=object), pa.string())))
-    keys = _checked(problems, offset, lambda: _keys(source, frame, "series"), lambda: _as_text(frame["series"]))
-    period_text = _checked(problems, offset, lambda: _keys(source, frame, "period"), lambda: _as_text(frame["period"]))
+    keys = _checked(problems, offset, lambda: _keys(source, frame, "series"), lambda: _text_or_blank(frame["series"]))
+    period_text = _checked(problems, offset, lambda: _keys(source, frame, "period"), lambda: _text_or_blank(frame["period"]))
     with problems.guard(offset):
         periods.learn(source, period_text, offset)
     with problems.guard(offset):
@@ -483,17 +473,19 @@ class _Outside:
         self.count: dict[int, int] = {}
         self.first: dict[int, int] = {}
 
-    def add(self, offset: int, staged: dict[str, np.ndarray], levels: list[float]) -> None:
+    def add(self, offset: int, staged: dict[str, np.ndarray], n_levels: int) -> None:
         point = staged["point"]
-        for i in range(len(levels)):
+        for i in range(n_levels):
             outside = (point < staged[f"lo_{i}"]) | (point > staged[f"hi_{i}"])
             if outside.any():
                 self.first.setdefault(i, offset + int(np.argmax(outside)) + 1)
                 self.count[i] = self.count.get(i, 0) + int(outside.sum())
 
-    def warnings(self, levels: list[float]) -> list[str]:
+    def warnings(self, lower_columns: list[str]) -> list[str]:
+        """One warning per level, named by its column's own spelling (two levels may print alike)."""
         return [f"{self.source}: {self.count[i]} point forecast(s) lie outside their own "
-                f"{format_level(levels[i])}% interval (first at row {self.first[i]})" for i in sorted(self.count)]
+                f"{lower_columns[i].split('_', 1)[1]}% interval (first at row {self.first[i]})"
+                for i in sorted(self.count)]
 
 
 def read_actuals(store: Store, data, *, freq: str | None = None, name: str | None = None,
@@ -514,8 +506,8 @@ def read_actuals(store: Store, data, *, freq: str | None = None, name: str | Non
         periods = _Labels("period", parsed)
         for chunk in table.chunks:
             frame, offset = chunk.frame, chunk.offset
-            keys = _checked(problems, offset, lambda: _keys(source, frame, "series"), lambda: _as_text(frame["series"]))
-            text = _checked(problems, offset, lambda: _keys(source, frame, "period"), lambda: _as_text(frame["period"]))
+            keys = _checked(problems, offset, lambda: _keys(source, frame, "series"), lambda: _text_or_blank(frame["series"]))
+            text = _checked(problems, offset, lambda: _keys(source, frame, "period"), lambda: _text_or_blank(frame["period"]))
             with problems.guard(offset):
                 periods.learn(source, text, offset)
             value = _checked(problems, offset, lambda: _numbers(source, frame, "actual", allow_blank=False),

@@ -1,8 +1,30 @@
 """Scoring: join forecasts to actuals in DuckDB, per-cell errors and scales, grouped aggregates.
 
-All of it is set-based SQL with standard window functions and joins, so the same queries can
-later run on another SQL engine over Parquet exports. The definitions match
-:mod:`ledger.stats.metrics`, which the tests use as the oracle.
+All of it is set-based SQL, so the same queries can later run on another SQL engine over
+Parquet exports. The definitions match :mod:`ledger.stats.metrics`, which the tests use as the
+oracle.
+
+Standard SQL in these queries (and in the ``live_runs_sql`` / ``latest_actuals_sql`` of
+:mod:`ledger.store` and ``attributes_sql`` of :mod:`ledger.scoring.attributes` that they
+compose): ``WITH`` common table expressions, inner and left joins, ``UNION ALL``, ``GROUP BY``,
+``CASE``, ``abs``, ``sqrt``, ``avg`` / ``sum`` / ``count`` / ``max``, ``count(*) FILTER (WHERE …)``,
+the boolean literal ``TRUE``, ``row_number()`` and running ``sum`` / ``max`` over a named
+``WINDOW … (PARTITION BY … ORDER BY … ROWS UNBOUNDED PRECEDING)``, ``IN (…)`` lists.
+
+DuckDB dialect, each with a plain equivalent elsewhere:
+
+- ``$name`` query parameters (``$as_of``, ``$since``, ``$m0`` …): DuckDB's named-parameter
+  syntax; another engine binds them its own way (``?``, ``:name``) or gets literals.
+- ``greatest(x, 0)`` in the interval score: not in the standard, but in most engines (Spark,
+  PostgreSQL, MySQL); the standard form is ``CASE WHEN x > 0 THEN x ELSE 0 END``.
+- ``CREATE OR REPLACE TEMP TABLE _scored AS …`` and ``DROP TABLE IF EXISTS``: the grouped
+  scores materialise the selected cells once per call (standard: ``CREATE LOCAL TEMPORARY
+  TABLE … AS (…) WITH DATA``; on Spark a temporary view).
+
+Not SQL at all: the aggregates run on one DuckDB thread over cells sorted by their key, so that
+their floats are the same on every run (:mod:`ledger.scoring.repeatable`); this leans on DuckDB
+keeping the rows of ``_scored`` in the order of its ``ORDER BY`` (insertion order is preserved). The probabilistic
+scores have their own module and docstring (:mod:`ledger.scoring.quantile_sql`).
 
 Scale of a cell (Hyndman & Koehler 2006): q = mean |y_t − y_{t−m}| over the pairs of the series'
 actuals with t at or before the cell's origin (q2 likewise with squares). Pairs are formed by
@@ -24,6 +46,7 @@ from ..errors import LedgerError, UnknownName
 from ..periods import index_start, parse_label, period_index, period_label
 from .attributes import attributes_sql, check_attribute, known_attributes
 from .quantile_sql import add_probabilistic_columns, quantile_detail_sql, wis_group_sql
+from .repeatable import one_thread
 from ..store import Store, latest_actuals_sql, live_runs_sql
 from ..wording import format_level
 
@@ -162,7 +185,7 @@ def cells_sql(sel: Selection) -> tuple[str, dict]:
 def score_cells(store: Store, sel: Selection) -> pd.DataFrame:
     """Every scored cell with its per-cell errors (for findings and reports)."""
     sql, params = cells_sql(sel)
-    return store.con.execute(f"SELECT * FROM ({sql}) ORDER BY model, series, origin_index, period_index",
+    return store.con.execute(f"SELECT * FROM ({sql}) c ORDER BY model, series, origin_index, period_index",
                              params).df()
 
 
@@ -260,8 +283,10 @@ def _materialise(store: Store, sel: Selection, attrs: list[str], where: list[tup
         filters.append(f"a{attrs.index(name)}.value = $where{j}")
     cols = "".join(f", a{i}.value AS g__{name}" for i, name in enumerate(attrs))
     cond = f"WHERE {' AND '.join(filters)}" if filters else ""
+    # sorted by the cell's key, so that the aggregates add each group's values in one order
     store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT c.*{cols} FROM ({sql}) c "
-                      f"{' '.join(joins)} {cond}", params)
+                      f"{' '.join(joins)} {cond} ORDER BY c.model, c.series, c.origin_index, c.period_index",
+                      params)
 
 
 def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"), *,
@@ -280,26 +305,33 @@ def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"
     con = store.con
     _materialise(store, sel, attrs, where)
     try:
-        key_sql = {k: _KEY_SQL.get(k, f"c.g__{k}") for k in keys}
-        group = ", ".join(key_sql[k] for k in keys)
-        select_keys = ", ".join(f"{key_sql[k]} AS {k}" for k in keys)
-        gb = f"GROUP BY {group}" if keys else ""
-        point = con.execute(
-            f"SELECT {select_keys + ',' if keys else ''} {_POINT_AGG} FROM _scored c {gb}").df()
-        levels = con.execute(
-            f"SELECT {select_keys + ',' if keys else ''} b.level, {_LEVEL_AGG} FROM _scored c "
-            f"JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index "
-            f"GROUP BY {group + ',' if keys else ''} b.level").df()
-        pinball = con.execute(
-            f"SELECT {select_keys + ',' if keys else ''} {_PINBALL_AGG} FROM _scored c "
-            f"JOIN quantiles qt ON qt.run_id = c.run_id AND qt.series = c.series AND qt.period_index = c.period_index "
-            f"{gb}").df()
-        wis = con.execute(wis_group_sql("_scored", select_keys, group)).df()
-        detail = con.execute(quantile_detail_sql("_scored", select_keys, group)).df() if quantile_detail else None
+        with one_thread(con):  # the same sums, to the last bit, on every run
+            point, levels, pinball, wis, detail = _aggregates(con, keys, quantile_detail)
         freqs = [r[0] for r in con.execute("SELECT DISTINCT frequency FROM _scored").fetchall()]
     finally:
         con.execute("DROP TABLE IF EXISTS _scored")
     return _assemble(point, levels, pinball, keys, freqs, (wis, detail))
+
+
+def _aggregates(con, keys: list[str], quantile_detail: bool) -> tuple:
+    """Point, level, pinball, WIS (and quantile detail) aggregates of _scored per group."""
+    key_sql = {k: _KEY_SQL.get(k, f"c.g__{k}") for k in keys}
+    group = ", ".join(key_sql[k] for k in keys)
+    select_keys = ", ".join(f"{key_sql[k]} AS {k}" for k in keys)
+    gb = f"GROUP BY {group}" if keys else ""
+    point = con.execute(
+        f"SELECT {select_keys + ',' if keys else ''} {_POINT_AGG} FROM _scored c {gb}").df()
+    levels = con.execute(
+        f"SELECT {select_keys + ',' if keys else ''} b.level, {_LEVEL_AGG} FROM _scored c "
+        f"JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index "
+        f"GROUP BY {group + ',' if keys else ''} b.level").df()
+    pinball = con.execute(
+        f"SELECT {select_keys + ',' if keys else ''} {_PINBALL_AGG} FROM _scored c "
+        f"JOIN quantiles qt ON qt.run_id = c.run_id AND qt.series = c.series AND qt.period_index = c.period_index "
+        f"{gb}").df()
+    wis = con.execute(wis_group_sql("_scored", select_keys, group)).df()
+    detail = con.execute(quantile_detail_sql("_scored", select_keys, group)).df() if quantile_detail else None
+    return point, levels, pinball, wis, detail
 
 
 def _assemble(point: pd.DataFrame, levels: pd.DataFrame, pinball: pd.DataFrame,

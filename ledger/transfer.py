@@ -154,5 +154,7 @@ def _detect_format(src: Path) -> str:
     for fmt in ("parquet", "csv"):
         if all((src / f"{t}.{fmt}").exists() for t in TABLES):
             return fmt
-    missing = [f"{t}.parquet" for t in TABLES if not (src / f"{t}.parquet").exists()]
+    # Name what is missing of the export that is there (the format with more of its files).
+    fmt = max(("parquet", "csv"), key=lambda f: sum((src / f"{t}.{f}").exists() for t in TABLES))
+    missing = [f"{t}.{fmt}" for t in TABLES if not (src / f"{t}.{fmt}").exists()]
     raise LedgerError(f"{src} does not hold a complete export (missing {', '.join(missing)})")

@@ -17,7 +17,8 @@ from __future__ import annotations
 
 import pandas as pd
 
-from ..stats.quantiles import TAU_DIGITS, tau_name
+from ..stats.quantiles import TAU_DIGITS
+from ..wording import quantile_name
 
 __all__ = ["WIS_COLUMNS", "wis_cells_sql", "wis_group_sql", "quantile_detail_sql", "add_probabilistic_columns"]
 
@@ -127,7 +128,7 @@ def add_probabilistic_columns(out: pd.DataFrame, wis: pd.DataFrame, detail: pd.D
         out = _join(out, wis, keys)
     if detail is not None and len(detail):
         for tau in sorted(detail["tau"].unique()):
-            name = tau_name(float(tau))
+            name = quantile_name(float(tau))
             part = detail[detail["tau"] == tau].drop(columns="tau")
             part = part.rename(columns={"below": f"below_{name}", "pinball": f"pinball_{name}"})
             out = _join(out, part.reset_index(drop=True), keys)

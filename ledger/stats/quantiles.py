@@ -29,7 +29,6 @@ from scipy import stats
 __all__ = [
     "WISParts",
     "TAU_DIGITS",
-    "tau_name",
     "central_pairs",
     "weighted_interval_score",
     "wis_from_quantiles",
@@ -55,14 +54,6 @@ class WISParts:
     dispersion: FloatArray
     overprediction: FloatArray
     underprediction: FloatArray
-
-
-def tau_name(tau: float) -> str:
-    """The column suffix of a quantile level, as forecast files spell it: 0.1 -> 'q10', 0.05 -> 'q05', 0.975 -> 'q975'."""
-    if not 0.0 < float(tau) < 1.0:
-        raise ValueError(f"tau must lie strictly between 0 and 1 (0.9, not 90), got {tau!r}")
-    digits = f"{float(tau):.{TAU_DIGITS}f}".split(".")[1].rstrip("0")
-    return "q" + digits.ljust(2, "0")
 
 
 def _taus(taus: npt.ArrayLike) -> FloatArray:

@@ -91,8 +91,8 @@ def flags(
     emit(table, fmt, title="Findings (e = actual − forecast)")
     if long:
         for i, row in enumerate(frame.itertuples(index=False), start=1):
-            where_ = " ".join(x for x in (row.model, row.series) if x) or "(all series)"
-            say(f"{i}. {row.kind} {where_}: {row.evidence}")
+            where_ = "".join(f" {x}" for x in (row.model, row.series) if x)   # no empty name in the sentence
+            say(f"{i}. {row.kind}{where_}: {row.evidence}")
 
 
 @app.command()

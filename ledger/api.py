@@ -20,6 +20,7 @@ from .intake.ingest import read_actuals, read_forecasts
 from .integrity import Problem, verify
 from .periods import period_label
 from .intake.record import ActualsResult, SnapshotResult, write_actuals, write_runs
+from .scoring.events import EventsResult, events_in_force, write_events
 from .scoring.cells import Selection, interval_cells, score_cells, scores
 from .store import Store, parse_as_of
 from .scoring.totals import totals
@@ -110,21 +111,23 @@ class Ledger:
 
     def selection(self, *, as_of=None, models: Sequence[str] = (), series: Sequence[str] = (),
                   horizons: Sequence[int] = (), since: str | None = None,
-                  until: str | None = None) -> Selection:
-        return Selection(parse_as_of(as_of), tuple(models), tuple(series), tuple(horizons), since, until)
+                  until: str | None = None, include_excluded: bool = False) -> Selection:
+        return Selection(parse_as_of(as_of), tuple(models), tuple(series), tuple(horizons), since, until,
+                         include_excluded)
 
     def scores(self, *, by: Sequence[str] = ("model", "horizon"), as_of=None,
                models: Sequence[str] = (), series: Sequence[str] = (), horizons: Sequence[int] = (),
                since: str | None = None, until: str | None = None, where: Sequence[str] = (),
-               weight: str | None = None) -> pd.DataFrame:
+               weight: str | None = None, include_excluded: bool = False) -> pd.DataFrame:
         """Accuracy metrics per group of cells (columns as in the README's Definitions).
 
         ``by`` takes series, model, horizon, origin, period and any attribute name; ``where``
         takes "ATTR=VALUE" filters; ``weight`` ("volume" or a numeric attribute) adds the
-        weighted columns of :mod:`ledger.scoring.weighted`.
+        weighted columns of :mod:`ledger.scoring.weighted`. Cells of excluding events are left
+        out (counted in ``n_excluded``) unless ``include_excluded``.
         """
         sel = self.selection(as_of=as_of, models=models, series=series, horizons=horizons,
-                             since=since, until=until)
+                             since=since, until=until, include_excluded=include_excluded)
         conditions = parse_where(where)
         if weight is not None:
             return weighted_scores(self.store, sel, by, weight=weight, where=conditions)
@@ -139,6 +142,14 @@ class Ledger:
     def record_attributes(self, data, *, name: str | None = None, total_of: str | None = None) -> AttributesResult:
         """Record series attributes (a changed value becomes a new version); see :mod:`ledger.scoring.attributes`."""
         return write_attributes(self.store, data, name=name, total_of=total_of)
+
+    def record_events(self, data, *, name: str | None = None) -> EventsResult:
+        """Record events (series, first, last, label, exclude); see :mod:`ledger.scoring.events`."""
+        return write_events(self.store, data, name=name)
+
+    def events(self, *, as_of=None) -> pd.DataFrame:
+        """The events in force at the as-of, one row per event."""
+        return events_in_force(self.store, parse_as_of(as_of))
 
     def attributes(self, *, as_of=None) -> pd.DataFrame:
         """One row per series with the attributes in force at the as-of."""
@@ -175,7 +186,7 @@ class Ledger:
         return frame
 
     def flags(self, *, kinds: Sequence[str] = KINDS, models: Sequence[str] = (), as_of=None,
-              **thresholds) -> pd.DataFrame:
+              include_excluded: bool = False, **thresholds) -> pd.DataFrame:
         """Drift, calibration, value-added and data-quality findings, one row per finding.
 
         Columns: kind, series, model, horizon, level, since, figure, evidence, check, severity,
@@ -183,7 +194,8 @@ class Ledger:
         :class:`ledger.findings.base.FlagOptions` (e.g. ``drift_h=5.5``, ``fdr=0.05``,
         ``benchmark="ref-snaive"``), each with its stated default.
         """
-        return _flags().flags(self.store, self.selection(as_of=as_of, models=models), kinds=kinds, **thresholds)
+        sel = self.selection(as_of=as_of, models=models, include_excluded=include_excluded)
+        return _flags().flags(self.store, sel, kinds=kinds, **thresholds)
 
     def flag_counts(self, attribute: str, *, kinds: Sequence[str] = KINDS, models: Sequence[str] = (),
                     as_of=None, **thresholds) -> pd.DataFrame:
@@ -205,6 +217,30 @@ class Ledger:
         """Replace the incumbent (None: the stored setting) with a challenger, or not, and why."""
         return _standings().advise(self.store, self.selection(as_of=as_of), incumbent, challengers=challengers,
                                  window=window, horizons=horizons, alpha=alpha)
+
+    def review(self, inbox, *, include_excluded: bool = False, **thresholds):
+        """Record an inbox's new files, run the findings and store the review (one transaction).
+
+        Returns a :class:`ledger.cycle.review.ReviewResult`; a bad file raises ReviewRefused
+        listing every problem, with nothing written. ``thresholds`` as for :meth:`flags`.
+        """
+        from .cycle.review import review
+
+        return review(self.store, inbox, include_excluded=include_excluded, **thresholds)
+
+    def reviews(self) -> pd.DataFrame:
+        """Every stored review: number, as-of, state hash, inbox, files, runs and actuals recorded, findings."""
+        from .cycle.changes import review_list
+
+        return review_list(self.store)
+
+    def changes(self, *, since_review: int | None = None, mase_change: float | None = None):
+        """The latest review against review ``since_review`` (default the one before): a
+        :class:`ledger.cycle.changes.Changes` with findings new/resolved/persisting and models' MASE moves."""
+        from .cycle.changes import DEFAULT_MASE_CHANGE, changes
+
+        return changes(self.store, since_review=since_review,
+                       mase_change=DEFAULT_MASE_CHANGE if mase_change is None else mase_change)
 
     def set_incumbent(self, model: str) -> None:
         """Store ``model`` as the incumbent (ledger setting "incumbent"), used by :meth:`advise`."""

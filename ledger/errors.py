@@ -17,6 +17,7 @@ __all__ = [
     "LedgerBusy",
     "GapInHistory",
     "MethodNotApplicable",
+    "ReviewRefused",
 ]
 
 
@@ -81,3 +82,7 @@ class GapInHistory(LedgerError, ValueError):
 
 class MethodNotApplicable(LedgerError, ValueError):
     """A reference method cannot be applied to this history (season length or sign of the data)."""
+
+
+class ReviewRefused(LedgerError):
+    """A file of a review's inbox is bad: the review wrote nothing; the message lists every problem."""

@@ -38,7 +38,9 @@ __all__ = [
 # History of the schema (bump on any change to DDL and add the step to MIGRATIONS):
 #   1 — first version: meta, series, runs, forecasts, bounds, quantiles, actuals.
 #   2 — attributes: versioned series attributes (region, family, planner, …).
-SCHEMA_VERSION = 2
+#   3 — events (versioned, optionally excluding cells from scoring) and stored reviews:
+#       reviews, review_findings, review_models.
+SCHEMA_VERSION = 3
 
 _ATTRIBUTES_DDL = """
 -- A row per version of one attribute of one series. A changed value appends a row; the value
@@ -51,8 +53,63 @@ CREATE TABLE attributes (
 );
 """
 
+_CYCLE_DDL = """
+-- A row per version of one event: a span of target periods [first_day, end_day) of the series
+-- that `target` names (a series key, '*' for all, or 'ATTR=VALUE' matched against the
+-- attributes in force). An event's identity is (target, first_day, end_day); a changed label or
+-- exclude flag appends a version, and the version in force at an as-of is the newest recorded
+-- at or before it. exclude = TRUE leaves the event's cells out of scores and findings.
+CREATE TABLE events (
+    target      VARCHAR NOT NULL,
+    first_day   DATE NOT NULL,
+    end_day     DATE NOT NULL,
+    first_label VARCHAR NOT NULL,
+    last_label  VARCHAR NOT NULL,
+    label       VARCHAR NOT NULL,
+    exclude     BOOLEAN NOT NULL,
+    recorded_at TIMESTAMP NOT NULL,
+    source      VARCHAR
+);
+
+-- A row per stored review (backsight review): what the ledger held (as_of, state_hash) and
+-- what the review recorded from its inbox.
+CREATE TABLE reviews (
+    review_id   INTEGER PRIMARY KEY,
+    as_of       TIMESTAMP NOT NULL,
+    state_hash  VARCHAR NOT NULL,
+    inbox       VARCHAR NOT NULL,
+    files       INTEGER NOT NULL,
+    runs_new    INTEGER NOT NULL,
+    actuals_new INTEGER NOT NULL
+);
+
+-- A row per finding of a review; finding_key is the finding's identity across re-runs
+-- (kind, model, series, level), not its wording.
+CREATE TABLE review_findings (
+    review_id   INTEGER NOT NULL,
+    finding_key VARCHAR NOT NULL,
+    kind        VARCHAR NOT NULL,
+    model       VARCHAR NOT NULL,
+    series      VARCHAR NOT NULL,
+    level       DOUBLE,
+    severity    VARCHAR NOT NULL,
+    since       VARCHAR NOT NULL,
+    figure      DOUBLE,
+    evidence    VARCHAR NOT NULL
+);
+
+-- A row per model and review: its recent MASE (last `periods` target periods) and cells used.
+CREATE TABLE review_models (
+    review_id INTEGER NOT NULL,
+    model     VARCHAR NOT NULL,
+    mase      DOUBLE,
+    n         BIGINT NOT NULL,
+    periods   INTEGER NOT NULL
+);
+"""
+
 # MIGRATIONS[v] turns a version-v ledger into version v + 1 (run inside one transaction).
-MIGRATIONS: dict[int, str] = {1: _ATTRIBUTES_DDL}
+MIGRATIONS: dict[int, str] = {1: _ATTRIBUTES_DDL, 2: _CYCLE_DDL}
 
 DDL = """
 -- Facts about the file itself: schema_version, created_at, writer_version, and settings
@@ -129,9 +186,10 @@ CREATE TABLE actuals (
     recorded_at  TIMESTAMP NOT NULL,
     source       VARCHAR
 );
-""" + _ATTRIBUTES_DDL
+""" + _ATTRIBUTES_DDL + _CYCLE_DDL
 
-TABLES = ("meta", "series", "runs", "forecasts", "bounds", "quantiles", "actuals", "attributes")
+TABLES = ("meta", "series", "runs", "forecasts", "bounds", "quantiles", "actuals", "attributes",
+          "events", "reviews", "review_findings", "review_models")
 
 
 def utc_now() -> dt.datetime:
@@ -208,6 +266,7 @@ class Store:
         self.migrated: tuple[int, Path] | None = None  # (old version, backup copy) when migrated on open
         # Where write times come from; the demo replays history with the files' arrival times.
         self.clock = utc_now
+        self._depth = 0  # nesting of transaction() blocks; only the outermost commits
 
     @classmethod
     def open(cls, path: str | os.PathLike, *, create: bool = True, read_only: bool = False,
@@ -278,13 +337,27 @@ class Store:
 
     @contextlib.contextmanager
     def transaction(self) -> Iterator[duckdb.DuckDBPyConnection]:
-        """All or nothing: commit when the block ends, roll back on any exception."""
+        """All or nothing: commit when the block ends, roll back on any exception.
+
+        A block inside another joins it (a review writes many files in one transaction): only
+        the outermost block commits, and an exception that leaves it rolls everything back.
+        """
+        if self._depth:
+            self._depth += 1
+            try:
+                yield self.con
+            finally:
+                self._depth -= 1
+            return
         self.con.execute("BEGIN TRANSACTION")
+        self._depth = 1
         try:
             yield self.con
         except BaseException:
             self.con.execute("ROLLBACK")
             raise
+        finally:
+            self._depth = 0
         self.con.execute("COMMIT")
 
     def get_setting(self, key: str) -> str | None:
@@ -300,7 +373,7 @@ class Store:
         """Now, or just after the newest recorded time, so that as-of order is strict."""
         row = self.con.execute(
             "SELECT max(t) FROM (SELECT max(recorded_at) t FROM runs UNION ALL "
-            "SELECT max(recorded_at) FROM actuals)"
+            "SELECT max(recorded_at) FROM actuals UNION ALL SELECT max(recorded_at) FROM events)"
         ).fetchall()[0]
         now = self.clock()
         if row[0] is not None and row[0] >= now:
@@ -322,6 +395,12 @@ class Store:
             digest.update(h.encode())
         digest.update(b"\x00actuals\x00")
         _hash_frame(digest, acts)
+        events = self.con.execute(
+            "SELECT target, first_day, end_day, label, exclude FROM events WHERE recorded_at <= $as_of "
+            "ORDER BY ALL", {"as_of": as_of}).df()
+        if len(events):  # events change the scores; a ledger without any keeps its earlier hash
+            digest.update(b"\x00events\x00")
+            _hash_frame(digest, events.astype(str))
         return digest.hexdigest()
 
     def table_hash(self, table: str) -> str:

@@ -9,6 +9,7 @@ import typer
 
 from .common import (
     AsOfOpt,
+    IncludeExcludedOpt,
     read_share,
     Format,
     FormatOpt,
@@ -74,6 +75,7 @@ def scores(
     where: Annotated[list[str] | None, typer.Option("--where", metavar="ATTR=VALUE", help="Only series with this attribute value (repeatable).")] = None,
     weight: Annotated[str | None, typer.Option("--weight", help="Add weighted MAPE, bias, MASE, RMSSE: 'volume' or a numeric attribute (× volume).")] = None,
     totals: Annotated[str | None, typer.Option("--totals", metavar="ATTR", help="Score each group's total (sum of members) instead of cells.")] = None,
+    include_excluded: IncludeExcludedOpt = False,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
 ) -> None:
@@ -84,7 +86,8 @@ def scores(
                                 since=since, until=until)
         else:
             frame = book.scores(by=by.split(","), as_of=as_of, models=model or (), series=series or (),
-                                horizons=horizon or (), since=since, until=until, where=where or (), weight=weight)
+                                horizons=horizon or (), since=since, until=until, where=where or (), weight=weight,
+                                include_excluded=include_excluded)
     if totals is not None:
         notice(f"totals by {totals}: {INTERVAL_NOTE}; target periods where a member lacks a forecast or an "
                "actual are left out (n_left_out)")

@@ -9,6 +9,10 @@ actuals with t at or before the cell's origin (q2 likewise with squares). Pairs 
 period index, so a gap never pairs values that are not m periods apart. A cell whose series has
 no such pair yet, or q = 0, has no scale: its scaled metrics are left out and counted in
 ``n_unscaled``.
+
+Cells whose series and target period an excluding event covers (:mod:`ledger.scoring.events`)
+are left out unless the selection includes them (``include_excluded``); ``scores`` counts them
+in ``n_excluded``.
 """
 
 from __future__ import annotations
@@ -24,6 +28,7 @@ from ..errors import LedgerError, UnknownName
 from ..intake.ingest import format_level
 from ..periods import index_start, parse_label, period_index, period_label
 from .attributes import attributes_sql, check_attribute, known_attributes
+from .events import excluded_spans_sql
 from ..store import Store, latest_actuals_sql, live_runs_sql
 
 __all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "forecasts_sql", "score_cells", "interval_cells", "interval_misses", "scores", "POINT_COLUMNS"]
@@ -43,6 +48,7 @@ class Selection:
     horizons: Sequence[int] = ()
     since: str | None = None
     until: str | None = None
+    include_excluded: bool = False
 
     def params(self) -> dict:
         out = {"as_of": self.as_of}
@@ -106,11 +112,12 @@ def _parts(sel: Selection) -> tuple[str, dict]:
         WHERE TRUE {where})""", params
 
 
-def cells_sql(sel: Selection) -> tuple[str, dict]:
+def cells_sql(sel: Selection, *, keep_excluded: bool = False) -> tuple[str, dict]:
     """SQL (and parameters) for every scorable cell in the selection, one row per cell.
 
     Columns: run_id, model, frequency, origin, origin_index, series, period, period_index,
-    horizon, point, actual, e, q, q2.
+    horizon, point, actual, e, q, q2, excluded (an excluding event covers the cell). Excluded
+    cells are left out unless ``sel.include_excluded`` or ``keep_excluded``.
     """
     fc, params = _parts(sel)
     sql = f"""
@@ -143,11 +150,16 @@ def cells_sql(sel: Selection) -> tuple[str, dict]:
         SELECT series, origin_index,
                CASE WHEN nd > 0 AND sd > 0 THEN sd / nd END AS q,
                CASE WHEN nd > 0 AND sd2 > 0 THEN sd2 / nd END AS q2
-        FROM carried WHERE marker = 1)
-    SELECT fc.*, a.value AS actual, a.value - fc.point AS e, sc.q, sc.q2
-    FROM fc
-    JOIN act a ON a.series = fc.series AND a.period_index = fc.period_index
-    LEFT JOIN scale sc ON sc.series = fc.series AND sc.origin_index = fc.origin_index
+        FROM carried WHERE marker = 1),
+    spans AS ({excluded_spans_sql()}),
+    scored AS (
+        SELECT fc.*, a.value AS actual, a.value - fc.point AS e, sc.q, sc.q2,
+               EXISTS (SELECT 1 FROM spans x WHERE x.series = fc.series AND fc.period >= x.first_day
+                       AND fc.period < x.end_day) AS excluded
+        FROM fc
+        JOIN act a ON a.series = fc.series AND a.period_index = fc.period_index
+        LEFT JOIN scale sc ON sc.series = fc.series AND sc.origin_index = fc.origin_index)
+    SELECT * FROM scored {"" if keep_excluded or sel.include_excluded else "WHERE NOT excluded"}
     """
     return sql, params
 
@@ -240,7 +252,7 @@ def _check_keys(store: Store, sel: Selection, by: Sequence[str]) -> list[str]:
 
 def _materialise(store: Store, sel: Selection, attrs: list[str], where: list[tuple[str, str]]) -> None:
     """The temp table _scored: the selected cells, with a column g__<name> per attribute used."""
-    sql, params = cells_sql(sel)
+    sql, params = cells_sql(sel, keep_excluded=True)
     joins, filters = [], []
     for i, name in enumerate(attrs):
         params[f"attr{i}"] = name
@@ -273,8 +285,14 @@ def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"
         group = ", ".join(key_sql[k] for k in keys)
         select_keys = ", ".join(f"{key_sql[k]} AS {k}" for k in keys)
         gb = f"GROUP BY {group}" if keys else ""
+        excluded = con.execute(
+            f"SELECT {select_keys + ',' if keys else ''} count(*) AS n_excluded FROM _scored c "
+            f"WHERE excluded {gb}").df()
+        if not sel.include_excluded:
+            con.execute("DELETE FROM _scored WHERE excluded")
         point = con.execute(
             f"SELECT {select_keys + ',' if keys else ''} {_POINT_AGG} FROM _scored c {gb}").df()
+        point = _with_excluded(point, excluded if not sel.include_excluded else excluded.iloc[0:0], keys)
         levels = con.execute(
             f"SELECT {select_keys + ',' if keys else ''} b.level, {_LEVEL_AGG} FROM _scored c "
             f"JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index "
@@ -289,10 +307,21 @@ def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"
     return _assemble(point, levels, pinball, keys, freqs)
 
 
+def _with_excluded(point: pd.DataFrame, excluded: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
+    """Add n_excluded; a group whose every cell is excluded still gets a row (n = 0)."""
+    if not keys:
+        point = point.assign(n_excluded=int(excluded["n_excluded"].iloc[0]) if len(excluded) else 0)
+        return point
+    out = point.merge(excluded, on=keys, how="outer") if len(excluded) else point.assign(n_excluded=0)
+    for c in ("n", "n_zero_actual", "n_unscaled", "n_excluded"):
+        out[c] = out[c].fillna(0)
+    return out
+
+
 def _assemble(point: pd.DataFrame, levels: pd.DataFrame, pinball: pd.DataFrame,
               keys: list[str], freqs: list[str]) -> pd.DataFrame:
     if keys and len(point) == 0:
-        return point[keys + list(POINT_COLUMNS) + ["n_zero_actual", "n_unscaled"]]
+        return point[keys + list(POINT_COLUMNS) + ["n_zero_actual", "n_unscaled", "n_excluded"]]
     out = point.copy()
     for level in sorted(levels["level"].unique()) if len(levels) else []:
         part = levels[levels["level"] == level].drop(columns="level")
@@ -301,10 +330,10 @@ def _assemble(point: pd.DataFrame, levels: pd.DataFrame, pinball: pd.DataFrame,
         out = out.merge(part, on=keys, how="left") if keys else pd.concat([out, part.reset_index(drop=True)], axis=1)
     if len(pinball) and pinball["pinball"].notna().any():
         out = out.merge(pinball, on=keys, how="left") if keys else pd.concat([out, pinball], axis=1)
-    tail = ["n_zero_actual", "n_unscaled"]
+    tail = ["n_zero_actual", "n_unscaled", "n_excluded"]
     ordered = keys + [c for c in out.columns if c not in keys and c not in tail] + tail
     out = out[ordered]
-    for c in ("n", "n_zero_actual", "n_unscaled"):
+    for c in ("n", "n_zero_actual", "n_unscaled", "n_excluded"):
         out[c] = out[c].astype("int64")
     if "horizon" in keys:
         out["horizon"] = out["horizon"].astype("int64")

@@ -90,7 +90,8 @@ def test_waiting_writer_gets_in_when_the_holder_finishes(filled):
 def _downgrade(path):
     """Turn a current ledger into a version-1 file, as the first release wrote it."""
     con = duckdb.connect(str(path))
-    con.execute("DROP TABLE attributes")
+    for table in ("attributes", "events", "reviews", "review_findings", "review_models"):
+        con.execute(f"DROP TABLE {table}")
     con.execute("UPDATE meta SET value = '1' WHERE key = 'schema_version'")
     con.close()
 

@@ -87,6 +87,7 @@ CREATE TABLE reviews (
 -- (kind, model, series, level), not its wording.
 CREATE TABLE review_findings (
     review_id   INTEGER NOT NULL,
+    position    INTEGER NOT NULL,   -- the finding's place in the review's list (kind, severity order)
     finding_key VARCHAR NOT NULL,
     kind        VARCHAR NOT NULL,
     model       VARCHAR NOT NULL,

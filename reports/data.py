@@ -114,7 +114,7 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
         headline=book.scores(by=["model"], horizons=[horizon], **head_q),
         **_interval_counts(book, sel, book.selection(horizons=[horizon], **head_q)),
         cells=book.cells(horizons=[horizon], **q),
-        actuals=_actuals(book, sel), latest=_latest(book, sel), pending=_pending(book, sel),
+        actuals=_actuals(book, sel), latest=_latest(book, sel, models), pending=_pending(book, sel),
         findings=_findings(book, models, as_of, horizon, incumbent, benchmark) if with_findings else None,
     )
 
@@ -198,8 +198,12 @@ def _actuals(book: Ledger, sel: Selection) -> pd.DataFrame:
         {"as_of": sel.as_of}).df()
 
 
-def _latest(book: Ledger, sel: Selection) -> pd.DataFrame:
-    """The newest live run of each model for each series: forecasts, with bounds as lower_L/upper_L."""
+def _latest(book: Ledger, sel: Selection, models: list[str]) -> pd.DataFrame:
+    """The newest live run of each model for each series: forecasts, with bounds as lower_L/upper_L.
+
+    Only the report's models (those with a scored cell): a model whose runs have not come due
+    yet (a new model in a monthly review) has no place in the series charts' legends.
+    """
     con = book.store.con
     con.execute(f"""
         CREATE OR REPLACE TEMP TABLE _latest AS
@@ -216,6 +220,7 @@ def _latest(book: Ledger, sel: Selection) -> pd.DataFrame:
             "JOIN bounds b ON b.run_id = x.run_id AND b.series = x.series AND b.period_index = x.period_index").df()
     finally:
         con.execute("DROP TABLE IF EXISTS _latest")
+    points = points[points["model"].isin(models)].reset_index(drop=True)
     return _widen_bounds(points, bounds)
 
 

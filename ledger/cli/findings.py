@@ -28,6 +28,8 @@ from .common import (
     split,
 )
 from ..findings.base import FlagOptions
+from .common import IncludeExcludedOpt
+from .cycle import FailOnOpt, check_fail_on, gate
 
 __all__ = ["flags", "compare", "standings", "advise"]
 
@@ -75,9 +77,14 @@ def flags(
     seasons: Annotated[int, typer.Option("--seasons", help="Report origins with less history than this many seasons.")] = _D.seasons,
     adi: Annotated[float, typer.Option("--adi", help="Average demand interval from which demand is intermittent.")] = _D.adi,
     by: Annotated[str | None, typer.Option("--by", metavar="ATTR", help="Count findings per value of this series attribute and kind.")] = None,
+    include_excluded: IncludeExcludedOpt = False,
+    fail_on: FailOnOpt = None,
     fmt: FormatOpt = Format.table,
 ) -> None:
     """Findings: drifting models, miscalibrated intervals, no value added, data problems."""
+    if fail_on is not None and by is not None:
+        raise typer.BadParameter("--fail-on needs the findings themselves; leave out --by", param_hint="--fail-on")
+    check_fail_on(fail_on)
     parts = split([buckets])
     if not all(p.isdigit() for p in parts):
         raise typer.BadParameter(f"{buckets!r} is not a comma list of horizons such as 1,2,4,7,13", param_hint="--buckets")
@@ -89,7 +96,7 @@ def flags(
                            trigg_alpha=trigg_alpha, fdr=fdr, correction=correction.value, min_cells=min_cells,
                            series_calibration=series_calibration, buckets=tuple(edges), zone_watch=zone_watch,
                            zone_out=zone_out, benchmark=benchmark, recent=recent, value_alpha=value_alpha,
-                           seasons=seasons, adi=adi)
+                           seasons=seasons, adi=adi, include_excluded=include_excluded)
     if by is not None:
         emit(frame, fmt, title=f"Findings by {by} and kind")
         return
@@ -103,8 +110,9 @@ def flags(
         for i, row in enumerate(frame.itertuples(index=False), start=1):
             where = " ".join(x for x in (row.model, row.series) if x)
             typer.echo(f"{i}. {row.kind} {where}: {row.evidence}")
-        return
-    emit(frame, fmt)
+    else:
+        emit(frame, fmt)
+    gate(frame, fail_on)
 
 
 @app.command()

@@ -32,7 +32,10 @@ from .changes import recent_mase
 from .identity import with_keys
 from .inbox import InboxFile, scan_inbox
 
-__all__ = ["ReviewResult", "review"]
+__all__ = ["ReviewResult", "REVIEW_FINDING_COLUMNS", "review"]
+
+#: The columns of a review's findings, stored and returned alike (stable keys for --format json).
+REVIEW_FINDING_COLUMNS = ("key", "kind", "model", "series", "level", "severity", "since", "figure", "evidence")
 
 
 @dataclasses.dataclass(frozen=True)
@@ -46,7 +49,7 @@ class ReviewResult:
     files: list[str]
     runs_new: int
     actuals_new: int
-    findings: pd.DataFrame   # with a key column; notes included
+    findings: pd.DataFrame   # REVIEW_FINDING_COLUMNS; notes included
     warnings: list[str]
 
 
@@ -87,8 +90,8 @@ def _last_review(store: Store) -> tuple[int, str, dt.datetime] | None:
 
 def _stored_findings(store: Store, review_id: int) -> pd.DataFrame:
     return store.con.execute(
-        "SELECT finding_key AS key, kind, model, series, level, severity, since, figure, evidence "
-        "FROM review_findings WHERE review_id = ? ORDER BY kind, model, series, finding_key", [review_id]).df()
+        f"SELECT {', '.join(REVIEW_FINDING_COLUMNS).replace('key', 'finding_key AS key', 1)} "
+        "FROM review_findings WHERE review_id = ? ORDER BY position", [review_id]).df()
 
 
 def _store(store: Store, inbox: Path, as_of, state: str, files: int, runs_new: int, actuals_new: int,
@@ -97,8 +100,8 @@ def _store(store: Store, inbox: Path, as_of, state: str, files: int, runs_new: i
     review_id = con.execute("SELECT coalesce(max(review_id), 0) + 1 FROM reviews").fetchone()[0]
     con.execute("INSERT INTO reviews VALUES (?, ?, ?, ?, ?, ?, ?)",
                 [review_id, as_of, state, str(inbox), files, runs_new, actuals_new])
-    rows = found.assign(review_id=review_id)[["review_id", "key", "kind", "model", "series", "level", "severity",
-                                               "since", "figure", "evidence"]]
+    rows = found.assign(review_id=review_id, position=range(len(found)))[
+        ["review_id", "position", *REVIEW_FINDING_COLUMNS]]
     con.register("_review_rows", rows)
     con.register("_review_models", models.assign(review_id=review_id)[["review_id", "model", "mase", "n", "periods"]])
     try:
@@ -140,8 +143,9 @@ def review(store: Store, inbox, *, include_excluded: bool = False, **thresholds)
                 return ReviewResult(last[0], False, last[2], state, [f.name for f in files], 0, 0,
                                     _stored_findings(store, last[0]), warnings)
             sel = Selection(as_of, include_excluded=include_excluded)
-            found = with_keys(flags(store, sel, **thresholds))
+            found = with_keys(flags(store, sel, **thresholds))[list(REVIEW_FINDING_COLUMNS)]
             models = recent_mase(store, sel, options.recent)
             review_id = _store(store, inbox, as_of, state, len(files), runs_new, actuals_new, found, models)
+            stored = _stored_findings(store, review_id)   # read back: the same frame a re-run returns
     return ReviewResult(review_id, True, as_of, state, [f.name for f in files], runs_new, actuals_new,
-                        found, warnings)
+                        stored, warnings)

@@ -89,8 +89,7 @@ def test_rerunning_a_review_is_a_no_op(book, tmp_path):
         second = again.review(inbox)
     assert not second.stored and second.review_id == first.review_id and second.as_of == first.as_of
     assert (second.runs_new, second.actuals_new) == (0, 0)
-    assert second.findings["key"].tolist() == first.findings.sort_values(
-        ["kind", "model", "series", "key"])["key"].tolist()
+    pd.testing.assert_frame_equal(second.findings, first.findings)
     assert table_hashes(path) == before
 
 
@@ -142,7 +141,7 @@ def _store_review(store, review_id: int, keys: list[tuple[str, str]], mase: dict
                       [review_id, dt.datetime(2026, review_id, 1)])
     for key, severity in keys:
         kind, model, series, level, _ = key.split("|")
-        store.con.execute("INSERT INTO review_findings VALUES (?, ?, ?, ?, ?, ?, ?, '2026-01', 1.0, 'why')",
+        store.con.execute("INSERT INTO review_findings VALUES (?, 0, ?, ?, ?, ?, ?, ?, '2026-01', 1.0, 'why')",
                           [review_id, key, kind, model, series, float(level) if level else None, severity])
     for model, value in mase.items():
         store.con.execute("INSERT INTO review_models VALUES (?, ?, ?, 30, 12)", [review_id, model, value])

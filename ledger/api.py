@@ -242,6 +242,22 @@ class Ledger:
         return changes(self.store, since_review=since_review,
                        mase_change=DEFAULT_MASE_CHANGE if mase_change is None else mase_change)
 
+    def stability(self, *, by: Sequence[str] = ("series", "model"), as_of=None, models: Sequence[str] = (),
+                  series: Sequence[str] = (), since: str | None = None, until: str | None = None) -> pd.DataFrame:
+        """Forecast stability per group: scaled revision, share toward the actual, nervousness
+        (definitions in :mod:`ledger.scoring.stability`); ``by`` takes series, model, horizon, attributes."""
+        from .scoring.stability import stability
+
+        sel = self.selection(as_of=as_of, models=models, series=series, since=since, until=until)
+        return stability(self.store, sel, by)
+
+    def forecast_paths(self, *, last: int = 4, as_of=None, models: Sequence[str] = (),
+                       series: Sequence[str] = ()) -> pd.DataFrame:
+        """The successive forecasts of each series × model's ``last`` newest target periods with two runs or more."""
+        from .scoring.stability import forecast_paths
+
+        return forecast_paths(self.store, self.selection(as_of=as_of, models=models, series=series), last=last)
+
     def set_incumbent(self, model: str) -> None:
         """Store ``model`` as the incumbent (ledger setting "incumbent"), used by :meth:`advise`."""
         check_models(self.store, [model])

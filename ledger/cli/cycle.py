@@ -1,4 +1,4 @@
-"""CLI commands of the monthly cycle: review, changes, events (thin shells over the Ledger API).
+"""CLI commands of the monthly cycle: review, changes, events, stability (thin shells over the Ledger API).
 
 ``review`` renders the report, so it imports ``reports`` inside the command (the ledger package
 never imports it at load time).
@@ -17,7 +17,7 @@ import typer
 from ..cycle.gate import GATE_EXIT, GATE_LEVELS, at_or_above
 from .common import AsOfOpt, Format, FormatOpt, IncludeExcludedOpt, app, busy, emit, notice, open_ledger
 
-__all__ = ["review", "changes", "events", "FailOnOpt", "check_fail_on", "gate"]
+__all__ = ["review", "changes", "events", "stability", "FailOnOpt", "check_fail_on", "gate"]
 
 FailOnOpt = Annotated[str | None, typer.Option(
     "--fail-on", metavar="SEVERITY",
@@ -127,3 +127,24 @@ def events(
     with open_ledger(ctx, create=True) as book:
         result = book.record_events(file)
     typer.echo(f"{result.events} event(s): {result.changed} recorded, {result.unchanged} unchanged")
+
+
+@app.command()
+def stability(
+    ctx: typer.Context,
+    by: Annotated[str, typer.Option("--by", help="Comma list of series, model, horizon (the later run's) or attribute names.")] = "series,model",
+    model: Annotated[list[str] | None, typer.Option("--model", help="Only this model (repeatable).")] = None,
+    series: Annotated[list[str] | None, typer.Option("--series", help="Only this series (repeatable).")] = None,
+    since: Annotated[str | None, typer.Option("--since", help="First target period.")] = None,
+    until: Annotated[str | None, typer.Option("--until", help="Last target period.")] = None,
+    as_of: AsOfOpt = None,
+    fmt: FormatOpt = Format.table,
+) -> None:
+    """How much forecasts of the same target period change from run to run: scaled revision, share toward the actual, nervousness."""
+    with open_ledger(ctx) as book, busy("Measuring"):
+        frame = book.stability(by=by.split(","), as_of=as_of, models=model or (), series=series or (),
+                               since=since, until=until)
+    if fmt is Format.table and frame.empty:
+        notice("no target period has two runs yet: nothing to compare")
+        return
+    emit(frame, fmt, title="Stability (revision: mean |change| / q; nervousness: share of up-then-down pairs, 0.5 if revisions were independent)")

@@ -31,7 +31,7 @@ from .attributes import attributes_sql, check_attribute, known_attributes
 from .events import excluded_spans_sql
 from ..store import Store, latest_actuals_sql, live_runs_sql
 
-__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "forecasts_sql", "score_cells", "interval_cells", "interval_misses", "scores", "POINT_COLUMNS"]
+__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "scale_sql", "forecasts_sql", "score_cells", "interval_cells", "interval_misses", "scores", "POINT_COLUMNS"]
 
 GroupKey = Literal["series", "model", "horizon", "origin", "period"]
 GROUP_KEYS: tuple[str, ...] = get_args(GroupKey)
@@ -119,6 +119,28 @@ def cells_sql(sel: Selection, *, keep_excluded: bool = False) -> tuple[str, dict
     horizon, point, actual, e, q, q2, excluded (an excluding event covers the cell). Excluded
     cells are left out unless ``sel.include_excluded`` or ``keep_excluded``.
     """
+    prefix, params = scale_sql(sel)
+    sql = f"""
+    {prefix},
+    spans AS ({excluded_spans_sql()}),
+    scored AS (
+        SELECT fc.*, a.value AS actual, a.value - fc.point AS e, sc.q, sc.q2,
+               EXISTS (SELECT 1 FROM spans x WHERE x.series = fc.series AND fc.period >= x.first_day
+                       AND fc.period < x.end_day) AS excluded
+        FROM fc
+        JOIN act a ON a.series = fc.series AND a.period_index = fc.period_index
+        LEFT JOIN scale sc ON sc.series = fc.series AND sc.origin_index = fc.origin_index)
+    SELECT * FROM scored {"" if keep_excluded or sel.include_excluded else "WHERE NOT excluded"}
+    """
+    return sql, params
+
+
+def scale_sql(sel: Selection) -> tuple[str, dict]:
+    """The head of a query (``WITH act, live, fc, …, scale``) that later CTEs and a SELECT can follow.
+
+    act: the actuals in force; fc: the live forecasts of the selection; scale: (series,
+    origin_index, q, q2) for every series and origin in fc.
+    """
     fc, params = _parts(sel)
     sql = f"""
     WITH
@@ -150,17 +172,7 @@ def cells_sql(sel: Selection, *, keep_excluded: bool = False) -> tuple[str, dict
         SELECT series, origin_index,
                CASE WHEN nd > 0 AND sd > 0 THEN sd / nd END AS q,
                CASE WHEN nd > 0 AND sd2 > 0 THEN sd2 / nd END AS q2
-        FROM carried WHERE marker = 1),
-    spans AS ({excluded_spans_sql()}),
-    scored AS (
-        SELECT fc.*, a.value AS actual, a.value - fc.point AS e, sc.q, sc.q2,
-               EXISTS (SELECT 1 FROM spans x WHERE x.series = fc.series AND fc.period >= x.first_day
-                       AND fc.period < x.end_day) AS excluded
-        FROM fc
-        JOIN act a ON a.series = fc.series AND a.period_index = fc.period_index
-        LEFT JOIN scale sc ON sc.series = fc.series AND sc.origin_index = fc.origin_index)
-    SELECT * FROM scored {"" if keep_excluded or sel.include_excluded else "WHERE NOT excluded"}
-    """
+        FROM carried WHERE marker = 1)"""
     return sql, params
 
 

@@ -21,6 +21,7 @@ from .integrity import Problem, verify
 from .periods import period_label
 from .intake.record import ActualsResult, SnapshotResult, write_actuals, write_runs
 from .scoring.events import EventsResult, events_in_force, write_events
+from .methods.recorded import run_backtest
 from .scoring.cells import Selection, interval_cells, score_cells, scores
 from .store import Store, parse_as_of
 from .scoring.totals import totals
@@ -103,9 +104,7 @@ class Ledger:
         :func:`ledger.methods.recorded.run_backtest` for every option. Returns a
         :class:`ledger.methods.recorded.BacktestResult`.
         """
-        from .methods.recorded import run_backtest
-
-        return run_backtest(self, data, methods=methods, horizon=horizon, holdout=holdout, origins=origins,
+        return run_backtest(self.store, data, methods=methods, horizon=horizon, holdout=holdout, origins=origins,
                             levels=levels, freq=freq, jobs=jobs, fill=fill, progress=progress, name=name,
                             supersede=supersede)
 
@@ -170,6 +169,20 @@ class Ledger:
     def export(self, out_dir, *, fmt: ExportFormat = "parquet") -> list:
         """Write every table to ``out_dir`` as Parquet or CSV; return the files written."""
         return export_ledger(self.store, out_dir, fmt=fmt)
+
+    def export_lake(self, out_dir):
+        """Export into a partitioned Parquet lake at ``out_dir``, writing only what is new since the
+        last export there; returns a :class:`ledger.lake.LakeExport`."""
+        from .lake import export_lake
+
+        return export_lake(self.store, out_dir)
+
+    @staticmethod
+    def verify_export(folder) -> list[Problem]:
+        """Problems of an export folder with a manifest (checksums, row counts, the ledger checks)."""
+        from .lake import verify_lake
+
+        return verify_lake(folder)
 
     def import_export(self, in_dir) -> dict[str, int]:
         """Load a folder written by :meth:`export` into this (empty) ledger; rows per table."""

@@ -12,9 +12,9 @@ import dataclasses
 
 import pandas as pd
 
-from .intake.ingest import format_level
 from .intake.record import run_content_hash
 from .store import SCHEMA_VERSION, Store, bounded_memory
+from .wording import format_level
 
 __all__ = ["Problem", "verify"]
 
@@ -102,6 +102,6 @@ def run_rows(store: Store, run_id: str) -> pd.DataFrame:
         part = part.merge(rows, on=["series", "period_index"], how="left")
     quants = con.execute("SELECT series, period_index, tau, value FROM quantiles WHERE run_id = ?", [run_id]).df()
     for tau, rows in quants.groupby("tau"):
-        part = part.merge(rows.drop(columns="tau").rename(columns={"value": f"q_{float(tau):g}"}),
+        part = part.merge(rows.drop(columns="tau").rename(columns={"value": f"q_{format_level(tau)}"}),
                           on=["series", "period_index"], how="left")
     return part

@@ -8,6 +8,9 @@ CSV exports defuse spreadsheet formula injection: a text value that starts with 
 ``-``, ``@``, a tab, a carriage return or an apostrophe is written with one leading apostrophe
 (common practice, OWASP "CSV Injection"; from memory). Import removes exactly that apostrophe,
 so the round trip is exact. Numbers are never prefixed.
+
+A partitioned export (a Parquet lake with a manifest, written incrementally) lives in
+:mod:`ledger.lake`; ``import_ledger`` reads both.
 """
 
 from __future__ import annotations
@@ -17,6 +20,8 @@ from pathlib import Path
 from typing import Literal
 
 from .errors import LedgerError
+from .lake import is_lake, lake_readers
+from .manifest import check_files, read_manifest
 from .store import TABLES, Store
 
 __all__ = ["ExportFormat", "export_ledger", "import_ledger"]
@@ -43,6 +48,8 @@ def export_ledger(store: Store, out_dir: str | os.PathLike, *, fmt: ExportFormat
     """Write one file per table into ``out_dir`` (created if needed); return the paths."""
     if fmt not in ("parquet", "csv"):
         raise LedgerError(f"--format {fmt!r} is not an export format; use parquet or csv")
+    if is_lake(out_dir):
+        raise LedgerError(f"{out_dir} holds a partitioned export; add --partition, or export into another folder")
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     written = []
@@ -74,7 +81,7 @@ def _quote_path(path: Path) -> str:
 def import_ledger(store: Store, in_dir: str | os.PathLike) -> dict[str, int]:
     """Load an export into this ledger, which must hold no runs, actuals or series yet."""
     src = Path(in_dir)
-    fmt = _detect_format(src)
+    readers, expected = _readers(store, src)
     busy = store.con.execute(
         "SELECT (SELECT count(*) FROM runs) + (SELECT count(*) FROM actuals) + (SELECT count(*) FROM series)"
     ).fetchall()[0][0]
@@ -83,22 +90,42 @@ def import_ledger(store: Store, in_dir: str | os.PathLike) -> dict[str, int]:
     counts = {}
     with store.transaction() as con:
         for table in TABLES:
-            path = src / f"{table}.{fmt}"
             cols = _all_columns(store, table)
-            types = dict(con.execute(
-                "SELECT column_name, data_type FROM information_schema.columns WHERE table_name = ?", [table]).fetchall())
-            if fmt == "csv":
-                spec = ", ".join(f"'{c}': 'VARCHAR'" for c in cols)
-                reader = f"read_csv('{_quote_path(path)}', header = true, columns = {{{spec}}}, nullstr = 'NULL', allow_quoted_nulls = false, quote = '\"', escape = '\"')"
-                exprs = [_unescape(c, types[c]) for c in cols]
-            else:
-                reader = f"read_parquet('{_quote_path(path)}')"
-                exprs = cols
-            if table == "meta":
-                con.execute("DELETE FROM meta WHERE key IN (SELECT key FROM " + reader + ")")
-            con.execute(f"INSERT INTO {table} ({', '.join(cols)}) SELECT {', '.join(exprs)} FROM {reader}")
+            reader, exprs = readers[table]
+            if reader is not None:
+                if table == "meta":
+                    con.execute("DELETE FROM meta WHERE key IN (SELECT key FROM " + reader + ")")
+                con.execute(f"INSERT INTO {table} ({', '.join(cols)}) SELECT {', '.join(exprs or cols)} FROM {reader}")
             counts[table] = con.execute(f"SELECT count(*) FROM {table}").fetchall()[0][0]
+            if expected is not None and counts[table] != expected.get(table, 0):
+                raise LedgerError(f"{src}: {table} has {counts[table]} rows after import, the manifest says "
+                                  f"{expected.get(table, 0)}; nothing was imported")
     return counts
+
+
+def _readers(store: Store, src: Path) -> tuple[dict[str, tuple[str | None, list[str] | None]], dict | None]:
+    """Per table, the reader expression and column expressions; and the manifest's row counts (lakes)."""
+    if src.is_dir() and is_lake(src):
+        manifest = read_manifest(src)
+        problems = check_files(src, manifest)
+        if problems:
+            more = f" (and {len(problems) - 1} more)" if len(problems) > 1 else ""
+            raise LedgerError(f"{src}: {problems[0]}{more}; run backsight verify {src}; nothing was imported")
+        return {t: (r, None) for t, r in lake_readers(src, manifest).items()}, manifest.tables
+    fmt = _detect_format(src)
+    out = {}
+    for table in TABLES:
+        path = src / f"{table}.{fmt}"
+        if fmt == "csv":
+            cols = _all_columns(store, table)
+            types = dict(store.con.execute(
+                "SELECT column_name, data_type FROM information_schema.columns WHERE table_name = ?", [table]).fetchall())
+            spec = ", ".join(f"'{c}': 'VARCHAR'" for c in cols)
+            reader = f"read_csv('{_quote_path(path)}', header = true, columns = {{{spec}}}, nullstr = 'NULL', allow_quoted_nulls = false, quote = '\"', escape = '\"')"
+            out[table] = (reader, [_unescape(c, types[c]) for c in cols])
+        else:
+            out[table] = (f"read_parquet('{_quote_path(path)}')", None)
+    return out, None
 
 
 def _unescape(col: str, sql_type: str) -> str:

@@ -20,11 +20,12 @@ import pandas as pd
 
 from ledger import Ledger
 from ledger.errors import UnknownName
-from ledger.periods import SEASON_LENGTHS, index_start, period_label
+from ledger.periods import SEASON_LENGTHS
 from ledger.findings import standings as _standings
 from ledger.findings.flags import flags as _flag_cells
 from ledger.scoring.cells import Selection, cells_sql, score_cells
 from ledger.store import latest_actuals_sql, live_runs_sql
+from ledger.wording import format_level
 
 __all__ = [
     "check_roles",
@@ -32,7 +33,6 @@ __all__ = [
     "LedgerData",
     "Window",
     "findings_job",
-    "label_of",
     "load",
     "quiet",
     "report_models",
@@ -227,7 +227,7 @@ def _latest(book: Ledger, sel: Selection, models: list[str]) -> pd.DataFrame:
 def _widen_bounds(points: pd.DataFrame, bounds: pd.DataFrame) -> pd.DataFrame:
     keys = ["model", "series", "period_index"]
     for level, part in bounds.groupby("level", sort=True):
-        tag = f"{level:g}"
+        tag = format_level(level)
         part = part.drop(columns="level").rename(columns={"lower": f"lower_{tag}", "upper": f"upper_{tag}"})
         points = points.merge(part, on=keys, how="left")
     return points
@@ -280,8 +280,3 @@ def findings_job(path: str, as_of: dt.datetime, models: list[str], horizon: int,
     """All findings of a report in one worker, sharing one read of the scored cells."""
     with _open(path) as book:
         return _findings(book, models, as_of, horizon, incumbent, benchmark)
-
-
-def label_of(index: int, freq: str) -> str:
-    """Period label of a period index."""
-    return period_label(index_start(int(index), freq), freq)

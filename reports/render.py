@@ -15,7 +15,9 @@ from importlib import resources
 import jinja2
 import markupsafe
 
-from .text import SMALL_SAMPLE, bias_words, num, pct
+from ledger.wording import num, p_value, pct
+
+from .text import SMALL_SAMPLE, bias_words
 
 __all__ = ["CSP", "environment", "findings_table", "render_page"]
 
@@ -39,12 +41,6 @@ def _share(x) -> str:
     return pct(100 * x, 0) if isinstance(x, (int, float)) and x == x else "–"
 
 
-def _pvalue(p) -> str:
-    if not isinstance(p, (int, float)) or p != p:
-        return "–"
-    return "< 0.0001" if p < 0.0001 else f"{p:.2g}"
-
-
 @functools.cache
 def environment() -> jinja2.Environment:
     """The report's Jinja2 environment (autoescape on for every template)."""
@@ -56,7 +52,7 @@ def environment() -> jinja2.Environment:
         lstrip_blocks=True,
         keep_trailing_newline=True,
     )
-    env.filters.update(num=num, pct=pct, bias=bias_words, share=_share, pvalue=_pvalue)
+    env.filters.update(num=num, pct=pct, bias=bias_words, share=_share, pvalue=p_value)
     env.globals.update(csp=CSP, css=_css, small_sample=SMALL_SAMPLE)
     return env
 

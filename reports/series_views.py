@@ -19,10 +19,10 @@ import numpy as np
 import pandas as pd
 
 from ledger.stats.demand import demand_interval_stats, gaps
-from ledger.periods import index_start, period_label
+from ledger.wording import label, num
 
 from . import charts
-from .text import SMALL_SAMPLE, bias_words, is_small, num, plural
+from .text import SMALL_SAMPLE, bias_words, is_small, plural
 
 __all__ = ["HISTORY_SHOWN", "Columns", "LatestRow", "SeriesInput", "SeriesMetric", "SeriesView", "build_series", "metrics_for"]
 
@@ -100,10 +100,6 @@ class SeriesView:
     notes: list[str]
 
 
-def _label(index: int, freq: str) -> str:
-    return period_label(index_start(int(index), freq), freq)
-
-
 def build_series(inp: SeriesInput) -> SeriesView:
     """Everything the series page shows, chart included (unless ``with_chart`` is False)."""
     freq = inp.frequency
@@ -111,9 +107,9 @@ def build_series(inp: SeriesInput) -> SeriesView:
     fan_rows = _rows(inp.latest, inp.latest["model"] == fan_model)
     levels = sorted({c.split("_", 1)[1] for c in fan_rows if c.startswith("lower_")
                      and pd.notna(fan_rows[c]).any()}, key=float)
-    first = _label(inp.actual_index[0], freq) if len(inp.actual_index) else "–"
-    last = _label(inp.actual_index[-1], freq) if len(inp.actual_index) else "–"
-    fan_origin = _label(int(fan_rows["origin_index"][0]), freq) if len(fan_rows["model"]) else "–"
+    first = label(inp.actual_index[0], freq) if len(inp.actual_index) else "–"
+    last = label(inp.actual_index[-1], freq) if len(inp.actual_index) else "–"
+    fan_origin = label(int(fan_rows["origin_index"][0]), freq) if len(fan_rows["model"]) else "–"
     cell_models = set(inp.cells["model"].tolist())
     return SeriesView(
         key=inp.key, href=inp.href, frequency=freq, season_length=inp.season_length,
@@ -153,7 +149,7 @@ def _latest_rows(inp: SeriesInput, fan_rows: Columns, levels: list[str]) -> list
         horizons[int(idx)] = int(hz)
         bounds[int(idx)] = {lv: (float(low[j]), float(high[j])) for lv, (low, high) in pairs.items()
                             if not pd.isna(low[j])}
-    return [LatestRow(period=_label(i, inp.frequency), horizon=horizons[i],
+    return [LatestRow(period=label(i, inp.frequency), horizon=horizons[i],
                       points=dict(sorted(points[i].items(), key=lambda kv: inp.models.index(kv[0]))),
                       bounds=bounds.get(i, {})) for i in sorted(points)]
 
@@ -185,7 +181,7 @@ def _chart(inp: SeriesInput, fan_model: str | None, fan_rows: Columns, levels: l
     title = f"Actuals, {h}-step forecasts and the latest run"
     return charts.series_chart(
         "c-series", title, _chart_summary(inp, slots, actual, order, fan, levels),
-        x=slots, labels=[_label(i, freq) for i in slots], actual=actual,
+        x=slots, labels=[label(i, freq) for i in slots], actual=actual,
         forecasts={m: forecasts[m] for m in order}, errors={m: errors[m] for m in order},
         fan=fan, styles=inp.styles, horizon=h, season=inp.season_length)
 
@@ -200,7 +196,7 @@ def _aligned(slots: np.ndarray, idx: np.ndarray, values: np.ndarray) -> np.ndarr
 def _chart_summary(inp: SeriesInput, slots, actual, order, fan, levels) -> str:
     freq = inp.frequency
     shown = int(np.isfinite(actual).sum())
-    span = f"The chart spans {_label(slots[0], freq)} to {_label(slots[-1], freq)}. " if len(slots) else ""
+    span = f"The chart spans {label(slots[0], freq)} to {label(slots[-1], freq)}. " if len(slots) else ""
     parts = [f"{span}Actual values for {shown} periods"]
     if order:
         parts.append(f"{inp.horizon}-step forecasts of {', '.join(order)}")
@@ -222,7 +218,7 @@ def _notes(inp: SeriesInput) -> list[str]:
     freq, m = inp.frequency, inp.season_length
     notes = []
     for start, length in (gaps(inp.actual_index) if len(inp.actual_index) > 1 else []):
-        span = _label(start, freq) if length == 1 else f"{_label(start, freq)} to {_label(start + length - 1, freq)}"
+        span = label(start, freq) if length == 1 else f"{label(start, freq)} to {label(start + length - 1, freq)}"
         notes.append(f"Missing actual{'s' if length > 1 else ''}: {span} ({plural(length, 'period')}); "
                      "shown as a break in the chart, not filled in.")
     zeros = int(np.sum(inp.actual_value == 0))

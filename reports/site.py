@@ -24,6 +24,7 @@ from markupsafe import Markup
 
 from ledger import Ledger, __version__
 from ledger.store import parse_as_of, utc_now
+from ledger.wording import severity_rank
 
 from . import charts
 from .data import LedgerData, check_roles, findings_job, load, quiet, report_models, series_count
@@ -57,7 +58,6 @@ __all__ = [
 Progress = Callable[[int, int, str], None]
 FIXED_PAGES = ("index.html", "findings.html", "series.html", "methods.html")
 _CHUNK = 25
-_SEVERITY = {"alert": 0, "watch": 1, "note": 2}
 _POOL_FROM = 200   # series; below this, the start-up of worker processes costs more than it saves
 
 
@@ -133,7 +133,7 @@ def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict):
     overview = build_overview(data, ctx)
     safe_write(out, "index.html", render_page("index.html", v=overview, ctx=ctx, page="index", **nav))
     tick("overview")
-    rows = sorted(finding_rows(data.findings.flags, ctx), key=lambda f: _SEVERITY.get(f.severity, 1))
+    rows = sorted(finding_rows(data.findings.flags, ctx), key=lambda f: severity_rank(f.severity))
     safe_write(out, "findings.html", render_page("findings.html", rows=rows, ctx=ctx, page="findings", **nav))
     tick("findings")
     safe_write(out, "series.html", render_page("series_index.html", rows=build_series_index(data, ctx),

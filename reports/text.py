@@ -16,8 +16,6 @@ __all__ = [
     "bias_words",
     "coverage_words",
     "is_small",
-    "num",
-    "pct",
     "plural",
     "sample_note",
     "tolerance_band",
@@ -29,21 +27,6 @@ SMALL_SAMPLE = 12
 
 def _finite(x) -> bool:
     return x is not None and isinstance(x, (int, float)) and math.isfinite(x)
-
-
-def num(x, digits: int = 3) -> str:
-    """A number with about ``digits`` significant figures, thousands separated; '–' if missing."""
-    if not _finite(x):
-        return "–"
-    if abs(x) >= 10 ** (digits - 1):
-        return f"{x:,.0f}"
-    decimals = max(0, digits - 1 - (int(math.floor(math.log10(abs(x)))) if x else 0))
-    return f"{x:,.{decimals}f}"
-
-
-def pct(x, decimals: int = 1) -> str:
-    """A percentage already on a 0–100 scale: '6.1%'; '–' if missing."""
-    return f"{x:.{decimals}f}%" if _finite(x) else "–"
 
 
 def plural(n: int, word: str, many: str | None = None) -> str:

@@ -15,6 +15,7 @@ from collections.abc import Sequence
 import pandas as pd
 
 from ledger.stats.intervals import coverage_zone
+from ledger.wording import num, pct, severity_rank
 
 from . import charts
 from .data import LedgerData
@@ -22,8 +23,6 @@ from .text import (
     bias_words,
     coverage_words,
     is_small,
-    num,
-    pct,
     plural,
     sample_note,
     tolerance_band,
@@ -284,12 +283,9 @@ def finding_rows(flags: pd.DataFrame, ctx: Context) -> list[FindingRow]:
     return rows
 
 
-_SEVERITY = {"alert": 0, "watch": 1, "note": 2}
-
-
 def _ranked(rows: list[FindingRow]) -> list[FindingRow]:
     """Alerts first, then watch, then notes (stable within)."""
-    return sorted(rows, key=lambda f: _SEVERITY.get(f.severity, 1))
+    return sorted(rows, key=lambda f: severity_rank(f.severity))
 
 
 # ---------------------------------------------------------------- overview

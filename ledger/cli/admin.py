@@ -4,10 +4,11 @@ from __future__ import annotations
 
 import enum
 from pathlib import Path
-from typing import Annotated
+from typing import Annotated, Optional
 
 import typer
 
+from ..api import Ledger
 from .common import app, busy, open_ledger
 
 __all__ = ["verify", "export", "import_"]
@@ -19,16 +20,28 @@ class ExportFormat(str, enum.Enum):
 
 
 @app.command()
-def verify(ctx: typer.Context) -> None:
-    """Check the ledger's integrity: schema, run hashes, orphans, revisions. Exit 1 on problems."""
-    with open_ledger(ctx) as book, busy("Verifying"):
-        problems = book.verify()
+def verify(
+    ctx: typer.Context,
+    export_dir: Annotated[Optional[Path], typer.Argument(
+        help="An export folder with a manifest (a lake) to check instead of the ledger.")] = None,
+) -> None:
+    """Check the ledger's integrity: schema, run hashes, orphans, revisions. Exit 1 on problems.
+
+    Given an export folder, check its files against the manifest (checksums, row counts) and run
+    the same checks over its tables.
+    """
+    if export_dir is not None:
+        with busy("Verifying"):
+            problems, where = Ledger.verify_export(export_dir), export_dir
+    else:
+        with open_ledger(ctx) as book, busy("Verifying"):
+            problems, where = book.verify(), book.path
     if problems:
         for p in problems:
             typer.echo(f"problem: {p}")
-        typer.echo(f"{book.path}: {len(problems)} problem(s) found", err=True)
+        typer.echo(f"{where}: {len(problems)} problem(s) found", err=True)
         raise typer.Exit(1)
-    typer.echo(f"{book.path}: sound")
+    typer.echo(f"{where}: sound")
 
 
 @app.command()
@@ -36,17 +49,29 @@ def export(
     ctx: typer.Context,
     out_dir: Annotated[Path, typer.Argument(help="Folder to write one file per table into.")],
     fmt: Annotated[ExportFormat, typer.Option("--format", help="parquet or csv.")] = ExportFormat.parquet,
+    partition: Annotated[bool, typer.Option(
+        "--partition", help="A partitioned Parquet lake with a manifest; later exports add only what is new.")] = False,
 ) -> None:
     """Write every table (runs, forecasts, bounds, quantiles, actuals with all revisions, series) to files."""
+    if partition and fmt is not ExportFormat.parquet:
+        raise typer.BadParameter("--partition writes Parquet; leave out --format csv", param_hint="--partition")
     with open_ledger(ctx) as book, busy("Exporting"):
-        files = book.export(out_dir, fmt=fmt.value)
-    typer.echo(f"wrote {len(files)} files to {out_dir}")
+        if partition:
+            done = book.export_lake(out_dir)
+            files = done.written
+        else:
+            files = book.export(out_dir, fmt=fmt.value)
+    if partition:
+        typer.echo(f"wrote {len(files)} files to {out_dir} ({done.runs_added} new runs, "
+                   f"{done.revisions_added} new actual revisions; export {done.manifest.exports})")
+    else:
+        typer.echo(f"wrote {len(files)} files to {out_dir}")
 
 
 @app.command("import")
 def import_(
     ctx: typer.Context,
-    in_dir: Annotated[Path, typer.Argument(help="A folder written by backsight export.")],
+    in_dir: Annotated[Path, typer.Argument(help="A folder written by backsight export (flat or partitioned).")],
 ) -> None:
     """Rebuild an export into an empty ledger (the --ledger file must be new or empty)."""
     with open_ledger(ctx, create=True) as book, busy("Importing"):

@@ -16,18 +16,13 @@ from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
 from .common import FreqOpt, app, notice, open_ledger, split
+from ..methods.names import FILL_HELP, FILL_METHODS, METHODS_HELP
 from ..methods.recorded import check_options
 
 __all__ = ["backtest"]
 
 
-class Fill(str, enum.Enum):
-    linear = "linear"
-    previous = "previous"
-
-
-_METHODS_HELP = ("Comma list of reference methods: naive, snaive, drift, mean, ses, holt, damped, hw, "
-                 "hw-damped, theta, naive2, shd (runs are named ref-<method>).")
+Fill = enum.Enum("Fill", {name: name for name in FILL_METHODS}, type=str)
 
 
 def _levels(text: str) -> list[float]:
@@ -42,14 +37,14 @@ def _levels(text: str) -> list[float]:
 def backtest(
     ctx: typer.Context,
     file: Annotated[Path, typer.Argument(help="History file (CSV or Parquet): series, period, actual; recorded as actuals.")],
-    methods: Annotated[str, typer.Option("--methods", help=_METHODS_HELP)],
+    methods: Annotated[str, typer.Option("--methods", help=METHODS_HELP)],
     horizon: Annotated[int | None, typer.Option("--horizon", help="Periods ahead (default: one season of the file's frequency).")] = None,
     holdout: Annotated[int | None, typer.Option("--holdout", metavar="K", help="One origin per series, K periods before its last actual.")] = None,
     origins: Annotated[str | None, typer.Option("--origins", metavar="FIRST:LAST[:STEP]", help="Every origin in this range of period labels.")] = None,
     levels: Annotated[str, typer.Option("--levels", help="Comma list of interval levels in percent.")] = "80,95",
     freq: FreqOpt = None,
     jobs: Annotated[int | None, typer.Option("--jobs", help="Worker processes (default: all cores).")] = None,
-    fill: Annotated[Fill | None, typer.Option("--fill", help="Fill gaps in the history (recorded in the runs' note); default: skip gapped series-origins with a note.")] = None,
+    fill: Annotated[Fill | None, typer.Option("--fill", help=FILL_HELP)] = None,
     supersede: Annotated[bool, typer.Option("--supersede", help="Replace different runs already recorded at the same model and origin (the old ones are kept).")] = False,
 ) -> None:
     """Backtest reference methods on a history file and record the forecasts as ref-<method> runs."""

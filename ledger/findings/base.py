@@ -21,10 +21,9 @@ from typing import Literal, get_args
 import pandas as pd
 
 from ..stats.signals import DRIFT_H
-from ..intake.csvread import list_names
 from ..errors import UnknownName
-from ..periods import index_start, period_label
 from ..store import Store
+from ..wording import SEVERITY_ORDER, list_names
 
 __all__ = [
     "FindingKind",
@@ -35,22 +34,16 @@ __all__ = [
     "FlagOptions",
     "FINDING_COLUMNS",
     "findings_frame",
-    "label",
-    "num",
-    "signed",
-    "pval",
     "about",
     "horizon_text",
     "known_models",
     "check_models",
-    "list_names",
 ]
 
 FindingKind = Literal["drift", "calibration", "value", "data"]
 Severity = Literal["alert", "watch", "note"]
 Correction = Literal["bh", "holm"]
 KINDS: tuple[str, ...] = get_args(FindingKind)
-_SEVERITY_ORDER = {"alert": 0, "watch": 1, "note": 2}
 
 
 @dataclasses.dataclass(frozen=True)
@@ -162,41 +155,12 @@ def findings_frame(findings: Iterable[Finding]) -> pd.DataFrame:
     frame["n"] = frame["n"].astype("int64")
     order = pd.DataFrame({
         "k": frame["kind"].map({k: i for i, k in enumerate(KINDS)}),
-        "s": frame["severity"].map(_SEVERITY_ORDER),
+        "s": frame["severity"].map(SEVERITY_ORDER),
     })
     frame = frame.assign(_k=order["k"], _s=order["s"])
     frame = frame.sort_values(["_k", "_s", "model", "series", "horizon", "level", "since"],
                               kind="stable", na_position="first")
     return frame.drop(columns=["_k", "_s"]).reset_index(drop=True)
-
-
-def label(index: int, freq: str) -> str:
-    """The period label (2026-01, 2026Q3) of a period index."""
-    return period_label(index_start(int(index), freq), freq)
-
-
-def num(x: float) -> str:
-    """A number for a sentence: three significant figures, no exponent, thousands separated."""
-    if x is None or not math.isfinite(x):
-        return "–"
-    if abs(x) >= 100:
-        return f"{x:,.0f}"
-    if abs(x) >= 10:
-        return f"{x:.1f}"
-    return f"{x:.2f}" if abs(x) >= 0.01 or x == 0 else f"{x:.2g}"
-
-
-def signed(x: float) -> str:
-    """Like :func:`num` with a sign (+9.8, -0.41)."""
-    text = num(x)
-    return text if text.startswith("-") or text == "–" else f"+{text}"
-
-
-def pval(p: float) -> str:
-    """A p-value for a sentence: 'p 0.031', 'p < 0.0001', 'p –' when undefined."""
-    if p is None or not math.isfinite(p):
-        return "p –"
-    return "p < 0.0001" if p < 0.0001 else f"p {p:.2g}"
 
 
 def about(x: float) -> str:

@@ -39,8 +39,8 @@ from scipy import stats
 
 from ..stats import intervals as _calibration
 from ..stats.intervals import IndependenceTest, ZoneResult, benjamini_hochberg, holm
-from .base import Finding, FlagOptions, about, label, pval
-from ..intake.ingest import format_level
+from .base import Finding, FlagOptions, about
+from ..wording import format_level, label, pval
 
 __all__ = ["calibration_findings", "bucket_labels"]
 

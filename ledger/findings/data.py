@@ -21,7 +21,8 @@ from __future__ import annotations
 import pandas as pd
 
 from ..stats.demand import demand_interval_stats, gaps
-from .base import Finding, FlagOptions, label, list_names
+from .base import Finding, FlagOptions
+from ..wording import label, list_names
 from ..scoring.cells import Selection
 from ..store import Store, latest_actuals_sql, live_runs_sql
 

@@ -24,7 +24,8 @@ import numpy as np
 import pandas as pd
 
 from ..stats.signals import DriftResult, drift_test, reference_length, tracking_window
-from .base import Finding, FlagOptions, label, num, signed
+from .base import Finding, FlagOptions
+from ..wording import label, short_num, signed
 
 __all__ = ["drift_findings"]
 
@@ -169,7 +170,7 @@ def _finding(r: DriftResult, cols: dict, idx: np.ndarray, model: str, series: st
         check = "bias and deterioration" if r.deteriorated else "bias"
         recent = e[start:]
         text = (f"{r.bias_direction} since {label(periods[start], freq)} at horizon {horizon}: mean error "
-                f"{signed(recent.mean())} over {recent.size} cells, {num(abs(recent.mean()) / r.sigma)} "
+                f"{signed(recent.mean())} over {recent.size} cells, {short_num(abs(recent.mean()) / r.sigma)} "
                 f"times the reference spread")
     else:
         start, alarm, check = r.deterioration_start, r.deterioration_alarm, "deterioration"
@@ -184,8 +185,8 @@ def _finding(r: DriftResult, cols: dict, idx: np.ndarray, model: str, series: st
 def _mase_text(r: DriftResult) -> str:
     if not np.isfinite(r.mase_ratio):
         return "MASE not available (no scale)"
-    return (f"MASE {num(r.mase_recent)} recent vs {num(r.mase_reference)} reference "
-            f"({num(r.mase_ratio)} times)")
+    return (f"MASE {short_num(r.mase_recent)} recent vs {short_num(r.mase_reference)} reference "
+            f"({short_num(r.mase_ratio)} times)")
 
 
 def _one(x: float) -> str:

@@ -24,7 +24,8 @@ import pandas as pd
 
 from ..stats.comparison import DMResult, dm_hln, relative_mae, win_share
 from ..errors import LedgerError
-from .base import check_models, horizon_text, known_models, label, num, pval
+from .base import check_models, horizon_text, known_models
+from ..wording import label, pval, short_num
 from ..scoring.cells import Selection, score_cells
 from ..store import Store
 
@@ -278,7 +279,7 @@ def _decide(row, outcomes, tests, ws, n_periods, window, inc, ch) -> tuple[str, 
     unclear = [h for h, o in outcomes.items() if o == "none"]
     untestable = [h for h, o in outcomes.items() if o == "untestable"]
     recent = f"the last {row['periods']} evaluation periods"
-    figures = f"relative MAE {num(row['rel_mae'])}, MASE {num(row['mase_challenger'])} vs {num(row['mase_incumbent'])}"
+    figures = f"relative MAE {short_num(row['rel_mae'])}, MASE {short_num(row['mase_challenger'])} vs {short_num(row['mase_incumbent'])}"
     keep = f"keep {inc}"
     if n_periods < window:
         return "not enough data", f"{keep}: only {n_periods} common evaluation periods with {ch}; the recent window needs {window}"

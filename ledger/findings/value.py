@@ -32,7 +32,8 @@ import pandas as pd
 
 from ..stats.intervals import benjamini_hochberg
 from ..stats.comparison import DMResult, dm_hln
-from .base import Finding, FlagOptions, label, num, pval
+from .base import Finding, FlagOptions
+from ..wording import label, pval, short_num
 from .standings import paired, period_differential
 
 __all__ = ["default_benchmark", "value_findings", "BENCHMARK_HINTS"]
@@ -104,7 +105,7 @@ def _model_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOpti
     else:
         statement = f"the difference is not significant (DM-HLN {pval(dm.p_value)})"
     since, head = _window_text(recent, bench, "")
-    text = f"{head}: MAE {num(mae_model)} vs {num(mae_bench)}, value added {va:+.0%}; {statement}"
+    text = f"{head}: MAE {short_num(mae_model)} vs {short_num(mae_bench)}, value added {va:+.0%}; {statement}"
     return [Finding(kind="value", series="", model=model, horizon=None, level=None, since=since,
                     figure=va, evidence=text, check="no value added", horizons="all",
                     measure="value added (1 - MAE / benchmark MAE)", p_value=dm.p_value, n=len(recent))]
@@ -125,7 +126,7 @@ def _series_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOpt
         if not (va <= 0 and adj <= options.value_alpha):
             continue
         since, head = _window_text(g, bench, " on this series")
-        text = (f"{head}: MAE {num(mae_model)} vs {num(mae_bench)}, value added {va:+.0%}; the benchmark is "
+        text = (f"{head}: MAE {short_num(mae_model)} vs {short_num(mae_bench)}, value added {va:+.0%}; the benchmark is "
                 f"significantly more accurate (DM-HLN one-sided {pval(t.p_value)}, adjusted {pval(adj)})")
         out.append(Finding(kind="value", series=series, model=model, horizon=None, level=None, since=since,
                            figure=va, evidence=text, check="no value added", horizons="all",

@@ -25,8 +25,9 @@ from pathlib import Path
 import pandas as pd
 
 from ..errors import InputError
+from ..wording import list_names, shorten
 
-__all__ = ["CHUNK_ROWS", "iter_csv_chunks", "shorten", "list_names"]
+__all__ = ["CHUNK_ROWS", "iter_csv_chunks"]
 
 #: Rows per chunk: small enough that a chunk of wide rows stays well under 100 MB.
 CHUNK_ROWS = 200_000
@@ -35,20 +36,6 @@ _BOMS = ((codecs.BOM_UTF8, "utf-8"), (codecs.BOM_UTF16_LE, "utf-16-le"), (codecs
 _FIELDS = re.compile(r"Expected (\d+) fields in line (\d+), saw (\d+)")
 _QUOTE = re.compile(r"EOF inside string starting at row (\d+)")
 _NUL = "holds a NUL byte, so it is not a text CSV file (a workbook? export it as CSV)"
-
-
-def shorten(value: str, limit: int = 40) -> str:
-    """A value fit to quote in a one-line message."""
-    text = str(value)
-    return text if len(text) <= limit else text[:limit] + f"… ({len(text):,} characters)"
-
-
-def list_names(names, limit: int = 5) -> str:
-    """'a, b, c' or 'a, b, c, d, e and 7 more': a list fit for a one-line message."""
-    names = [str(n) for n in names]
-    if len(names) <= limit:
-        return ", ".join(names)
-    return f"{', '.join(names[:limit])} and {len(names) - limit:,} more"
 
 
 class _Text:

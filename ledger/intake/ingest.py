@@ -19,19 +19,18 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from .csvread import list_names, shorten
 from ..errors import FrequencyError, InputError
 from ..periods import FREQUENCIES, check_frequency, parse_label
 from .sources import Chunk, open_table
 from .staging import Stage
 from ..store import Store
+from ..wording import format_level, list_names, shorten
 
 __all__ = [
     "ForecastFrame",
     "ActualsFrame",
     "read_forecasts",
     "read_actuals",
-    "format_level",
 ]
 
 _BOUND = re.compile(r"^(lower|upper)_(\d+(?:\.\d+)?)$")
@@ -41,11 +40,6 @@ _BOUND_LIKE = re.compile(
 )
 _QUANTILE_LIKE = re.compile(r"^(q|p|quantile|tau)[\s_\-.]*(\d+(?:\.\d+)?)$")
 _LOWER_WORDS = {"lower", "lo", "low", "lwr", "lb"}
-
-
-def format_level(level: float) -> str:
-    """80.0 -> '80', 97.5 -> '97.5': how a level appears in column names."""
-    return f"{level:g}"
 
 
 class _Staged:

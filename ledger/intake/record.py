@@ -12,9 +12,10 @@ import numpy as np
 import pandas as pd
 
 from ..errors import RunConflict
-from .ingest import ActualsFrame, ForecastFrame, format_level
+from .ingest import ActualsFrame, ForecastFrame
 from ..periods import SEASON_LENGTHS, period_label
 from ..store import Store
+from ..wording import format_level
 
 __all__ = ["RunResult", "SnapshotResult", "ActualsResult", "write_runs", "write_actuals", "run_content_hash"]
 
@@ -74,7 +75,7 @@ def _canonical_columns(part: pd.DataFrame) -> list[str]:
         pair = [f"lower_{format_level(level)}", f"upper_{format_level(level)}"]
         if part[pair[0]].notna().any():
             cols += pair
-    cols += [f"q_{tau:g}" for tau in taus if part[f"q_{tau:g}"].notna().any()]
+    cols += [f"q_{format_level(tau)}" for tau in taus if part[f"q_{format_level(tau)}"].notna().any()]
     return cols
 
 
@@ -86,7 +87,7 @@ def _run_parts(frame: ForecastFrame):
     stage = frame.stage
     names = {f"lo_{i}": f"lower_{format_level(lv)}" for i, lv in enumerate(frame.levels)}
     names |= {f"hi_{i}": f"upper_{format_level(lv)}" for i, lv in enumerate(frame.levels)}
-    names |= {f"q_{j}": f"q_{tau:g}" for j, tau in enumerate(frame.taus)}
+    names |= {f"q_{j}": f"q_{format_level(tau)}" for j, tau in enumerate(frame.taus)}
     select = ", ".join(["model", "origin_index", "origin", "series", "period_index", "point", *names])
     pieces: list[pd.DataFrame] = []
     for batch in stage.batches(select, "model, origin_index, series, period_index"):

@@ -42,7 +42,6 @@ import math
 import warnings
 from collections.abc import Callable, Sequence
 from functools import lru_cache
-from typing import Literal, get_args
 
 import numpy as np
 import pandas as pd
@@ -53,35 +52,30 @@ from statsmodels.tsa.forecasting.theta import ThetaModel
 from statsmodels.tsa.seasonal import seasonal_decompose
 
 from ..errors import GapInHistory, MethodNotApplicable, NotEnoughData, UnknownName
+from ..wording import format_level
+from .names import METHODS, check_levels
 
 __all__ = [
-    "METHODS",
-    "Method",
     "forecast",
-    "format_level",
+    "LEVEL_DIGITS",
     "min_history",
     "seasonal_test",
     "seasonal_indices",
     "dominant_period",
     "seasonality_check",
+    "season_length_note",
+    "short_history_note",
 ]
-
-Method = Literal[
-    "naive", "snaive", "drift", "mean", "ses", "holt", "damped", "hw", "hw-damped", "theta",
-    "naive2", "shd",
-]
-METHODS: tuple[str, ...] = get_args(Method)
 
 Forecast = dict[str, np.ndarray]
+
+#: Significant figures of a level in the bound columns a method returns (``lower_<L>``): more
+#: than an input file's 6, so a level given with many decimals reaches the ledger intact.
+LEVEL_DIGITS = 10
 
 
 # ---------------------------------------------------------------------------------------------
 # levels and normal bounds
-
-
-def format_level(level: float) -> str:
-    """Column suffix of an interval level: 80 -> "80", 97.5 -> "97.5"."""
-    return f"{float(level):.10g}"
 
 
 @lru_cache(maxsize=64)
@@ -90,20 +84,12 @@ def _z(level: float) -> float:
     return float(norm.ppf(0.5 + level / 200.0))
 
 
-def _check_levels(levels: Sequence[float]) -> tuple[float, ...]:
-    out = tuple(float(level) for level in levels)
-    for level in out:
-        if not 0.0 < level < 100.0:
-            raise UnknownName(f"interval level {level:g} is outside (0, 100); use e.g. 80 or 95")
-    return out
-
-
 def _normal_bounds(point: np.ndarray, sd: np.ndarray, levels: Sequence[float]) -> Forecast:
     out: Forecast = {"forecast": point}
     for level in levels:
         half = _z(level) * sd
-        out[f"lower_{format_level(level)}"] = point - half
-        out[f"upper_{format_level(level)}"] = point + half
+        out[f"lower_{format_level(level, LEVEL_DIGITS)}"] = point - half
+        out[f"upper_{format_level(level, LEVEL_DIGITS)}"] = point + half
     return out
 
 
@@ -177,8 +163,8 @@ def _ets(method: str, y: np.ndarray, h: int, m: int, levels: Sequence[float]) ->
         out: Forecast = {"forecast": np.asarray(pred.predicted_mean, dtype=float)}
         for level in levels:
             frame = pred.summary_frame(alpha=1.0 - level / 100.0)
-            out[f"lower_{format_level(level)}"] = frame["pi_lower"].to_numpy(dtype=float)
-            out[f"upper_{format_level(level)}"] = frame["pi_upper"].to_numpy(dtype=float)
+            out[f"lower_{format_level(level, LEVEL_DIGITS)}"] = frame["pi_lower"].to_numpy(dtype=float)
+            out[f"upper_{format_level(level, LEVEL_DIGITS)}"] = frame["pi_upper"].to_numpy(dtype=float)
     return _finite(method, out)
 
 
@@ -445,7 +431,7 @@ def forecast(
             f"method {method} needs at least {need} history values with m={m}, got n={values.size}; "
             "use a later origin or a simpler method"
         )
-    return _DISPATCH[method](values, h, m, _check_levels(levels))
+    return _DISPATCH[method](values, h, m, check_levels(levels))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -492,7 +478,8 @@ def dominant_period(y: np.ndarray, *, max_lag: int | None = None) -> tuple[int, 
     return period, float(r[period])
 
 
-def _short_note(n: int, m: int) -> str | None:
+def short_history_note(n: int, m: int) -> str | None:
+    """A note when n values are fewer than three seasons of length m > 1 (common practice, no source)."""
     if m > 1 and n < 3 * m:
         return (
             f"history has {n} values, fewer than three seasons ({3 * m} for m = {m}); "
@@ -501,7 +488,8 @@ def _short_note(n: int, m: int) -> str | None:
     return None
 
 
-def _period_note(y: np.ndarray, m: int) -> str | None:
+def season_length_note(y: np.ndarray, m: int) -> str | None:
+    """A note when :func:`dominant_period` of y disagrees with the declared season length m."""
     found = dominant_period(y, max_lag=max(2 * m, 24))
     if found is None:
         return None
@@ -528,8 +516,8 @@ def seasonality_check(y: np.ndarray, *, m: int) -> list[str]:
     if gaps.size:
         # Only the stretch after the last gap is evenly spaced; it alone is checked.
         values = values[gaps[-1] + 1 :]
-    short = _short_note(values.size, m)
+    short = short_history_note(values.size, m)
     if short is not None:
         return [short]
-    note = _period_note(values, m)
+    note = season_length_note(values, m)
     return [] if note is None else [note]

@@ -23,26 +23,18 @@ from __future__ import annotations
 import dataclasses
 import re
 from collections.abc import Callable, Sequence
-from typing import TYPE_CHECKING
 
 import pandas as pd
 
 from ..errors import UnknownName
 from ..intake.ingest import MAX_HORIZON, read_actuals, read_forecasts
-from ..periods import SEASON_LENGTHS, index_start, parse_period, period_index, period_label
+from ..periods import SEASON_LENGTHS, parse_period, period_index
 from ..intake.record import ActualsResult, RunResult, write_actuals, write_runs
 from ..store import Store
+from ..wording import label, labels
+from .names import check_fill, check_levels, check_methods
 
-if TYPE_CHECKING:
-    from ..api import Ledger
-
-__all__ = ["BacktestResult", "check_options", "run_backtest", "METHOD_NAMES"]
-
-# The names of ledger.methods.forecasters.METHODS, repeated so that importing the CLI does not import
-# statsmodels; tests/test_reference.py checks that the two lists agree.
-METHOD_NAMES = ("naive", "snaive", "drift", "mean", "ses", "holt", "damped", "hw", "hw-damped",
-                "theta", "naive2", "shd")
-FILL_NAMES = ("linear", "previous")
+__all__ = ["BacktestResult", "check_options", "run_backtest"]
 
 _SCHEDULE_HINT = "holdout (--holdout K) or origins (--origins FIRST:LAST[:STEP])"
 
@@ -83,7 +75,7 @@ def check_options(*, methods: Sequence[str], horizon: int | None, holdout: int |
                   origins: str | None, levels: Sequence[float], jobs: int | None,
                   fill: str | None) -> None:
     """Refuse bad backtest options before anything is read or written (UnknownName)."""
-    _check_methods(methods)
+    check_methods(methods)
     if (holdout is None) == (origins is None):
         got = "both" if holdout is not None else "neither"
         raise UnknownName(f"backtest: give exactly one of {_SCHEDULE_HINT}; got {got}")
@@ -92,23 +84,8 @@ def check_options(*, methods: Sequence[str], horizon: int | None, holdout: int |
     _check_count("jobs", jobs)
     if origins is not None:
         _split_origins(origins)
-    for level in levels:
-        if not 0.0 < float(level) < 100.0:
-            raise UnknownName(f"backtest: interval level {level:g} is outside (0, 100); use e.g. 80,95")
-    if fill is not None and fill not in FILL_NAMES:
-        raise UnknownName(f"backtest: fill {fill!r} is not a fill method; use one of {', '.join(FILL_NAMES)}")
-
-
-def _check_methods(methods: Sequence[str]) -> None:
-    if not methods:
-        raise UnknownName(f"backtest: no reference method given; choose from {', '.join(METHOD_NAMES)}")
-    unknown = [m for m in methods if m not in METHOD_NAMES]
-    if unknown:
-        shown = ", ".join(repr(m) for m in unknown)
-        raise UnknownName(f"backtest: unknown reference method {shown}; choose from {', '.join(METHOD_NAMES)}")
-    twice = sorted({m for m in methods if list(methods).count(m) > 1})
-    if twice:
-        raise UnknownName(f"backtest: method {', '.join(map(repr, twice))} is named more than once; name it once")
+    check_levels(levels, command="backtest")
+    check_fill(fill)
 
 
 def _check_count(name: str, value: int | None, *, high: int | None = None) -> None:
@@ -169,15 +146,10 @@ def _latest_history(store: Store, keys: Sequence[str]) -> tuple[pd.DataFrame, di
 # indices back to period labels
 
 
-def _labels(indices: pd.Series, freq: str) -> pd.Series:
-    names = {int(i): period_label(index_start(int(i), freq), freq) for i in pd.unique(indices)}
-    return indices.map(names).astype(object)
-
-
 def _run_frame(forecasts: pd.DataFrame, freq: str) -> pd.DataFrame:
     """backtest() output -> a back-fill forecast frame with model, origin and period labels."""
     frame = forecasts.drop(columns=["horizon", "t"]).assign(
-        origin=_labels(forecasts["origin"], freq), period=_labels(forecasts["t"], freq))
+        origin=labels(forecasts["origin"], freq), period=labels(forecasts["t"], freq))
     first = ["model", "origin", "series", "period", "forecast"]
     return frame[first + [c for c in frame.columns if c not in first]]
 
@@ -196,14 +168,14 @@ def _relabel(note: str, freq: str) -> str:
     head = _SERIES_PREFIX.match(note)
     cut = head.end() if head else 0
 
-    def label(match: re.Match) -> str:
+    def as_labels(match: re.Match) -> str:
         parts = re.split(r"(, |-)", match.group(2))
-        words = [period_label(index_start(int(p), freq), freq) if p.isdigit() else
+        words = [label(int(p), freq) if p.isdigit() else
                  (" to " if p == "-" else p) for p in parts]
         lead = "" if match.group(1) == "t =" else match.group(1) + " "
         return lead + "".join(words)
 
-    return note[:cut] + _INDEX_RUN.sub(label, note[cut:])
+    return note[:cut] + _INDEX_RUN.sub(as_labels, note[cut:])
 
 
 # ---------------------------------------------------------------------------------------------
@@ -211,7 +183,7 @@ def _relabel(note: str, freq: str) -> str:
 
 
 def run_backtest(
-    store_or_ledger: Store | Ledger,
+    store: Store,
     history,
     *,
     methods: Sequence[str],
@@ -229,7 +201,7 @@ def run_backtest(
     """Record HISTORY as actuals, backtest the reference methods on it, snapshot ``ref-<method>`` runs.
 
     ``history``: a CSV/Parquet path or DataFrame with series, period, actual. ``methods``: names
-    from :data:`ledger.methods.forecasters.METHODS`. Schedule, exactly one of: ``holdout=K`` (one origin
+    from :data:`ledger.methods.names.METHODS`. Schedule, exactly one of: ``holdout=K`` (one origin
     per series, K periods before its last actual) or ``origins="FIRST:LAST[:STEP]"`` (period
     labels in the file's frequency; every origin in the range for every series). ``horizon``:
     periods ahead (default one season of the file's frequency, at least 1). ``fill``: None
@@ -243,7 +215,6 @@ def run_backtest(
     """
     from .rolling import backtest  # statsmodels is imported only when a backtest runs
 
-    store = store_or_ledger if isinstance(store_or_ledger, Store) else store_or_ledger.store
     methods = list(methods)
     check_options(methods=methods, horizon=horizon, holdout=holdout, origins=origins, levels=levels,
                   jobs=jobs, fill=fill)

@@ -23,26 +23,16 @@ import os
 from collections.abc import Callable, Iterable, Sequence
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass, field
-from typing import Literal, get_args
 
 import numpy as np
 import pandas as pd
 
-from .forecasters import (
-    METHODS,
-    _check_levels,
-    _period_note,
-    _short_note,
-    format_level,
-    forecast,
-    min_history,
-)
+from .forecasters import LEVEL_DIGITS, forecast, min_history, season_length_note, short_history_note
+from .names import FillMethod, check_fill, check_levels, check_methods
 from ..errors import InputError, LedgerError, UnknownName
+from ..wording import format_level
 
-__all__ = ["FillMethod", "FILL_METHODS", "backtest"]
-
-FillMethod = Literal["linear", "previous"]
-FILL_METHODS: tuple[str, ...] = get_args(FillMethod)
+__all__ = ["backtest"]
 
 Progress = Callable[[int, int], None]
 
@@ -90,16 +80,6 @@ def _check_history(history: pd.DataFrame) -> pd.DataFrame:
             row=int(np.flatnonzero(dup.to_numpy())[0]) + 1, column="t",
         )
     return frame.dropna(subset=["actual"])
-
-
-def _check_methods(methods: Iterable[str]) -> tuple[str, ...]:
-    chosen = tuple(methods)
-    unknown = [name for name in chosen if name not in METHODS]
-    if unknown or not chosen:
-        raise UnknownName(
-            f"unknown reference method(s) {unknown or '(none given)'}; choose from {', '.join(METHODS)}"
-        )
-    return chosen
 
 
 def _season(m: int | dict, series: object) -> int:
@@ -222,13 +202,13 @@ def _run_task(task: _Task, methods, horizon: int, levels, fill, chunk: _Chunk) -
         if origin_hist is None:
             continue
         hist = origin_hist
-        if _short_note(hist.size, task.m) is not None:
+        if short_history_note(hist.size, task.m) is not None:
             notes.at(origin, f"history is shorter than three seasons ({3 * task.m} values for m = {task.m})")
         for method in methods:
             _run_method(task, origin, hist, method, horizon, levels, notes, chunk)
-    if hist is not None and _short_note(hist.size, task.m) is None:
+    if hist is not None and short_history_note(hist.size, task.m) is None:
         # Checked once per series, on the history up to its last usable origin.
-        period = _period_note(hist, task.m)
+        period = season_length_note(hist, task.m)
         if period is not None:
             notes.plain.append(f"{period} (checked on the history up to t = {task.t0 + hist.size - 1})")
     chunk.notes.extend(notes.sentences())
@@ -305,7 +285,7 @@ def _execute(tasks, args, jobs: int, progress: Progress | None) -> list[_Chunk]:
 def _assemble(chunks: list[_Chunk], levels: Sequence[float]) -> pd.DataFrame:
     names = ["model", "series", "origin", "t", "horizon", "forecast"]
     for level in levels:
-        names += [f"lower_{format_level(level)}", f"upper_{format_level(level)}"]
+        names += [f"lower_{format_level(level, LEVEL_DIGITS)}", f"upper_{format_level(level, LEVEL_DIGITS)}"]
     data = {}
     for name in names:
         parts = [a for c in chunks for a in c.columns.get(name, [])]
@@ -346,13 +326,12 @@ def backtest(
     series and origins: gaps, too short, season length disagreement, skipped methods).
     """
     frame = _check_history(history)
-    chosen = _check_methods(methods)
+    chosen = check_methods(methods)
     _check_schedule(holdout, origins)
     if int(horizon) != horizon or horizon < 1:
         raise UnknownName(f"backtest: horizon={horizon!r} must be an integer >= 1")
-    if fill is not None and fill not in FILL_METHODS:
-        raise UnknownName(f"backtest: fill={fill!r} is not a fill method; use one of {FILL_METHODS}")
-    levels = _check_levels(levels)
+    check_fill(fill)
+    levels = check_levels(levels, command="backtest")
     tasks = _tasks(frame, m, holdout, origins)
     workers = max(1, min(int(jobs or os.cpu_count() or 1), max(1, len(tasks))))
     chunks = _execute(tasks, (chosen, int(horizon), levels, fill), workers, progress)

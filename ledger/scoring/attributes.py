@@ -14,10 +14,10 @@ import re
 import numpy as np
 import pandas as pd
 
-from ..intake.csvread import shorten
 from ..errors import InputError, UnknownName
 from ..intake.sources import read_table
 from ..store import Store
+from ..wording import shorten
 
 __all__ = ["AttributesResult", "TOTAL_OF", "write_attributes", "attributes_sql", "known_attributes", "check_attribute",
            "parse_where", "series_attributes"]

@@ -25,11 +25,12 @@ from typing import Literal, get_args
 import pandas as pd
 
 from ..errors import LedgerError, UnknownName
-from ..intake.ingest import format_level
 from ..periods import index_start, parse_label, period_index, period_label
 from .attributes import attributes_sql, check_attribute, known_attributes
 from .events import excluded_spans_sql
+from .quantile_sql import add_probabilistic_columns, quantile_detail_sql, wis_group_sql
 from ..store import Store, latest_actuals_sql, live_runs_sql
+from ..wording import format_level
 
 __all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "scale_sql", "forecasts_sql", "score_cells", "interval_cells", "interval_misses", "scores", "POINT_COLUMNS"]
 
@@ -279,11 +280,12 @@ def _materialise(store: Store, sel: Selection, attrs: list[str], where: list[tup
 
 
 def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"), *,
-           where: Sequence[tuple[str, str]] = ()) -> pd.DataFrame:
+           where: Sequence[tuple[str, str]] = (), quantile_detail: bool = False) -> pd.DataFrame:
     """Aggregate metrics per group; columns as documented in the README (Definitions).
 
     ``by`` takes the built-in keys and any attribute name; ``where`` is a list of
-    (attribute, value) pairs that a cell's series must match.
+    (attribute, value) pairs that a cell's series must match. ``quantile_detail`` adds
+    below_qNN and pinball_qNN per quantile level (:mod:`ledger.scoring.quantile_sql`).
     """
     keys = _check_keys(store, sel, by)
     where = list(where)
@@ -313,10 +315,12 @@ def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"
             f"SELECT {select_keys + ',' if keys else ''} {_PINBALL_AGG} FROM _scored c "
             f"JOIN quantiles qt ON qt.run_id = c.run_id AND qt.series = c.series AND qt.period_index = c.period_index "
             f"{gb}").df()
+        wis = con.execute(wis_group_sql("_scored", select_keys, group)).df()
+        detail = con.execute(quantile_detail_sql("_scored", select_keys, group)).df() if quantile_detail else None
         freqs = [r[0] for r in con.execute("SELECT DISTINCT frequency FROM _scored").fetchall()]
     finally:
         con.execute("DROP TABLE IF EXISTS _scored")
-    return _assemble(point, levels, pinball, keys, freqs)
+    return _assemble(point, levels, pinball, keys, freqs, (wis, detail))
 
 
 def _with_excluded(point: pd.DataFrame, excluded: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
@@ -331,7 +335,7 @@ def _with_excluded(point: pd.DataFrame, excluded: pd.DataFrame, keys: list[str])
 
 
 def _assemble(point: pd.DataFrame, levels: pd.DataFrame, pinball: pd.DataFrame,
-              keys: list[str], freqs: list[str]) -> pd.DataFrame:
+              keys: list[str], freqs: list[str], probabilistic=None) -> pd.DataFrame:
     if keys and len(point) == 0:
         return point[keys + list(POINT_COLUMNS) + ["n_zero_actual", "n_unscaled", "n_excluded"]]
     out = point.copy()
@@ -342,6 +346,8 @@ def _assemble(point: pd.DataFrame, levels: pd.DataFrame, pinball: pd.DataFrame,
         out = out.merge(part, on=keys, how="left") if keys else pd.concat([out, part.reset_index(drop=True)], axis=1)
     if len(pinball) and pinball["pinball"].notna().any():
         out = out.merge(pinball, on=keys, how="left") if keys else pd.concat([out, pinball], axis=1)
+    if probabilistic is not None:
+        out = add_probabilistic_columns(out, *probabilistic, keys)
     tail = ["n_zero_actual", "n_unscaled", "n_excluded"]
     ordered = keys + [c for c in out.columns if c not in keys and c not in tail] + tail
     out = out[ordered]

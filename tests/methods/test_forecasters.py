@@ -16,13 +16,13 @@ import ledger.methods.rolling as bt
 from ledger.methods.rolling import backtest
 from ledger.methods.forecasters import (
     _ses_fit,
-    METHODS,
     dominant_period,
     forecast,
-    format_level,
     seasonal_test,
     seasonality_check,
 )
+from ledger.methods.names import METHODS
+from ledger.wording import format_level
 from ledger.errors import GapInHistory, InputError, MethodNotApplicable, NotEnoughData, UnknownName
 
 # A short invented series, T = 8, used for the hand computations.

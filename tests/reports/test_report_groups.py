@@ -26,7 +26,8 @@ from ledger.scoring.totals import INTERVAL_NOTE
 from reports import render_report
 from reports.group_views import GROUPS_PAGE, NO_GROUP, build_groups, count_findings, load_groups
 from reports.names import page_name
-from reports.text import bias_words, num, pct
+from ledger.wording import num, pct
+from reports.text import bias_words
 from tests.reports.test_report import _parse
 
 AS_OF = "2100-01-01"     # after every recorded time (recorded_at is the wall clock of the test run)

@@ -143,7 +143,53 @@ def oracle(cells, by):
                     pin.append(tau * (c["y"] - qv) if c["y"] >= qv else (1 - tau) * (qv - c["y"]))
         if pin:
             row["pinball"] = np.mean(pin)
+        row.update(oracle_wis(g))
         out[key] = row
+    return out
+
+
+def _cell_wis(c):
+    """(wis, dispersion, over, under) of one cell from the definition (Bracher et al. 2021, eq. 3), or None.
+
+    Intervals: the q10/q90 pair (alpha 0.2), then each bound level whose alpha the quantiles do
+    not already give; the median is q50, else the point forecast.
+    """
+    r, y = c["row"], c["y"]
+    ivals = {}
+    if not pd.isna(r.get("q10", np.nan)) and not pd.isna(r.get("q90", np.nan)):
+        ivals[0.2] = (r["q10"], r["q90"])
+    for lv in (80, 95):
+        a = round(1 - lv / 100, 9)
+        if a not in ivals and not pd.isna(r.get(f"lower_{lv}", np.nan)):
+            ivals[a] = (r[f"lower_{lv}"], r[f"upper_{lv}"])
+    if not ivals:
+        return None
+    m = c["f"]
+    k = len(ivals) + 0.5
+    disp = sum(a / 2 * (u - l) for a, (l, u) in ivals.items()) / k
+    over = (0.5 * max(m - y, 0) + sum(max(l - y, 0) for l, _ in ivals.values())) / k
+    under = (0.5 * max(y - m, 0) + sum(max(y - u, 0) for _, u in ivals.values())) / k
+    return disp + over + under, disp, over, under
+
+
+def oracle_wis(g):
+    """Group means of the WIS columns, swis over scaled cells, crps_q = 2 x the cell's mean pinball."""
+    parts = [(c, _cell_wis(c)) for c in g]
+    parts = [(c, p) for c, p in parts if p is not None]
+    if not parts:
+        return {}
+    out = {name: np.mean([p[i] for _, p in parts])
+           for i, name in enumerate(("wis", "wis_dispersion", "wis_overprediction", "wis_underprediction"))}
+    scaled = [p[0] / c["q"] for c, p in parts if c["q"] is not None]
+    out["swis"] = np.mean(scaled) if scaled else np.nan
+    crps = []
+    for c in g:
+        r = c["row"]
+        if not pd.isna(r.get("q10", np.nan)):
+            pin = [tau * (c["y"] - r[col]) if c["y"] >= r[col] else (1 - tau) * (r[col] - c["y"])
+                   for tau, col in ((0.1, "q10"), (0.9, "q90"))]
+            crps.append(2 * np.mean(pin))
+    out["crps_q"] = np.mean(crps) if crps else np.nan
     return out
 
 
@@ -181,7 +227,9 @@ def test_column_order(ledger_and_truth):
     assert list(got.columns) == [
         "model", "horizon", "n", "mae", "rmse", "mape", "smape", "wape", "mase", "rmsse", "bias", "bias_pct",
         "coverage_80", "width_80", "interval_score_80", "msis_80",
-        "coverage_95", "width_95", "interval_score_95", "msis_95", "pinball", "n_zero_actual", "n_unscaled", "n_excluded"]
+        "coverage_95", "width_95", "interval_score_95", "msis_95", "pinball",
+        "wis", "wis_dispersion", "wis_overprediction", "wis_underprediction", "swis", "crps_q",
+        "n_zero_actual", "n_unscaled", "n_excluded"]
 
 
 def test_filters(ledger_and_truth):

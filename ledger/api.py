@@ -247,13 +247,14 @@ class Ledger:
 
         return review_list(self.store)
 
-    def changes(self, *, since_review: int | None = None, mase_change: float | None = None):
+    def changes(self, *, since_review: int | None = None, mase_change: float | None = None, as_of=None):
         """The latest review against review ``since_review`` (default the one before): a
         :class:`ledger.cycle.changes.Changes` with findings new/resolved/persisting and models' MASE moves."""
         from .cycle.changes import DEFAULT_MASE_CHANGE, changes
 
         return changes(self.store, since_review=since_review,
-                       mase_change=DEFAULT_MASE_CHANGE if mase_change is None else mase_change)
+                       mase_change=DEFAULT_MASE_CHANGE if mase_change is None else mase_change,
+                       as_of=parse_as_of(as_of))
 
     def stability(self, *, by: Sequence[str] = ("series", "model"), as_of=None, models: Sequence[str] = (),
                   series: Sequence[str] = (), since: str | None = None, until: str | None = None) -> pd.DataFrame:

@@ -17,7 +17,7 @@ import pandas as pd
 
 from ..errors import UnknownName
 from ..scoring.cells import Selection, cells_sql
-from ..store import Store
+from ..store import Store, utc_now
 
 __all__ = ["Changes", "DEFAULT_MASE_CHANGE", "recent_mase", "review_list", "changes"]
 
@@ -78,8 +78,9 @@ def _models_of(store: Store, review: int | None) -> pd.DataFrame:
                              [review]).df()
 
 
-def _pick(store: Store, since_review: int | None) -> tuple[int | None, int]:
-    ids = [r[0] for r in store.con.execute("SELECT review_id FROM reviews ORDER BY review_id").fetchall()]
+def _pick(store: Store, since_review: int | None, as_of) -> tuple[int | None, int]:
+    ids = [r[0] for r in store.con.execute(
+        "SELECT review_id FROM reviews WHERE as_of <= $as_of ORDER BY review_id", {"as_of": as_of}).fetchall()]
     if not ids:
         raise UnknownName("no review stored yet; run backsight review INBOX --out REPORT first")
     now = ids[-1]
@@ -117,11 +118,12 @@ def _diff_models(old: pd.DataFrame, new: pd.DataFrame, threshold: float) -> pd.D
 
 
 def changes(store: Store, *, since_review: int | None = None,
-            mase_change: float = DEFAULT_MASE_CHANGE) -> Changes:
-    """The latest stored review against review ``since_review`` (default: the one before it)."""
+            mase_change: float = DEFAULT_MASE_CHANGE, as_of=None) -> Changes:
+    """The latest review stored at or before ``as_of`` (default now) against review
+    ``since_review`` (default: the one before it)."""
     if not mase_change > 0:
         raise UnknownName(f"--mase-change {mase_change} must be above 0")
-    then, now = _pick(store, since_review)
+    then, now = _pick(store, since_review, utc_now() if as_of is None else as_of)
     found = _diff_findings(_findings_of(store, then), _findings_of(store, now))
     models = _diff_models(_models_of(store, then), _models_of(store, now), mase_change)
     return Changes(then, now, mase_change, found, models)

@@ -100,3 +100,33 @@ def test_changes_and_events_commands(reviewed, runner, tmp_path):
     assert east["n_excluded"] == 3 and back.set_index("series").loc["east/pumps", "n"] == east["n"] + 3
     r = runner.invoke(app, base + ["review", str(inbox), "--out", str(tmp_path / "rep3")])
     assert r.exit_code == 0 and r.stdout.startswith("review 2: 0 run(s) and 0 actual(s) recorded")
+
+
+def test_the_report_shows_changes_events_and_stability(tmp_path, runner):
+    path, inbox = tmp_path / "l.duckdb", tmp_path / "inbox"
+    base = ["--ledger", str(path)]
+    for k in range(2):
+        _month(inbox, k)
+        assert runner.invoke(app, base + ["review", str(inbox), "--out", str(tmp_path / f"rep{k}")]).exit_code == 0
+    events = tmp_path / "events.csv"
+    events.write_text("series,first,last,label,exclude\neast/pumps,2025-10,2025-11,<b>stock-out</b>,yes\n",
+                      encoding="utf-8")
+    assert runner.invoke(app, base + ["events", str(events)]).exit_code == 0
+    _month(inbox, 2)
+    out = tmp_path / "rep2"
+    assert runner.invoke(app, base + ["review", str(inbox), "--out", str(out)]).exit_code == 0
+    index = (out / "index.html").read_text(encoding="utf-8")
+    with Ledger.open(path, create=False, read_only=True) as book:
+        diff = book.changes()
+    assert diff.then == 2 and diff.now == 3
+    counts = {s: diff.count(s) for s in ("new", "resolved", "persisting")}
+    assert (f"Review 3: {counts['new']} new, {counts['resolved']} resolved and {counts['persisting']} "
+            "persisting findings") in index
+    assert index.index('id="changes"') < index.index('id="leaderboard"')   # on the first screen
+    methods = (out / "methods.html").read_text(encoding="utf-8")
+    assert "&lt;b&gt;stock-out&lt;/b&gt;" in methods and "<b>stock-out" not in methods   # escaped
+    series = next(p for p in out.glob("s-east-pumps-*.html")).read_text(encoding="utf-8")
+    assert "2025-10 to 2025-11: &lt;b&gt;stock-out&lt;/b&gt; (excluded from scoring)" in series
+    assert 'id="c-paths-fig"' in series and "forecasts of the last targets, run by run" in series
+    model = next(p for p in out.glob("m-planner-*.html")).read_text(encoding="utf-8")
+    assert 'id="c-revisions-fig"' in model and "revision size by horizon" in model

@@ -3,9 +3,8 @@
 Nothing in this package renders HTML; the ``reports`` package builds on it, never the reverse.
 """
 
-__version__ = "0.1.0"
-
-from .api import Ledger  # noqa: E402  (needs __version__ above)
-from .errors import LedgerError  # noqa: E402
+from .api import Ledger
+from .errors import LedgerError
+from .version import __version__
 
 __all__ = ["__version__", "Ledger", "LedgerError"]

@@ -23,6 +23,8 @@ from .intake.record import ActualsResult, SnapshotResult, write_actuals, write_r
 from .scoring.events import EventsResult, events_in_force, write_events
 from .methods.recorded import run_backtest
 from .scoring.cells import Selection, interval_cells, score_cells, scores
+from .scoring.selection import check_selection
+from .findings.summary import keep_findings, standings_summary
 from .store import Store, parse_as_of
 from .scoring.totals import totals
 from .transfer import ExportFormat, export_ledger, import_ledger
@@ -110,9 +112,19 @@ class Ledger:
 
     def selection(self, *, as_of=None, models: Sequence[str] = (), series: Sequence[str] = (),
                   horizons: Sequence[int] = (), since: str | None = None,
-                  until: str | None = None, include_excluded: bool = False) -> Selection:
-        return Selection(parse_as_of(as_of), tuple(models), tuple(series), tuple(horizons), since, until,
-                         include_excluded)
+                  until: str | None = None, where: Sequence = (), include_excluded: bool = False) -> Selection:
+        """The one definition of the filters every reading command takes, checked against the ledger.
+
+        ``where``: "ATTR=VALUE" strings (or (attribute, value) pairs) that a cell's series must
+        match. An unknown model, series, attribute (value) or horizon raises UnknownName with
+        the nearest known names (:mod:`ledger.scoring.selection`). ``include_excluded`` puts back
+        the cells that excluding events leave out (:mod:`ledger.scoring.events`).
+        """
+        pairs = tuple(w if isinstance(w, tuple) else parse_where([w])[0] for w in where)
+        sel = Selection(parse_as_of(as_of), tuple(models), tuple(series), tuple(int(h) for h in horizons),
+                        since, until, pairs, include_excluded)
+        sel.params()  # a bad --since / --until is reported before any name
+        return check_selection(self.store, sel)
 
     def scores(self, *, by: Sequence[str] = ("model", "horizon"), as_of=None,
                models: Sequence[str] = (), series: Sequence[str] = (), horizons: Sequence[int] = (),
@@ -126,17 +138,22 @@ class Ledger:
         out (counted in ``n_excluded``) unless ``include_excluded``.
         """
         sel = self.selection(as_of=as_of, models=models, series=series, horizons=horizons,
-                             since=since, until=until, include_excluded=include_excluded)
-        conditions = parse_where(where)
+                             since=since, until=until, where=where,
+                             include_excluded=include_excluded)
         if weight is not None:
-            return weighted_scores(self.store, sel, by, weight=weight, where=conditions)
-        return scores(self.store, sel, by, where=conditions)
+            return weighted_scores(self.store, sel, by, weight=weight)
+        return scores(self.store, sel, by)
 
-    def totals(self, attribute: str, *, as_of=None, models: Sequence[str] = (), horizons: Sequence[int] = (),
-               since: str | None = None, until: str | None = None) -> pd.DataFrame:
-        """Accuracy of each group's total (sum of members, and any direct total forecast); point metrics."""
-        sel = self.selection(as_of=as_of, models=models, horizons=horizons, since=since, until=until)
-        return totals(self.store, sel, attribute)
+    def totals(self, attribute: str, *, by: Sequence[str] = ("model",), as_of=None, models: Sequence[str] = (),
+               horizons: Sequence[int] = (), since: str | None = None, until: str | None = None,
+               where: Sequence = ()) -> pd.DataFrame:
+        """Accuracy of each group's total (sum of members, and any direct total forecast); point metrics.
+
+        ``by``: the keys to group the totals by besides the attribute (model, horizon, origin,
+        period, other attributes); ``series`` is refused, since a total has no series.
+        """
+        sel = self.selection(as_of=as_of, models=models, horizons=horizons, since=since, until=until, where=where)
+        return totals(self.store, sel, attribute, by=by)
 
     def record_attributes(self, data, *, name: str | None = None, total_of: str | None = None) -> AttributesResult:
         """Record series attributes (a changed value becomes a new version); see :mod:`ledger.scoring.attributes`."""
@@ -188,48 +205,67 @@ class Ledger:
         """Load a folder written by :meth:`export` into this (empty) ledger; rows per table."""
         return import_ledger(self.store, in_dir)
 
-    def runs(self) -> pd.DataFrame:
-        """One row per run: id, model, origin, recorded at, cells, hash, superseded by."""
+    def runs(self, *, models: Sequence[str] = ()) -> pd.DataFrame:
+        """One row per run (of ``models``, all when empty): id, model, origin, recorded at, cells, hash, superseded by."""
+        self.selection(models=models)
         frame = self.store.con.execute(
             "SELECT run_id, model, frequency, origin, recorded_at, n_cells AS cells, "
-            "content_hash, superseded_by, source, note FROM runs ORDER BY recorded_at, model, origin"
-        ).df()
+            "content_hash, superseded_by, source, note FROM runs "
+            "WHERE len($models) = 0 OR list_contains($models, model) ORDER BY recorded_at, model, origin",
+            {"models": list(models)}).df()
         frame["origin"] = [period_label(pd.Timestamp(d).date(), f)
                            for d, f in zip(frame["origin"], frame["frequency"])]
         return frame
 
-    def flags(self, *, kinds: Sequence[str] = KINDS, models: Sequence[str] = (), as_of=None,
-              include_excluded: bool = False, **thresholds) -> pd.DataFrame:
+    def flags(self, *, kinds: Sequence[str] = KINDS, severities: Sequence[str] = (), models: Sequence[str] = (),
+              series: Sequence[str] = (), horizons: Sequence[int] = (), since: str | None = None,
+              until: str | None = None, where: Sequence = (), as_of=None, include_excluded: bool = False,
+              **thresholds) -> pd.DataFrame:
         """Drift, calibration, value-added and data-quality findings, one row per finding.
 
         Columns: kind, series, model, horizon, level, since, figure, evidence, check, severity,
-        zone, horizons, raised, measure, p_value, n. ``thresholds``: the fields of
-        :class:`ledger.findings.base.FlagOptions` (e.g. ``drift_h=5.5``, ``fdr=0.05``,
-        ``benchmark="ref-snaive"``), each with its stated default.
+        zone, horizons, raised, measure, p_value, n. The filters are those of :meth:`selection`
+        (findings are computed on the selected cells; a series filter keeps model-level findings,
+        which are then about the selected series); ``severities`` keeps alert, watch or note.
+        ``thresholds``: the fields of :class:`ledger.findings.base.FlagOptions` (e.g.
+        ``drift_h=5.5``, ``fdr=0.05``, ``benchmark="ref-snaive"``), each with its stated default.
         """
-        sel = self.selection(as_of=as_of, models=models, include_excluded=include_excluded)
-        return _flags().flags(self.store, sel, kinds=kinds, **thresholds)
+        sel = self.selection(as_of=as_of, models=models, series=series, horizons=horizons, since=since,
+                             until=until, where=where, include_excluded=include_excluded)
+        frame = _flags().flags(self.store, sel, kinds=kinds, **thresholds)
+        return keep_findings(self.store, sel, frame, severities)
 
-    def flag_counts(self, attribute: str, *, kinds: Sequence[str] = KINDS, models: Sequence[str] = (),
-                    as_of=None, **thresholds) -> pd.DataFrame:
-        """Findings per value of a series attribute and kind (``flags --by ATTR``)."""
-        frame = self.flags(kinds=kinds, models=models, as_of=as_of, **thresholds)
+    def flag_counts(self, attribute: str, *, kinds: Sequence[str] = KINDS, as_of=None, **filters) -> pd.DataFrame:
+        """Findings per value of a series attribute and kind (``flags --by ATTR``); filters as :meth:`flags`."""
+        frame = self.flags(kinds=kinds, as_of=as_of, **filters)
         return _flags().count_by_group(self.store, frame, attribute, parse_as_of(as_of))
 
-    def compare(self, a: str, b: str, *, horizons: Sequence[int] = (), as_of=None,
+    def compare(self, a: str, b: str, *, horizons: Sequence[int] = (), series: Sequence[str] = (),
+                since: str | None = None, until: str | None = None, where: Sequence = (), as_of=None,
                 alpha: float = 0.05) -> pd.DataFrame:
         """a (incumbent) against b (challenger) per horizon on common cells; verdict in ``.attrs["verdict"]``."""
-        return _standings().compare(self.store, self.selection(as_of=as_of), a, b, horizons=horizons, alpha=alpha)
+        sel = self.selection(as_of=as_of, series=series, horizons=horizons, since=since, until=until, where=where)
+        return _standings().compare(self.store, sel, a, b, horizons=horizons, alpha=alpha)
 
-    def standings(self, *, horizons: Sequence[int] = (), models: Sequence[str] = (), as_of=None) -> pd.DataFrame:
+    def standings(self, *, horizons: Sequence[int] = (), models: Sequence[str] = (), series: Sequence[str] = (),
+                  since: str | None = None, until: str | None = None, where: Sequence = (),
+                  as_of=None) -> pd.DataFrame:
         """Per evaluation period, each model's MASE, rank and share of series won, on common cells."""
-        return _standings().standings(self.store, self.selection(as_of=as_of, models=models, horizons=horizons))
+        sel = self.selection(as_of=as_of, models=models, horizons=horizons, series=series, since=since,
+                             until=until, where=where)
+        return _standings().standings(self.store, sel)
+
+    def standings_summary(self, *, recent: int = 12, **filters) -> pd.DataFrame:
+        """Per model: periods ranked first, median rank, MASE over the last ``recent`` periods; filters as :meth:`standings`."""
+        return standings_summary(self.standings(**filters), recent=recent)
 
     def advise(self, incumbent: str | None = None, *, challengers: Sequence[str] = (), window: int = 12,
-               horizons: Sequence[int] = (), alpha: float = 0.05, as_of=None) -> pd.DataFrame:
+               horizons: Sequence[int] = (), series: Sequence[str] = (), since: str | None = None,
+               until: str | None = None, where: Sequence = (), alpha: float = 0.05, as_of=None) -> pd.DataFrame:
         """Replace the incumbent (None: the stored setting) with a challenger, or not, and why."""
-        return _standings().advise(self.store, self.selection(as_of=as_of), incumbent, challengers=challengers,
-                                 window=window, horizons=horizons, alpha=alpha)
+        sel = self.selection(as_of=as_of, series=series, horizons=horizons, since=since, until=until, where=where)
+        return _standings().advise(self.store, sel, incumbent, challengers=challengers,
+                                   window=window, horizons=horizons, alpha=alpha)
 
     def review(self, inbox, *, include_excluded: bool = False, **thresholds):
         """Record an inbox's new files, run the findings and store the review (one transaction).

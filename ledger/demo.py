@@ -83,9 +83,7 @@ class ReplaySummary:
 
 def find_history() -> Path:
     """The ``demo_history`` folder next to the ``ledger`` package (a source checkout)."""
-    import ledger
-
-    folder = Path(ledger.__file__).resolve().parents[1] / "demo_history"
+    folder = Path(__file__).resolve().parents[1] / "demo_history"
     if not (folder / "manifest.csv").is_file():
         raise LedgerError(
             f"demo history not found: {folder / 'manifest.csv'} does not exist; the demo needs a "

@@ -20,7 +20,7 @@ import duckdb
 import numpy as np
 import pandas as pd
 
-from . import __version__
+from .version import __version__
 from .errors import LedgerBusy, LedgerError, NotALedger, SchemaTooNew, SchemaTooOld
 
 __all__ = [

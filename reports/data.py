@@ -21,7 +21,7 @@ import pandas as pd
 from ledger import Ledger
 from ledger.errors import UnknownName
 from ledger.periods import SEASON_LENGTHS
-from ledger.findings import standings as _standings
+from ledger.findings import standings
 from ledger.findings.flags import flags as _flag_cells
 from ledger.scoring.cells import Selection, cells_sql, score_cells
 from ledger.store import latest_actuals_sql, live_runs_sql
@@ -255,10 +255,10 @@ def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, b
     store, sel = book.store, book.selection(as_of=as_of)
     cells = score_cells(store, sel)
     found = _flag_cells(store, sel, cells=cells, **({"benchmark": benchmark} if benchmark else {}))
-    comparisons = {(a, b): _standings.compare(store, sel, a, b, cells=cells)
+    comparisons = {(a, b): standings.compare(store, sel, a, b, cells=cells)
                    for a, b in itertools.combinations(models, 2)}
-    ranks = _standings.standings(store, dataclasses.replace(sel, horizons=(horizon,)), cells=cells)
-    advice = (_standings.advise(store, sel, incumbent, cells=cells)
+    ranks = standings.standings(store, dataclasses.replace(sel, horizons=(horizon,)), cells=cells)
+    advice = (standings.advise(store, sel, incumbent, cells=cells)
               if incumbent and len(models) > 1 else None)
     return Findings(found, comparisons, ranks, advice)
 

@@ -22,6 +22,9 @@ class DemoResult:
     report: ReportResult
     findings: dict[str, int]        # kind -> count
     best_by_horizon: pd.DataFrame   # horizon, model, mase, n (lowest MASE on common cells' scores)
+    advice: tuple[str, ...] = ()    # Ledger.advise(DEMO_INCUMBENT) sentences, one per challenger
+    top_findings: pd.DataFrame | None = None   # the first three alert/watch findings, in flags' order
+    incumbent: str = DEMO_INCUMBENT
 
 
 def build_demo(out_dir, *, ledger_path=None, progress=None) -> DemoResult:
@@ -37,7 +40,11 @@ def build_demo(out_dir, *, ledger_path=None, progress=None) -> DemoResult:
     with Ledger.open(path, create=False, read_only=True) as book:
         flags = book.flags()
         table = book.scores(by=["model", "horizon"])
+        advice = tuple(book.advise(DEMO_INCUMBENT)["advice"])
     counts = flags["kind"].value_counts().to_dict() if len(flags) else {}
     best = (table.dropna(subset=["mase"]).sort_values(["horizon", "mase"]).groupby("horizon").head(1)
             [["horizon", "model", "mase", "n"]].reset_index(drop=True))
-    return DemoResult(summary, report, counts, best)
+    ranked = flags[flags["severity"] != "note"]
+    if "impact" in ranked.columns:
+        ranked = ranked.sort_values("impact", ascending=False, kind="stable")
+    return DemoResult(summary, report, counts, best, advice, ranked.head(3).reset_index(drop=True))

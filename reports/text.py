@@ -1,4 +1,4 @@
-"""Numbers and sentences for people: percentages, bias in words, sample-size labels, zones.
+"""Sentences for people: bias in words, sample-size labels, tolerance zones (numbers: ledger.wording).
 
 Sign convention of the project: e = actual − forecast, so a positive bias means the forecasts
 were too low. Every sentence here says it in words ("forecasts 3.2% too low").

@@ -293,14 +293,13 @@ def _ranked(rows: list[FindingRow]) -> list[FindingRow]:
 
 def build_overview(data: LedgerData, ctx: Context) -> Overview:
     """The overview page: counts, headline sentences, leaderboard, charts, findings, advice."""
-    periods = sorted(data.by_model_period["period"].unique()) if len(data.by_model_period) else []
     all_periods = _scored_period_range(data)
     counts = {"series": len(data.series), "models": len(data.models), "runs": len(data.runs),
               "cells_scored": int(data.by_model_h["n"].sum()) if len(data.by_model_h) else 0,
               "cells_pending": data.pending}
     flag_rows = _ranked(finding_rows(data.findings.flags, ctx))
     advice = _advice_rows(data)
-    chart_list, notes = _overview_charts(data, ctx, periods)
+    chart_list, notes = _overview_charts(data, ctx)
     return Overview(
         title=ctx.title, as_of=ctx.footer.as_of, period_first=all_periods[0], period_last=all_periods[1],
         counts=counts, headlines=_headlines(data, ctx, counts, flag_rows, advice), horizon=data.horizon,
@@ -341,7 +340,7 @@ def _best_model(part: pd.DataFrame) -> str | None:
 
 def _headlines(data: LedgerData, ctx: Context, counts: dict, flags: list[FindingRow],
                advice: list[AdviceRow]) -> list[str]:
-    lines = [_scope_sentence(data, counts)]
+    lines = [_scope_sentence(counts)]
     lines += _model_sentences(data, ctx)
     lines += _winner_sentence(data)
     kinds = _count_kinds(flags)
@@ -352,7 +351,7 @@ def _headlines(data: LedgerData, ctx: Context, counts: dict, flags: list[Finding
     return lines
 
 
-def _scope_sentence(data: LedgerData, counts: dict) -> str:
+def _scope_sentence(counts: dict) -> str:
     return (f"The ledger holds {plural(counts['series'], 'series', 'series')}, "
             f"{plural(counts['models'], 'model')} and {plural(counts['runs'], 'live run')}; "
             f"{counts['cells_scored']:,} forecasts have been scored against actuals and "
@@ -427,7 +426,7 @@ def _pivot(frame: pd.DataFrame, index: str, column: str, models: Sequence[str]) 
     return keys, {m: [float(v) for v in table[m]] for m in models if m in table.columns}
 
 
-def _overview_charts(data: LedgerData, ctx: Context, periods: list) -> tuple[list[charts.Chart], list[str]]:
+def _overview_charts(data: LedgerData, ctx: Context) -> tuple[list[charts.Chart], list[str]]:
     out, notes = [], []
     h = data.horizon
     if len(data.by_model_period):

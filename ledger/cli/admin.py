@@ -9,7 +9,8 @@ from typing import Annotated, Optional
 import typer
 
 from ..api import Ledger
-from .common import app, busy, open_ledger
+from .common import app, busy, notice, open_ledger, say
+from .terminal import count
 
 __all__ = ["verify", "export", "import_"]
 
@@ -23,7 +24,7 @@ class ExportFormat(str, enum.Enum):
 def verify(
     ctx: typer.Context,
     export_dir: Annotated[Optional[Path], typer.Argument(
-        help="An export folder with a manifest (a lake) to check instead of the ledger.")] = None,
+        metavar="EXPORT_DIR", help="An export folder with a manifest (a lake) to check instead of the ledger.")] = None,
 ) -> None:
     """Check the ledger's integrity: schema, run hashes, orphans, revisions. Exit 1 on problems.
 
@@ -38,17 +39,17 @@ def verify(
             problems, where = book.verify(), book.path
     if problems:
         for p in problems:
-            typer.echo(f"problem: {p}")
-        typer.echo(f"{where}: {len(problems)} problem(s) found", err=True)
+            say(f"problem: {p}")
+        notice(f"{where}: {count(len(problems), 'problem')} found")
         raise typer.Exit(1)
-    typer.echo(f"{where}: sound")
+    say(f"{where}: sound")
 
 
 @app.command()
 def export(
     ctx: typer.Context,
     out_dir: Annotated[Path, typer.Argument(help="Folder to write one file per table into.")],
-    fmt: Annotated[ExportFormat, typer.Option("--format", help="parquet or csv.")] = ExportFormat.parquet,
+    fmt: Annotated[ExportFormat, typer.Option("--format", metavar="FORMAT", help="parquet or csv.")] = ExportFormat.parquet,
     partition: Annotated[bool, typer.Option(
         "--partition", help="A partitioned Parquet lake with a manifest; later exports add only what is new.")] = False,
 ) -> None:
@@ -62,10 +63,10 @@ def export(
         else:
             files = book.export(out_dir, fmt=fmt.value)
     if partition:
-        typer.echo(f"wrote {len(files)} files to {out_dir} ({done.runs_added} new runs, "
-                   f"{done.revisions_added} new actual revisions; export {done.manifest.exports})")
+        say(f"wrote {count(len(files), 'file')} to {out_dir} ({count(done.runs_added, 'new run')}, "
+            f"{count(done.revisions_added, 'new actual revision')}; export {done.manifest.exports})")
     else:
-        typer.echo(f"wrote {len(files)} files to {out_dir}")
+        say(f"wrote {count(len(files), 'file')} to {out_dir}")
 
 
 @app.command("import")
@@ -76,4 +77,4 @@ def import_(
     """Rebuild an export into an empty ledger (the --ledger file must be new or empty)."""
     with open_ledger(ctx, create=True) as book, busy("Importing"):
         counts = book.import_export(in_dir)
-    typer.echo(", ".join(f"{n} {table}" for table, n in counts.items() if table != "meta"))
+    say(", ".join(f"{n} {table}" for table, n in counts.items() if table != "meta"))

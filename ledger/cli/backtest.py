@@ -1,4 +1,4 @@
-"""CLI command ``backtest``: reference forecasts from a history file, recorded as ``ref-<method>`` runs.
+"""CLI command ``backtest``: reference forecasts from a history file, recorded as ``ref-METHOD`` runs.
 
 A thin shell over :meth:`ledger.api.Ledger.backtest`; the progress bar (with an ETA) is drawn on
 stderr only when stderr is a terminal.
@@ -15,7 +15,8 @@ import typer
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
-from .common import FreqOpt, app, notice, open_ledger, split
+from .common import FreqOpt, app, notice, open_ledger, say, split
+from .terminal import count
 from ..methods.names import FILL_HELP, FILL_METHODS, METHODS_HELP
 from ..methods.recorded import check_options
 
@@ -37,17 +38,17 @@ def _levels(text: str) -> list[float]:
 def backtest(
     ctx: typer.Context,
     file: Annotated[Path, typer.Argument(help="History file (CSV or Parquet): series, period, actual; recorded as actuals.")],
-    methods: Annotated[str, typer.Option("--methods", help=METHODS_HELP)],
-    horizon: Annotated[int | None, typer.Option("--horizon", help="Periods ahead (default: one season of the file's frequency).")] = None,
+    methods: Annotated[str, typer.Option("--methods", metavar="LIST", help=METHODS_HELP)],
+    horizon: Annotated[int | None, typer.Option("--horizon", metavar="N", help="Periods ahead (default: one season of the file's frequency).")] = None,
     holdout: Annotated[int | None, typer.Option("--holdout", metavar="K", help="One origin per series, K periods before its last actual.")] = None,
     origins: Annotated[str | None, typer.Option("--origins", metavar="FIRST:LAST[:STEP]", help="Every origin in this range of period labels.")] = None,
-    levels: Annotated[str, typer.Option("--levels", help="Comma list of interval levels in percent.")] = "80,95",
+    levels: Annotated[str, typer.Option("--levels", metavar="LIST", help="Comma list of interval levels in percent.")] = "80,95",
     freq: FreqOpt = None,
-    jobs: Annotated[int | None, typer.Option("--jobs", help="Worker processes (default: all cores).")] = None,
-    fill: Annotated[Fill | None, typer.Option("--fill", help=FILL_HELP)] = None,
+    jobs: Annotated[int | None, typer.Option("--jobs", metavar="N", help="Worker processes (default: all cores).")] = None,
+    fill: Annotated[Fill | None, typer.Option("--fill", metavar="METHOD", help=FILL_HELP)] = None,
     supersede: Annotated[bool, typer.Option("--supersede", help="Replace different runs already recorded at the same model and origin (the old ones are kept).")] = False,
 ) -> None:
-    """Backtest reference methods on a history file and record the forecasts as ref-<method> runs."""
+    """Backtest reference methods on a history file and record the forecasts as ref-METHOD runs."""
     options = dict(methods=split([methods]), horizon=horizon, holdout=holdout, origins=origins,
                    levels=_levels(levels), jobs=jobs, fill=None if fill is None else fill.value)
     check_options(**options)  # before the ledger file is created
@@ -67,12 +68,12 @@ def _report(result) -> None:
     for w in result.warnings:
         notice(f"Warning: {w}")
     a = result.actuals
-    typer.echo(f"actuals: {a.new} new, {a.revised} revised, {a.unchanged} unchanged")
+    say(f"actuals: {a.new} new, {a.revised} revised, {a.unchanged} unchanged")
     recorded = Counter(r.model for r in result.recorded)
     unchanged = Counter(r.model for r in result.unchanged)
     for model in sorted(set(recorded) | set(unchanged)):
-        typer.echo(f"{model}: {recorded[model]} run(s) recorded, {unchanged[model]} unchanged")
-    typer.echo(f"{len(result.recorded)} run(s) recorded ({result.cells:,} cells), "
-               f"{len(result.unchanged)} already in the ledger; horizon {result.horizon}")
+        say(f"{model}: {count(recorded[model], 'run')} recorded, {unchanged[model]} unchanged")
+    say(f"{count(len(result.recorded), 'run')} recorded ({count(result.cells, 'cell')}), "
+        f"{len(result.unchanged)} already in the ledger; horizon {result.horizon}")
     for note in result.notes:
         notice(f"Note: {note}")

@@ -8,23 +8,25 @@ stdout; notices, warnings and progress go to stderr.
 from __future__ import annotations
 
 import contextlib
+import csv
 import enum
 import json
 import sys
 from pathlib import Path
-from typing import Annotated, Any
+from typing import Annotated
 
 import pandas as pd
 import typer
 from rich.console import Console
-from rich.table import Table
-from typer.core import TyperGroup
+from rich.markup import escape
+from typer.core import TyperCommand, TyperGroup
 
-from .. import __version__
+from .terminal import out_width, printable, render_table, wrap
+from ..version import __version__
 from ..api import DEFAULT_PATH, Ledger
 from ..errors import LedgerError
 
-__all__ = ["app", "Format", "FormatOpt", "AsOfOpt", "FreqOpt", "IncludeExcludedOpt", "open_ledger", "busy", "notice", "emit", "split"]
+__all__ = ["app", "Format", "FormatOpt", "AsOfOpt", "FreqOpt", "IncludeExcludedOpt", "open_ledger", "busy", "notice", "say", "emit", "split"]
 
 EXIT_ERROR = 1
 
@@ -36,11 +38,39 @@ class _Group(TyperGroup):
         try:
             return super().invoke(ctx)
         except LedgerError as exc:
-            typer.echo(f"Error: {exc}", err=True)
+            # Messages quote names and values from the input: shown inert, never raw.
+            typer.echo("\n".join(printable(line) for line in f"Error: {exc}".split("\n")), err=True)
             raise typer.Exit(EXIT_ERROR) from None
 
 
-app = typer.Typer(
+class _Command(TyperCommand):
+    """Help in plain words: arguments as NAME in the usage line and without type labels."""
+
+    def collect_usage_pieces(self, ctx) -> list[str]:
+        return [piece.replace("{", "").replace("}", "") for piece in super().collect_usage_pieces(ctx)]
+
+    def format_options(self, ctx, formatter) -> None:
+        args, opts = [], []
+        for param in self.get_params(ctx):
+            record = param.get_help_record(ctx)
+            if record is None:
+                continue
+            if param.param_type_name == "argument":
+                args.append((record[0].split(" <", 1)[0], record[1]))
+            else:
+                opts.append(record)
+        for title, rows in (("Arguments", args), ("Options", opts)):
+            if rows:
+                with formatter.section(title):
+                    formatter.write_dl(rows)
+
+
+class _App(typer.Typer):
+    def command(self, *args, cls=_Command, **kwargs):
+        return super().command(*args, cls=cls, **kwargs)
+
+
+app = _App(
     cls=_Group,
     add_completion=False,
     no_args_is_help=True,
@@ -57,10 +87,10 @@ class Format(str, enum.Enum):
     json = "json"
 
 
-FormatOpt = Annotated[Format, typer.Option("--format", help="table (for people), csv or json (full precision, stdout only).")]
-AsOfOpt = Annotated[str | None, typer.Option("--as-of", help="Score with what the ledger held at this time (ISO 8601; default now).")]
+FormatOpt = Annotated[Format, typer.Option("--format", metavar="FORMAT", help="table (for people), csv or json (full precision, stdout only).")]
+AsOfOpt = Annotated[str | None, typer.Option("--as-of", metavar="TIME", help="Score with what the ledger held at this time (ISO 8601; default now).")]
 IncludeExcludedOpt = Annotated[bool, typer.Option("--include-excluded", help="Put back the cells that events exclude from scoring.")]
-FreqOpt = Annotated[str | None, typer.Option("--freq", help="yearly, quarterly, monthly, weekly or daily; needed when periods are bare dates of a new series.")]
+FreqOpt = Annotated[str | None, typer.Option("--freq", metavar="FREQ", help="yearly, quarterly, monthly, weekly or daily; needed when periods are bare dates of a new series.")]
 
 
 def _print_version(value: bool) -> None:
@@ -72,7 +102,7 @@ def _print_version(value: bool) -> None:
 @app.callback()
 def _root(
     ctx: typer.Context,
-    ledger: Annotated[Path, typer.Option("--ledger", envvar="BACKSIGHT_LEDGER",
+    ledger: Annotated[Path, typer.Option("--ledger", envvar="BACKSIGHT_LEDGER", metavar="FILE",
                                          help="The ledger file.")] = Path(DEFAULT_PATH),
     wait: Annotated[float | None, typer.Option("--wait", envvar="BACKSIGHT_WAIT", metavar="SECONDS",
                                                help="How long to wait while another process holds the ledger (default 10).")] = None,
@@ -98,8 +128,9 @@ def busy(message: str):
     Yields ``say(text)``, which replaces the text after the message (e.g. how much is read).
     """
     if _stderr.is_terminal:
+        message = escape(printable(message))
         with _stderr.status(message) as status:
-            yield lambda text: status.update(f"{message}: {text}")
+            yield lambda text: status.update(f"{message}: {escape(printable(text))}")
     else:
         yield lambda text: None
 
@@ -112,39 +143,36 @@ def read_share(done: int, total: int) -> str:
 
 
 def notice(text: str) -> None:
-    typer.echo(text, err=True)
+    """A sentence for people on stderr: names made inert, wrapped to the width."""
+    for line in wrap(text, out_width(sys.stderr)):
+        typer.echo(line, err=True)
 
 
-def emit(frame: pd.DataFrame, fmt: Format, *, title: str | None = None) -> None:
-    """Print a frame: csv/json on stdout with full precision; table for people."""
+def say(text: str) -> None:
+    """A sentence for people on stdout: names made inert, wrapped to the width."""
+    for line in wrap(text, out_width()):
+        typer.echo(line)
+
+
+def emit(frame: pd.DataFrame, fmt: Format, *, title: str | None = None, keep=()) -> None:
+    """Print a frame: csv/json on stdout with full precision; a fitted table for people."""
     if fmt is Format.csv:
-        sys.stdout.write(frame.to_csv(index=False, lineterminator="\n"))
+        # A lone CR inside a value is not quoted by the csv module when lines end in LF, and a
+        # reader would split the row there; such (rare) output quotes every text field instead.
+        quoting = csv.QUOTE_NONNUMERIC if _has_cr(frame) else csv.QUOTE_MINIMAL
+        sys.stdout.write(frame.to_csv(index=False, lineterminator="\n", quoting=quoting))
     elif fmt is Format.json:
         records = json.loads(frame.to_json(orient="records", double_precision=15, date_format="iso"))
         sys.stdout.write(json.dumps(records, indent=1, ensure_ascii=False) + "\n")
     else:
-        out = Console(highlight=False)
-        if not out.is_terminal:
-            out = Console(highlight=False, width=max(100, 12 * len(frame.columns)))
-        out.print(_table(frame, title))
+        for line in render_table(frame, title=title, width=out_width(), keep=keep):
+            typer.echo(line)
 
 
-def _table(frame: pd.DataFrame, title: str | None) -> Table:
-    table = Table(title=title, show_lines=False, header_style="bold")
-    for col in frame.columns:
-        numeric = pd.api.types.is_numeric_dtype(frame[col])
-        table.add_column(str(col), justify="right" if numeric else "left", overflow="fold")
-    for row in frame.itertuples(index=False):
-        table.add_row(*[_cell(v) for v in row])
-    return table
-
-
-def _cell(value: Any) -> str:
-    if value is None or (isinstance(value, float) and value != value):
-        return "–"
-    if isinstance(value, float):
-        return f"{value:,.4g}" if abs(value) < 1e5 else f"{value:,.0f}"
-    return str(value)
+def _has_cr(frame: pd.DataFrame) -> bool:
+    text = [c for c in frame.columns if not pd.api.types.is_numeric_dtype(frame[c])]
+    return any(frame[c].astype(str).str.contains("\r", regex=False).any() for c in text) or \
+        any("\r" in str(c) for c in frame.columns)
 
 
 def split(values: list[str] | None) -> list[str]:

@@ -8,8 +8,6 @@ option whose default is the library's. ``advise --save`` stores the incumbent in
 
 from __future__ import annotations
 
-import functools
-
 import enum
 from typing import Annotated
 
@@ -19,22 +17,21 @@ from ..api import Ledger
 from .common import (
     AsOfOpt,
     Format,
+    IncludeExcludedOpt,
     FormatOpt,
     app,
     busy,
     emit,
     notice,
     open_ledger,
-    split,
+    say,
 )
-from ..findings.base import FlagOptions
-from .common import IncludeExcludedOpt
+from .filters import HorizonOpt, ModelOpt, SeriesOpt, SinceOpt, UntilOpt, WhereOpt, selection
+from .thresholds import with_thresholds
+from ..findings.summary import finding_counts
 from .cycle import FailOnOpt, check_fail_on, gate
 
 __all__ = ["flags", "compare", "standings", "advise"]
-
-_D = FlagOptions()
-
 
 class Kind(str, enum.Enum):
     drift = "drift"
@@ -43,96 +40,95 @@ class Kind(str, enum.Enum):
     data = "data"
 
 
-class CorrectionOpt(str, enum.Enum):
-    bh = "bh"
-    holm = "holm"
+class SeverityOpt(str, enum.Enum):
+    alert = "alert"
+    watch = "watch"
+    note = "note"
 
 
-HorizonOpt = Annotated[list[int] | None, typer.Option("--horizon", help="Only this horizon (repeatable).")]
-AlphaOpt = Annotated[float, typer.Option("--alpha", help="Significance level of the DM-HLN test (two-sided).")]
-_FLAG_TABLE = ["kind", "severity", "series", "model", "horizons", "level", "since", "figure", "check"]
+AlphaOpt = Annotated[float, typer.Option("--alpha", metavar="X", help="Significance level of the DM-HLN test (two-sided).")]
+# One row per finding in the table; impact and action when the findings carry them.
+_FLAG_TABLE = ["kind", "severity", "series", "model", "horizons", "level", "since", "figure", "impact", "check", "action"]
 
 
 @app.command()
+@with_thresholds
 def flags(
     ctx: typer.Context,
-    kind: Annotated[list[Kind] | None, typer.Option("--kind", help="Only findings of this kind (repeatable).")] = None,
-    model: Annotated[list[str] | None, typer.Option("--model", help="Only findings about this model (repeatable).")] = None,
-    as_of: AsOfOpt = None,
-    drift_k: Annotated[float, typer.Option("--drift-k", help="CUSUM allowance k, in reference sd.")] = _D.drift_k,
-    drift_h: Annotated[float, typer.Option("--drift-h", help="CUSUM decision interval h, in reference sd.")] = _D.drift_h,
-    reference: Annotated[int | None, typer.Option("--reference", help="Reference-window cells (default: two seasons, at least 8).")] = None,
-    ts_window: Annotated[int | None, typer.Option("--ts-window", help="Tracking-signal window (default: one season, at least 6).")] = None,
-    trigg_alpha: Annotated[float, typer.Option("--trigg-alpha", help="Smoothing constant of Trigg's signal.")] = _D.trigg_alpha,
-    fdr: Annotated[float, typer.Option("--fdr", help="False-finding level across all calibration tests.")] = _D.fdr,
-    correction: Annotated[CorrectionOpt, typer.Option("--correction", help="bh (Benjamini-Hochberg) or holm.")] = CorrectionOpt.bh,
-    min_cells: Annotated[int, typer.Option("--min-cells", help="Fewer cells: not enough data to judge calibration.")] = _D.min_cells,
-    series_calibration: Annotated[bool, typer.Option("--series-calibration/--no-series-calibration", help="Also test each series' intervals.")] = _D.series_calibration,
-    buckets: Annotated[str, typer.Option("--buckets", help="Lower edges of the horizon buckets, comma list.")] = ",".join(map(str, _D.buckets)),
-    zone_watch: Annotated[float, typer.Option("--zone-watch", help="Cumulative binomial probability that starts the watch zone.")] = _D.zone_watch,
-    zone_out: Annotated[float, typer.Option("--zone-out", help="Cumulative binomial probability that starts out of tolerance.")] = _D.zone_out,
-    benchmark: Annotated[str | None, typer.Option("--benchmark", help="Benchmark model for value added (default: one named like ref-snaive).")] = None,
-    recent: Annotated[int, typer.Option("--recent", help="Evaluation periods in the recent window (value added).")] = _D.recent,
-    value_alpha: Annotated[float, typer.Option("--value-alpha", help="Significance for series-level value findings.")] = _D.value_alpha,
-    seasons: Annotated[int, typer.Option("--seasons", help="Report origins with less history than this many seasons.")] = _D.seasons,
-    adi: Annotated[float, typer.Option("--adi", help="Average demand interval from which demand is intermittent.")] = _D.adi,
+    kind: Annotated[list[Kind] | None, typer.Option("--kind", metavar="KIND", help="Only findings of this kind: drift, calibration, value or data (repeatable).")] = None,
+    severity: Annotated[list[SeverityOpt] | None, typer.Option("--severity", metavar="SEVERITY", help="Only findings of this severity: alert, watch or note (repeatable).")] = None,
+    model: ModelOpt = None,
+    series: SeriesOpt = None,
+    horizon: HorizonOpt = None,
+    since: SinceOpt = None,
+    until: UntilOpt = None,
+    where: WhereOpt = None,
     by: Annotated[str | None, typer.Option("--by", metavar="ATTR", help="Count findings per value of this series attribute and kind.")] = None,
+    long: Annotated[bool, typer.Option("--long", help="After the table, each finding's evidence as a sentence.")] = False,
     include_excluded: IncludeExcludedOpt = False,
     fail_on: FailOnOpt = None,
+    as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
+    thresholds: dict | None = None,
 ) -> None:
     """Findings: drifting models, miscalibrated intervals, no value added, data problems."""
     if fail_on is not None and by is not None:
         raise typer.BadParameter("--fail-on needs the findings themselves; leave out --by", param_hint="--fail-on")
     check_fail_on(fail_on)
-    parts = split([buckets])
-    if not all(p.isdigit() for p in parts):
-        raise typer.BadParameter(f"{buckets!r} is not a comma list of horizons such as 1,2,4,7,13", param_hint="--buckets")
-    edges = [int(p) for p in parts]
+    chosen = dict(selection(model=model, series=series, horizon=horizon, since=since, until=until, where=where),
+                  kinds=[k.value for k in kind or []], severities=[s.value for s in severity or []],
+                  include_excluded=include_excluded)
     with open_ledger(ctx) as book, busy("Checking"):
-        call = book.flags if by is None else functools.partial(book.flag_counts, by)
-        frame = call(kinds=[k.value for k in kind or []], models=model or (), as_of=as_of,
-                           drift_k=drift_k, drift_h=drift_h, reference=reference, ts_window=ts_window,
-                           trigg_alpha=trigg_alpha, fdr=fdr, correction=correction.value, min_cells=min_cells,
-                           series_calibration=series_calibration, buckets=tuple(edges), zone_watch=zone_watch,
-                           zone_out=zone_out, benchmark=benchmark, recent=recent, value_alpha=value_alpha,
-                           seasons=seasons, adi=adi, include_excluded=include_excluded)
+        if by is not None:
+            frame = book.flag_counts(by, as_of=as_of, **chosen, **thresholds)
+        else:
+            frame = book.flags(as_of=as_of, **chosen, **thresholds)
     if by is not None:
         emit(frame, fmt, title=f"Findings by {by} and kind")
         return
-    if fmt is Format.table:
-        if frame.empty:
-            notice("no findings")
-            return
-        table = frame[_FLAG_TABLE].copy()
-        table.insert(0, "#", range(1, len(frame) + 1))
-        emit(table, fmt, title="Findings (e = actual − forecast)")
-        for i, row in enumerate(frame.itertuples(index=False), start=1):
-            where = " ".join(x for x in (row.model, row.series) if x)
-            typer.echo(f"{i}. {row.kind} {where}: {row.evidence}")
-    else:
+    if fmt is not Format.table:
         emit(frame, fmt)
+    elif frame.empty:
+        notice("no findings in the selection")
+    else:
+        _print_findings(frame, fmt, long)
     gate(frame, fail_on)
+
+
+def _print_findings(frame, fmt: Format, long: bool) -> None:
+    say(finding_counts(frame))
+    table = frame[[c for c in _FLAG_TABLE if c in frame.columns]].copy()
+    table.insert(0, "#", range(1, len(frame) + 1))
+    emit(table, fmt, title="Findings (e = actual − forecast)")
+    if long:
+        for i, row in enumerate(frame.itertuples(index=False), start=1):
+            where_ = " ".join(x for x in (row.model, row.series) if x) or "(all series)"
+            say(f"{i}. {row.kind} {where_}: {row.evidence}")
 
 
 @app.command()
 def compare(
     ctx: typer.Context,
-    a: Annotated[str, typer.Argument(help="Model a: the incumbent or reference.")],
-    b: Annotated[str, typer.Argument(help="Model b: the challenger.")],
+    a: Annotated[str, typer.Argument(metavar="MODEL_A", help="Model a: the incumbent or reference.")],
+    b: Annotated[str, typer.Argument(metavar="MODEL_B", help="Model b: the challenger.")],
     horizon: HorizonOpt = None,
+    series: SeriesOpt = None,
+    since: SinceOpt = None,
+    until: UntilOpt = None,
+    where: WhereOpt = None,
     as_of: AsOfOpt = None,
     alpha: AlphaOpt = 0.05,
     fmt: FormatOpt = Format.table,
 ) -> None:
     """Compare two models per horizon on common cells: MAE, MASE, relative MAE, win share, DM-HLN."""
+    chosen = selection(series=series, horizon=horizon, since=since, until=until, where=where, with_models=False)
     with open_ledger(ctx) as book, busy("Comparing"):
-        frame = book.compare(a, b, horizons=horizon or (), as_of=as_of, alpha=alpha)
+        frame = book.compare(a, b, as_of=as_of, alpha=alpha, **chosen)
     verdict = frame.attrs.get("verdict", "")
     if fmt is Format.table:
         if not frame.empty:
             emit(frame, fmt, title=f"a = {a}, b = {b} (relative MAE = MAE_b / MAE_a; positive DM: b more accurate)")
-        typer.echo(f"Verdict: {verdict}")
+        say(f"Verdict: {verdict}")
         return
     emit(frame, fmt)
 
@@ -141,27 +137,43 @@ def compare(
 def standings(
     ctx: typer.Context,
     horizon: HorizonOpt = None,
-    model: Annotated[list[str] | None, typer.Option("--model", help="Only this model (repeatable).")] = None,
+    model: ModelOpt = None,
+    series: SeriesOpt = None,
+    since: SinceOpt = None,
+    until: UntilOpt = None,
+    where: WhereOpt = None,
+    periods: Annotated[bool, typer.Option("--periods", help="The per-period table (each period's MASE, rank, share of series won) instead of the per-model summary.")] = False,
+    recent: Annotated[int, typer.Option("--recent", metavar="N", min=1, help="Evaluation periods behind the summary's recent MASE.")] = 12,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
 ) -> None:
-    """Per evaluation period: each model's MASE, rank and share of series won, on common cells."""
+    """Who ranks first how often: a per-model summary, or per evaluation period with --periods."""
+    chosen = selection(model=model, series=series, horizon=horizon, since=since, until=until, where=where)
     with open_ledger(ctx) as book, busy("Ranking"):
-        frame = book.standings(horizons=horizon or (), models=model or (), as_of=as_of)
+        frame = book.standings(as_of=as_of, **chosen) if periods else \
+            book.standings_summary(recent=recent, as_of=as_of, **chosen)
     if fmt is Format.table and frame.empty:
-        notice("no common scored cells with a scale: nothing to rank")
+        notice("no common scored cells with a scale in the selection: nothing to rank")
         return
-    emit(frame, fmt, title="Standings (rank 1 = lowest MASE)")
+    if periods:
+        emit(frame, fmt, title="Standings per period (rank 1 = lowest MASE)")
+        return
+    emit(frame, fmt, title=f"Standings: periods ranked first, median rank, MASE over the last {recent} "
+                           "periods (rank 1 = lowest MASE; --periods for each period)")
 
 
 @app.command()
 def advise(
     ctx: typer.Context,
-    incumbent: Annotated[str | None, typer.Option("--incumbent", help="The model in use (default: the stored incumbent).")] = None,
+    incumbent: Annotated[str | None, typer.Option("--incumbent", metavar="MODEL", help="The model in use (default: the stored incumbent).")] = None,
     save: Annotated[bool, typer.Option("--save", help="Store --incumbent in the ledger for later calls.")] = False,
-    challenger: Annotated[list[str] | None, typer.Option("--challenger", help="Only this challenger (repeatable; default all).")] = None,
-    window: Annotated[int, typer.Option("--window", help="Evaluation periods in the recent window.")] = 12,
-    horizon: Annotated[list[int] | None, typer.Option("--horizon", help="A horizon that matters (repeatable; default all).")] = None,
+    challenger: Annotated[list[str] | None, typer.Option("--challenger", metavar="MODEL", help="Only this challenger (repeatable; default all).")] = None,
+    window: Annotated[int, typer.Option("--window", metavar="N", help="Evaluation periods in the recent window.")] = 12,
+    horizon: Annotated[list[int] | None, typer.Option("--horizon", metavar="N", help="A horizon that matters (repeatable; default all).")] = None,
+    series: SeriesOpt = None,
+    since: SinceOpt = None,
+    until: UntilOpt = None,
+    where: WhereOpt = None,
     alpha: AlphaOpt = 0.05,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
@@ -173,16 +185,17 @@ def advise(
         with Ledger.open(ctx.obj["ledger"], create=False) as book:
             book.set_incumbent(incumbent)
         notice(f"incumbent set to {incumbent}")
+    chosen = selection(series=series, horizon=horizon, since=since, until=until, where=where, with_models=False)
     with open_ledger(ctx) as book, busy("Advising"):
-        frame = book.advise(incumbent, challengers=challenger or (), window=window,
-                            horizons=horizon or (), alpha=alpha, as_of=as_of)
+        frame = book.advise(incumbent, challengers=challenger or (), window=window, alpha=alpha, as_of=as_of,
+                            **chosen)
     if fmt is not Format.table:
         emit(frame, fmt)
         return
     if frame.empty:
-        notice("no challenger shares scored cells with the incumbent")
+        notice("no challenger shares scored cells with the incumbent in the selection")
         return
     emit(frame[["incumbent", "challenger", "recommend", "reason", "periods", "rel_mae", "series_won"]], fmt,
          title="Replacement advice (recent window; relative MAE = challenger / incumbent)")
     for line in frame["advice"]:
-        typer.echo(line)
+        say(line)

@@ -19,7 +19,7 @@ from rich.progress import (
     TimeElapsedColumn,
 )
 
-from .common import AsOfOpt, app
+from .common import AsOfOpt, app, say
 
 __all__ = ["report"]
 
@@ -29,12 +29,12 @@ def report(
     ctx: typer.Context,
     out_dir: Annotated[Path, typer.Argument(metavar="OUTDIR", help="Folder for the site (created if missing); index.html is its entry page.")],
     as_of: AsOfOpt = None,
-    since: Annotated[str | None, typer.Option("--since", help="First target period in the accuracy tables and charts.")] = None,
-    until: Annotated[str | None, typer.Option("--until", help="Last target period in the accuracy tables and charts.")] = None,
-    title: Annotated[str | None, typer.Option("--title", help="Title of the report.")] = None,
-    incumbent: Annotated[str | None, typer.Option("--incumbent", help="The model in use; enables replacement advice (default: the ledger's stored incumbent).")] = None,
-    benchmark: Annotated[str | None, typer.Option("--benchmark", help="Benchmark model for the value-added findings.")] = None,
-    horizon: Annotated[int, typer.Option("--horizon", min=1, help="Horizon of the headline sentences, standings and series charts.")] = 1,
+    since: Annotated[str | None, typer.Option("--since", metavar="PERIOD", help="First target period in the accuracy tables and charts.")] = None,
+    until: Annotated[str | None, typer.Option("--until", metavar="PERIOD", help="Last target period in the accuracy tables and charts.")] = None,
+    title: Annotated[str | None, typer.Option("--title", metavar="TEXT", help="Title of the report.")] = None,
+    incumbent: Annotated[str | None, typer.Option("--incumbent", metavar="MODEL", help="The model in use; enables replacement advice (default: the ledger's stored incumbent).")] = None,
+    benchmark: Annotated[str | None, typer.Option("--benchmark", metavar="MODEL", help="Benchmark model for the value-added findings.")] = None,
+    horizon: Annotated[int, typer.Option("--horizon", min=1, metavar="N", help="Horizon of the headline sentences, standings and series charts.")] = 1,
     group_by: Annotated[str | None, typer.Option("--group-by", metavar="ATTR", help="Add groups.html: accuracy (unweighted and volume-weighted), group totals, findings and series per value of this series attribute (e.g. region).")] = None,
 ) -> None:
     """Render the static HTML report (overview, findings, a page per model and per series, methods; with --group-by a groups page) into OUTDIR."""
@@ -52,4 +52,4 @@ def report(
         result = render_report(ctx.obj["ledger"], out_dir, as_of=as_of, since=since, until=until, title=title,
                                incumbent=incumbent, benchmark=benchmark, horizon=horizon, progress=progress,
                                group_by=group_by)
-    typer.echo(str(result.index))
+    say(str(result.index))

@@ -37,7 +37,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from ..stats import intervals as _calibration
+from ..stats import intervals
 from ..stats.intervals import IndependenceTest, ZoneResult, benjamini_hochberg, holm
 from .base import Finding, FlagOptions, about
 from ..wording import format_level, label, pval
@@ -47,9 +47,9 @@ __all__ = ["calibration_findings", "bucket_labels"]
 # The tests are pure functions of a few integers and levels, and thousands of per-series groups
 # share the same counts (n cells, x misses), so each distinct call is computed once; the
 # results are frozen dataclasses, safe to share.
-coverage_zone = functools.lru_cache(maxsize=65536)(_calibration.coverage_zone)
-kupiec_pof = functools.lru_cache(maxsize=65536)(_calibration.kupiec_pof)
-independence_from_counts = functools.lru_cache(maxsize=65536)(_calibration.independence_from_counts)
+coverage_zone = functools.lru_cache(maxsize=65536)(intervals.coverage_zone)
+kupiec_pof = functools.lru_cache(maxsize=65536)(intervals.kupiec_pof)
+independence_from_counts = functools.lru_cache(maxsize=65536)(intervals.independence_from_counts)
 
 
 def bucket_labels(horizons, edges) -> np.ndarray:

@@ -34,7 +34,7 @@ METHODS: tuple[str, ...] = get_args(Method)
 FillMethod = Literal["linear", "previous"]
 FILL_METHODS: tuple[str, ...] = get_args(FillMethod)
 
-METHODS_HELP = f"Comma list of reference methods: {', '.join(METHODS)} (runs are named ref-<method>)."
+METHODS_HELP = f"Comma list of reference methods: {', '.join(METHODS)} (runs are named ref-METHOD)."
 FILL_HELP = (f"Fill gaps in the history ({' or '.join(FILL_METHODS)}; recorded in the runs' note); "
              "default: skip gapped series-origins with a note.")
 

@@ -1,8 +1,30 @@
 """Scoring: join forecasts to actuals in DuckDB, per-cell errors and scales, grouped aggregates.
 
-All of it is set-based SQL with standard window functions and joins, so the same queries can
-later run on another SQL engine over Parquet exports. The definitions match
-:mod:`ledger.stats.metrics`, which the tests use as the oracle.
+All of it is set-based SQL, so the same queries can later run on another SQL engine over
+Parquet exports. The definitions match :mod:`ledger.stats.metrics`, which the tests use as the
+oracle.
+
+Standard SQL in these queries (and in the ``live_runs_sql`` / ``latest_actuals_sql`` of
+:mod:`ledger.store` and ``attributes_sql`` of :mod:`ledger.scoring.attributes` that they
+compose): ``WITH`` common table expressions, inner and left joins, ``UNION ALL``, ``GROUP BY``,
+``CASE``, ``abs``, ``sqrt``, ``avg`` / ``sum`` / ``count`` / ``max``, ``count(*) FILTER (WHERE …)``,
+the boolean literal ``TRUE``, ``row_number()`` and running ``sum`` / ``max`` over a named
+``WINDOW … (PARTITION BY … ORDER BY … ROWS UNBOUNDED PRECEDING)``, ``IN (…)`` lists.
+
+DuckDB dialect, each with a plain equivalent elsewhere:
+
+- ``$name`` query parameters (``$as_of``, ``$since``, ``$m0`` …): DuckDB's named-parameter
+  syntax; another engine binds them its own way (``?``, ``:name``) or gets literals.
+- ``greatest(x, 0)`` in the interval score: not in the standard, but in most engines (Spark,
+  PostgreSQL, MySQL); the standard form is ``CASE WHEN x > 0 THEN x ELSE 0 END``.
+- ``CREATE OR REPLACE TEMP TABLE _scored AS …`` and ``DROP TABLE IF EXISTS``: the grouped
+  scores materialise the selected cells once per call (standard: ``CREATE LOCAL TEMPORARY
+  TABLE … AS (…) WITH DATA``; on Spark a temporary view).
+
+Not SQL at all: the aggregates run on one DuckDB thread over cells sorted by their key, so that
+their floats are the same on every run (:mod:`ledger.scoring.repeatable`); this leans on DuckDB
+keeping the rows of ``_scored`` in the order of its ``ORDER BY`` (insertion order is preserved). The probabilistic
+scores have their own module and docstring (:mod:`ledger.scoring.quantile_sql`).
 
 Scale of a cell (Hyndman & Koehler 2006): q = mean |y_t − y_{t−m}| over the pairs of the series'
 actuals with t at or before the cell's origin (q2 likewise with squares). Pairs are formed by
@@ -29,6 +51,7 @@ from ..periods import index_start, parse_label, period_index, period_label
 from .attributes import attributes_sql, check_attribute, known_attributes
 from .events import excluded_spans_sql
 from .quantile_sql import add_probabilistic_columns, quantile_detail_sql, wis_group_sql
+from .repeatable import one_thread
 from ..store import Store, latest_actuals_sql, live_runs_sql
 from ..wording import format_level
 
@@ -41,7 +64,8 @@ POINT_COLUMNS = ("n", "mae", "rmse", "mape", "smape", "wape", "mase", "rmsse", "
 
 @dataclasses.dataclass(frozen=True)
 class Selection:
-    """Which cells to score: filters on model, series, horizon and target period, and an as-of."""
+    """Which cells to score: filters on model, series, horizon, target period and series
+    attributes (``where``: (attribute, value) pairs in force at the as-of), and an as-of."""
 
     as_of: dt.datetime
     models: Sequence[str] = ()
@@ -49,6 +73,7 @@ class Selection:
     horizons: Sequence[int] = ()
     since: str | None = None
     until: str | None = None
+    where: Sequence[tuple[str, str]] = ()
     include_excluded: bool = False
 
     def params(self) -> dict:
@@ -105,6 +130,10 @@ def _parts(sel: Selection) -> tuple[str, dict]:
         where += " AND f.period >= $since"
     if sel.until:
         where += " AND f.period < $until"
+    for j, (name, value) in enumerate(sel.where):
+        params.update({f"wn{j}": name, f"wv{j}": value})
+        where += (f" AND f.series IN (SELECT series FROM ({attributes_sql()}) "
+                  f"WHERE name = $wn{j} AND value = $wv{j})")
     return f"""
     fc AS (
         SELECT f.run_id, l.model, l.frequency, l.origin, l.origin_index, f.series, f.period,
@@ -180,7 +209,7 @@ def scale_sql(sel: Selection) -> tuple[str, dict]:
 def score_cells(store: Store, sel: Selection) -> pd.DataFrame:
     """Every scored cell with its per-cell errors (for findings and reports)."""
     sql, params = cells_sql(sel)
-    return store.con.execute(f"SELECT * FROM ({sql}) ORDER BY model, series, origin_index, period_index",
+    return store.con.execute(f"SELECT * FROM ({sql}) c ORDER BY model, series, origin_index, period_index",
                              params).df()
 
 
@@ -230,8 +259,11 @@ _POINT_AGG = """
     count(*) FILTER (WHERE q IS NULL OR q2 IS NULL) AS n_unscaled
 """
 
+# n: the cells that carry level L's bounds (a model may send bounds for some series only), so
+# coverage_L and width_L state how many cells they are over (column n_L).
 _LEVEL_AGG = """
     avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN 1.0 ELSE 0.0 END) AS coverage,
+    count(*) AS n,
     avg(b.upper - b.lower) AS width,
     avg((b.upper - b.lower)
         + (2 / (1 - b.level / 100)) * greatest(b.lower - c.actual, 0)
@@ -275,8 +307,10 @@ def _materialise(store: Store, sel: Selection, attrs: list[str], where: list[tup
         filters.append(f"a{attrs.index(name)}.value = $where{j}")
     cols = "".join(f", a{i}.value AS g__{name}" for i, name in enumerate(attrs))
     cond = f"WHERE {' AND '.join(filters)}" if filters else ""
+    # sorted by the cell's key, so that the aggregates add each group's values in one order
     store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT c.*{cols} FROM ({sql}) c "
-                      f"{' '.join(joins)} {cond}", params)
+                      f"{' '.join(joins)} {cond} ORDER BY c.model, c.series, c.origin_index, c.period_index",
+                      params)
 
 
 def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"), *,
@@ -295,32 +329,46 @@ def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"
     con = store.con
     _materialise(store, sel, attrs, where)
     try:
-        key_sql = {k: _KEY_SQL.get(k, f"c.g__{k}") for k in keys}
-        group = ", ".join(key_sql[k] for k in keys)
-        select_keys = ", ".join(f"{key_sql[k]} AS {k}" for k in keys)
-        gb = f"GROUP BY {group}" if keys else ""
-        excluded = con.execute(
-            f"SELECT {select_keys + ',' if keys else ''} count(*) AS n_excluded FROM _scored c "
-            f"WHERE excluded {gb}").df()
+        excluded = _count_excluded(con, keys)
         if not sel.include_excluded:
             con.execute("DELETE FROM _scored WHERE excluded")
-        point = con.execute(
-            f"SELECT {select_keys + ',' if keys else ''} {_POINT_AGG} FROM _scored c {gb}").df()
+        with one_thread(con):  # the same sums, to the last bit, on every run
+            point, levels, pinball, wis, detail = _aggregates(con, keys, quantile_detail)
         point = _with_excluded(point, excluded if not sel.include_excluded else excluded.iloc[0:0], keys)
-        levels = con.execute(
-            f"SELECT {select_keys + ',' if keys else ''} b.level, {_LEVEL_AGG} FROM _scored c "
-            f"JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index "
-            f"GROUP BY {group + ',' if keys else ''} b.level").df()
-        pinball = con.execute(
-            f"SELECT {select_keys + ',' if keys else ''} {_PINBALL_AGG} FROM _scored c "
-            f"JOIN quantiles qt ON qt.run_id = c.run_id AND qt.series = c.series AND qt.period_index = c.period_index "
-            f"{gb}").df()
-        wis = con.execute(wis_group_sql("_scored", select_keys, group)).df()
-        detail = con.execute(quantile_detail_sql("_scored", select_keys, group)).df() if quantile_detail else None
         freqs = [r[0] for r in con.execute("SELECT DISTINCT frequency FROM _scored").fetchall()]
     finally:
         con.execute("DROP TABLE IF EXISTS _scored")
     return _assemble(point, levels, pinball, keys, freqs, (wis, detail))
+
+
+def _aggregates(con, keys: list[str], quantile_detail: bool) -> tuple:
+    """Point, level, pinball, WIS (and quantile detail) aggregates of _scored per group."""
+    key_sql = {k: _KEY_SQL.get(k, f"c.g__{k}") for k in keys}
+    group = ", ".join(key_sql[k] for k in keys)
+    select_keys = ", ".join(f"{key_sql[k]} AS {k}" for k in keys)
+    gb = f"GROUP BY {group}" if keys else ""
+    point = con.execute(
+        f"SELECT {select_keys + ',' if keys else ''} {_POINT_AGG} FROM _scored c {gb}").df()
+    levels = con.execute(
+        f"SELECT {select_keys + ',' if keys else ''} b.level, {_LEVEL_AGG} FROM _scored c "
+        f"JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index "
+        f"GROUP BY {group + ',' if keys else ''} b.level").df()
+    pinball = con.execute(
+        f"SELECT {select_keys + ',' if keys else ''} {_PINBALL_AGG} FROM _scored c "
+        f"JOIN quantiles qt ON qt.run_id = c.run_id AND qt.series = c.series AND qt.period_index = c.period_index "
+        f"{gb}").df()
+    wis = con.execute(wis_group_sql("_scored", select_keys, group)).df()
+    detail = con.execute(quantile_detail_sql("_scored", select_keys, group)).df() if quantile_detail else None
+    return point, levels, pinball, wis, detail
+
+
+def _count_excluded(con, keys: list[str]) -> pd.DataFrame:
+    """Excluded cells of _scored per group (before they are deleted from it)."""
+    key_sql = {k: _KEY_SQL.get(k, f"c.g__{k}") for k in keys}
+    select_keys = ", ".join(f"{key_sql[k]} AS {k}" for k in keys)
+    gb = f"GROUP BY {', '.join(key_sql.values())}" if keys else ""
+    return con.execute(f"SELECT {select_keys + ',' if keys else ''} count(*) AS n_excluded FROM _scored c "
+                       f"WHERE excluded {gb}").df()
 
 
 def _with_excluded(point: pd.DataFrame, excluded: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
@@ -342,8 +390,9 @@ def _assemble(point: pd.DataFrame, levels: pd.DataFrame, pinball: pd.DataFrame,
     for level in sorted(levels["level"].unique()) if len(levels) else []:
         part = levels[levels["level"] == level].drop(columns="level")
         name = format_level(float(level))
-        part = part.rename(columns={c: f"{c}_{name}" for c in ("coverage", "width", "interval_score", "msis")})
+        part = part.rename(columns={c: f"{c}_{name}" for c in ("coverage", "n", "width", "interval_score", "msis")})
         out = out.merge(part, on=keys, how="left") if keys else pd.concat([out, part.reset_index(drop=True)], axis=1)
+        out[f"n_{name}"] = out[f"n_{name}"].fillna(0).astype("int64")
     if len(pinball) and pinball["pinball"].notna().any():
         out = out.merge(pinball, on=keys, how="left") if keys else pd.concat([out, pinball], axis=1)
     if probabilistic is not None:

@@ -17,28 +17,44 @@ scored on the same cells and against the same summed actuals, as ``forecast_of``
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
 import numpy as np
 import pandas as pd
 
 from .attributes import TOTAL_OF, check_attribute, series_attributes
+
+from ..errors import UnknownName
+from ..periods import index_start, period_label
 from .cells import POINT_COLUMNS, Selection, forecasts_sql, score_cells
+from .selection import selected_series
 from ..store import Store, latest_actuals_sql
 
-__all__ = ["INTERVAL_NOTE", "totals"]
+__all__ = ["INTERVAL_NOTE", "TOTAL_KEYS", "totals"]
+
+TOTAL_KEYS = ("model", "horizon", "origin", "period")
 
 INTERVAL_NOTE = ("intervals are not scored for totals: the interval of a sum is not the sum of the "
                  "members' intervals")
 
 
-def _members(store: Store, sel: Selection, attr: str) -> tuple[pd.DataFrame, pd.DataFrame]:
+def _members(store: Store, sel: Selection, attr: str, extra: Sequence[str] = ()) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Member series and their group (a tuple of values when ``extra`` attributes split it further),
+    and the series declared as direct forecasts of a group's total (only for a single attribute)."""
     attrs = series_attributes(store, sel.as_of)
     direct = pd.DataFrame(columns=["series", "group"])
     if TOTAL_OF in attrs.columns:
         decl = attrs[attrs[TOTAL_OF].notna()]
         parts = decl[TOTAL_OF].str.partition("=")
-        direct = pd.DataFrame({"series": decl["series"], "group": parts[2]})[parts[0] == attr]
+        if not extra:
+            direct = pd.DataFrame({"series": decl["series"], "group": parts[2]})[parts[0] == attr]
         attrs = attrs[attrs[TOTAL_OF].isna()]
-    members = attrs.loc[attrs[attr].notna(), ["series", attr]].rename(columns={attr: "group"})
+    if sel.series or sel.where:
+        attrs = attrs[attrs["series"].isin(selected_series(store, sel))]
+    names = [attr, *extra]
+    attrs = attrs[attrs[names].notna().all(axis=1)]
+    group = attrs[attr] if not extra else pd.Series(list(zip(*(attrs[n] for n in names))), index=attrs.index)
+    members = pd.DataFrame({"series": attrs["series"], "group": group})
     return members, direct
 
 
@@ -83,30 +99,71 @@ def _metrics(part: pd.DataFrame) -> dict:
     }
 
 
-def totals(store: Store, sel: Selection, attr: str) -> pd.DataFrame:
-    """One row per group, model and kind of forecast (sum of members / direct); see module docstring."""
+def totals(store: Store, sel: Selection, attr: str, *, by: Sequence[str] = ("model",)) -> pd.DataFrame:
+    """One row per group, ``by`` keys and kind of forecast (sum of members / direct); see module docstring.
+
+    ``by``: model, horizon, origin, period and other attributes (the totals of the members
+    sharing both values); ``series`` is refused, since a total has no series. Columns: the
+    attribute, the other attributes, the built-in keys in the order given, ``forecast_of``,
+    the point metrics and ``n_left_out`` (target periods of that row left out because a member
+    lacked a forecast or an actual).
+    """
     check_attribute(store, sel.as_of, attr, option="--totals")
-    members, direct = _members(store, sel, attr)
+    keys, extra = _total_keys(store, sel, attr, by)
+    members, direct = _members(store, sel, attr, extra)
     cells = score_cells(store, sel)
-    cols = [attr, "model", "forecast_of", *POINT_COLUMNS, "n_left_out"]
+    cols = [attr, *extra, *keys, "forecast_of", *POINT_COLUMNS, "n_left_out"]
     if cells.empty or members.empty:
         return pd.DataFrame(columns=cols)
     m = _season(store, members)
     size = members.groupby("group")["series"].nunique()
     mine = cells.merge(members, on="series")
-    keys = ["group", "model", "origin_index", "period_index"]
-    summed = mine.groupby(keys).agg(point=("point", "sum"), actual=("actual", "sum"), k=("series", "nunique")).reset_index()
+    cell_keys = ["group", "model", "origin_index", "period_index"]
+    summed = mine.groupby(cell_keys).agg(point=("point", "sum"), actual=("actual", "sum"),
+                                         k=("series", "nunique")).reset_index()
     complete = summed["k"].to_numpy() == summed["group"].map(size).to_numpy()
-    left_out = summed[~complete].groupby(["group", "model"]).size()
-    summed = summed[complete]
-    rows = _with_direct(summed, _direct_forecasts(store, sel, direct), direct)
+    freq = _frequency(store, members)
+    row_keys = ["group", *keys]
+    left_out = _keyed(summed[~complete], freq).groupby(row_keys).size() if (~complete).any() else pd.Series(dtype=int)
+    rows = _with_direct(summed[complete], _direct_forecasts(store, sel, direct), direct)
     scale = _scale(_history(store, sel, members), m, rows[["group", "origin_index"]].drop_duplicates())
-    rows = rows.merge(scale, on=["group", "origin_index"], how="left")
+    rows = _keyed(rows.merge(scale, on=["group", "origin_index"], how="left"), freq)
     out = []
-    for (group, model, kind), part in rows.groupby(["group", "model", "forecast_of"], sort=True):
-        out.append({attr: group, "model": model, "forecast_of": kind, **_metrics(part),
-                    "n_left_out": int(left_out.get((group, model), 0))})
+    for key, part in rows.groupby([*row_keys, "forecast_of"], sort=True):
+        group, rest, kind = key[0], key[1:-1], key[-1]
+        names = group if isinstance(group, tuple) else (group,)
+        lost = left_out.get((group, *rest) if rest else group, 0) if len(left_out) else 0
+        out.append({**dict(zip([attr, *extra], names)), **dict(zip(keys, rest)), "forecast_of": kind,
+                    **_metrics(part), "n_left_out": int(lost)})
     return pd.DataFrame(out, columns=cols)
+
+
+def _total_keys(store: Store, sel: Selection, attr: str, by: Sequence[str]) -> tuple[list[str], list[str]]:
+    """The built-in keys and the other attributes of ``by`` (checked), without ``attr`` itself."""
+    wanted = [k.strip().lower() for k in by if k.strip() and k.strip().lower() != attr]
+    if "series" in wanted:
+        raise UnknownName(f"--totals {attr} --by series: a total has no series (it sums the series of each "
+                          f"{attr}); group totals by model, horizon, origin, period or another attribute")
+    if len(set(wanted)) != len(wanted):
+        raise UnknownName(f"--by names a key twice: {', '.join(by)}")
+    extra = [check_attribute(store, sel.as_of, k, option="--by") for k in wanted if k not in TOTAL_KEYS]
+    return [k for k in wanted if k in TOTAL_KEYS], extra
+
+
+def _frequency(store: Store, members: pd.DataFrame) -> str | None:
+    rows = store.con.execute("SELECT DISTINCT frequency FROM series WHERE list_contains($keys, series)",
+                             {"keys": members["series"].tolist()}).fetchall()
+    return rows[0][0] if len(rows) == 1 else None
+
+
+def _keyed(rows: pd.DataFrame, freq: str | None) -> pd.DataFrame:
+    """``rows`` with horizon, origin and period columns (labels of the members' frequency)."""
+    def labels(index: pd.Series) -> list[str]:
+        if freq is None:
+            return [str(i) for i in index]
+        return [period_label(index_start(int(i), freq), freq) for i in index]
+    return rows.assign(horizon=(rows["period_index"] - rows["origin_index"]).astype("int64"),
+                       origin=labels(rows["origin_index"]), period=labels(rows["period_index"]))
 
 
 def _season(store: Store, members: pd.DataFrame) -> int:

@@ -23,6 +23,7 @@ import pandas as pd
 from ..errors import UnknownName
 from .attributes import check_attribute, series_attributes
 from .cells import Selection, cells_sql, scores
+from .repeatable import one_thread
 from ..store import Store, latest_actuals_sql
 
 __all__ = ["WEIGHTED", "volume_weights", "weighted_scores"]
@@ -33,7 +34,8 @@ WEIGHTED = {"mape": "wmape", "bias_pct": "wbias_pct", "mase": "wmase", "rmsse": 
 def volume_weights(store: Store, sel: Selection) -> pd.DataFrame:
     """Per series: first scored target period index, season length, volume (see module docstring)."""
     sql, params = cells_sql(sel)
-    return store.con.execute(f"""
+    with one_thread(store.con):  # Σ|actual| to the same last bit on every run
+        return store.con.execute(f"""
         WITH first AS (SELECT series, min(period_index) AS first_index FROM ({sql}) c GROUP BY series),
         act AS ({latest_actuals_sql()})
         SELECT f.series, f.first_index, s.season_length,

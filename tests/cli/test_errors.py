@@ -107,7 +107,7 @@ def test_bare_dates_of_a_known_series_use_its_frequency(tmp_path, runner, base):
     f = write(tmp_path / "d.csv", "series,period,forecast\nA,2026-02-28,1\n")
     result = runner.invoke(app, ["--ledger", str(base), "snapshot", str(f), "--model", "m2", "--origin", "2025-12-31"])
     assert result.exit_code == 0, result.output
-    assert "m2 at 2025-12: 1 cells recorded" in result.stdout
+    assert "m2 at 2025-12: 1 cell recorded" in result.stdout
 
 
 def test_unknown_freq_value(tmp_path, runner, base):

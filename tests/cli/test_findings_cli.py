@@ -53,7 +53,11 @@ def test_flags_filters_json_and_thresholds(runner, path):
 def test_flags_table_and_errors(runner, path):
     table = _run(runner, path, "flags", "--kind", "value")
     assert table.exit_code == 0
-    assert "1. value inc: no value added over ref-snaive in the last 12 evaluation periods" in table.stdout
+    n = table.stdout.count("no value added")
+    assert table.stdout.splitlines()[0] == f"{n} findings: {n} alert; {n} value"   # the summary comes first
+    assert "1. value inc:" not in table.stdout                                   # sentences only with --long
+    long = _run(runner, path, "flags", "--kind", "value", "--long")
+    assert "1. value inc: no value added over ref-snaive in the last 12 evaluation periods" in long.stdout
     unknown = _run(runner, path, "flags", "--model", "zzz")
     assert unknown.exit_code == 1
     assert unknown.stderr.strip().splitlines() == ["Error: unknown model 'zzz'; known models: chal, inc, ref-snaive"]
@@ -79,7 +83,7 @@ def test_compare_csv_and_table(runner, path):
 
 
 def test_standings_csv(runner, path):
-    result = _run(runner, path, "standings", "--horizon", "1", "--format", "csv")
+    result = _run(runner, path, "standings", "--horizon", "1", "--periods", "--format", "csv")
     assert result.exit_code == 0, result.output
     frame = pd.read_csv(io.StringIO(result.stdout))
     assert list(frame.columns) == ["period", "model", "rank", "mase", "series_won", "n", "n_series", "n_models"]

@@ -4,6 +4,8 @@ report lists them. The scenario and its planted problems are described in demo_h
 
 from __future__ import annotations
 
+import shlex
+
 import html
 import re
 
@@ -28,11 +30,27 @@ def test_summary_printed(demo):
     out, result, _ = demo
     lines = summary_lines(result)
     assert lines[0].startswith("Replayed Fernhollow Garden Supply (invented): 185 runs (39,960 forecasts), 1,905 actuals, "
-                               "1 revision(s), 1 superseded run(s)")
+                               "1 revision, 1 superseded run")
     assert lines[1].startswith("Findings: ") and "drift" in lines[1] and "calibration" in lines[1]
     assert lines[2] == "Lowest MASE by horizon (an estimate from past errors, not a promise):"
-    assert len(lines) == 3 + 12 + 1
+    advice = [line for line in lines if line.startswith("Advice: ")]
+    assert len(advice) == 3 and any("incumbent-hw" in a for a in advice)       # one per challenger
+    top = lines.index("Top findings:")
+    assert [line[:5] for line in lines[top + 1:top + 4]] == ["  1. ", "  2. ", "  3. "]
+    tries = lines[lines.index("Try next:") + 1:-1]
+    ledger = f"--ledger {result.replay.ledger_path}"
+    assert len(tries) == 3 and all(t.startswith(f"  backsight {ledger} ") for t in tries)
+    assert len(lines) == 3 + 12 + 3 + 4 + 4 + 1
     assert lines[-1] == f"Report: {(out / 'report' / 'index.html').resolve()}"
+
+
+def test_the_commands_to_try_next_run(demo, runner):
+    _, result, _ = demo
+    lines = summary_lines(result)
+    for line in lines[lines.index("Try next:") + 1:-1]:
+        args = shlex.split(line)[1:]
+        ran = runner.invoke(app, args)
+        assert ran.exit_code == 0, (line, ran.output)
 
 
 def test_demo_command_is_registered(runner):

@@ -68,9 +68,9 @@ def test_holdout_records_ref_runs_that_scores_use(runner, ledger_path, tmp_path)
                      "--holdout", 3, "--horizon", 3, "--jobs", 1)
     assert result.exit_code == 0, result.output
     assert result.stdout == ("actuals: 94 new, 0 revised, 0 unchanged\n"
-                             "ref-drift: 2 run(s) recorded, 0 unchanged\n"
-                             "ref-naive: 2 run(s) recorded, 0 unchanged\n"
-                             "4 run(s) recorded (12 cells), 0 already in the ledger; horizon 3\n")
+                             "ref-drift: 2 runs recorded, 0 unchanged\n"
+                             "ref-naive: 2 runs recorded, 0 unchanged\n"
+                             "4 runs recorded (12 cells), 0 already in the ledger; horizon 3\n")
     with Ledger.open(ledger_path, create=False) as book:
         runs = book.runs()
         # One origin per series, 3 periods before its own last actual (A: 2023-12, C: 2023-10).
@@ -109,9 +109,9 @@ def test_rerunning_the_same_backtest_is_a_noop(runner, ledger_path, tmp_path):
     again = _invoke(runner, ledger_path, path, *args)
     assert again.exit_code == 0, again.output
     assert again.stdout.splitlines() == ["actuals: 0 new, 0 revised, 40 unchanged",
-                                         "ref-naive: 0 run(s) recorded, 3 unchanged",
-                                         "ref-ses: 0 run(s) recorded, 3 unchanged",
-                                         "0 run(s) recorded (0 cells), 6 already in the ledger; horizon 12"]
+                                         "ref-naive: 0 runs recorded, 3 unchanged",
+                                         "ref-ses: 0 runs recorded, 3 unchanged",
+                                         "0 runs recorded (0 cells), 6 already in the ledger; horizon 12"]
     assert table_hashes(ledger_path) == before
 
 

@@ -405,14 +405,14 @@ def test_cli_report_refuses_an_unknown_incumbent(runner, tiny, tmp_path):
 
 def test_reused_series_canvas_draws_like_a_fresh_one(site, ledger_file, pages):
     """Series charts reuse one figure; a chart drawn after others equals one from a fresh figure."""
-    from reports import charts
+    from reports.series_chart import clear_canvases
 
     with Ledger.open(ledger_file, create=False, read_only=True) as book:
         data = load(book, as_of=parse_as_of(AS_OF), since=None, until=None, horizon=1,
                     incumbent=INCUMBENT, benchmark="snaive")
     ctx = build_context(data, "Invented review <i>Q4</i>")
     inputs = {i.key: i for i in series_inputs(data, ctx)}
-    charts._CANVASES.clear()
+    clear_canvases()
     fresh = build_series(inputs["east/pots"]).chart.svg          # first chart on a new canvas
     assert fresh in _series_page(pages, "east/pots")              # the site drew it after other series
     build_series(inputs["North/Hoses"])

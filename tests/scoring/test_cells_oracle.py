@@ -123,6 +123,7 @@ def oracle(cells, by):
         row["n_excluded"] = 0   # no events in these ledgers (tests/scoring/test_events.py has them)
         for lv in (80, 95):
             hit = [c for c in g if not pd.isna(c["row"].get(f"lower_{lv}", np.nan))]
+            row[f"n_{lv}"] = len(hit)      # cells carrying level lv's bounds
             if not hit:
                 continue
             a = 1 - lv / 100
@@ -226,8 +227,8 @@ def test_column_order(ledger_and_truth):
         got = book.scores(by=["model", "horizon"])
     assert list(got.columns) == [
         "model", "horizon", "n", "mae", "rmse", "mape", "smape", "wape", "mase", "rmsse", "bias", "bias_pct",
-        "coverage_80", "width_80", "interval_score_80", "msis_80",
-        "coverage_95", "width_95", "interval_score_95", "msis_95", "pinball",
+        "coverage_80", "n_80", "width_80", "interval_score_80", "msis_80",
+        "coverage_95", "n_95", "width_95", "interval_score_95", "msis_95", "pinball",
         "wis", "wis_dispersion", "wis_overprediction", "wis_underprediction", "swis", "crps_q",
         "n_zero_actual", "n_unscaled", "n_excluded"]
 

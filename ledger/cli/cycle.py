@@ -15,6 +15,7 @@ import pandas as pd
 import typer
 
 from ..cycle.gate import GATE_EXIT, GATE_LEVELS, at_or_above
+from .filters import ModelOpt, SeriesOpt, SinceOpt, UntilOpt
 from .common import AsOfOpt, Format, FormatOpt, IncludeExcludedOpt, app, busy, emit, notice, open_ledger
 
 __all__ = ["review", "changes", "events", "stability", "FailOnOpt", "check_fail_on", "gate"]
@@ -45,10 +46,10 @@ def gate(findings: pd.DataFrame, fail_on: str | None) -> None:
 @app.command()
 def review(
     ctx: typer.Context,
-    inbox: Annotated[Path, typer.Argument(help="Inbox folder: actuals files anywhere, forecast files as MODEL/ORIGIN.csv (or with model and origin columns).")],
+    inbox: Annotated[Path, typer.Argument(metavar="INBOX", help="Inbox folder: actuals files anywhere, forecast files as MODEL/ORIGIN.csv (or with model and origin columns).")],
     out: Annotated[Path, typer.Option("--out", metavar="REPORT_DIR", help="Folder for the report of this review.")],
-    incumbent: Annotated[str | None, typer.Option("--incumbent", help="The model in use, for the report's replacement advice.")] = None,
-    benchmark: Annotated[str | None, typer.Option("--benchmark", help="Benchmark model for the value-added findings.")] = None,
+    incumbent: Annotated[str | None, typer.Option("--incumbent", metavar="MODEL", help="The model in use, for the report's replacement advice.")] = None,
+    benchmark: Annotated[str | None, typer.Option("--benchmark", metavar="MODEL", help="Benchmark model for the value-added findings.")] = None,
     include_excluded: IncludeExcludedOpt = False,
     fail_on: FailOnOpt = None,
     fmt: FormatOpt = Format.table,
@@ -81,7 +82,7 @@ def review(
 def changes(
     ctx: typer.Context,
     since_review: Annotated[int | None, typer.Option("--since-review", metavar="N", help="Compare the latest review with review N (default: the one before it).")] = None,
-    mase_change: Annotated[float | None, typer.Option("--mase-change", help="List a model when its recent MASE moved by more than this (default 0.1).")] = None,
+    mase_change: Annotated[float | None, typer.Option("--mase-change", metavar="X", help="List a model when its recent MASE moved by more than this (default 0.1).")] = None,
     models: Annotated[bool, typer.Option("--models", help="With --format csv: the models' MASE moves instead of the findings.")] = False,
     fmt: FormatOpt = Format.table,
 ) -> None:
@@ -111,7 +112,7 @@ def changes(
 @app.command()
 def events(
     ctx: typer.Context,
-    file: Annotated[Path | None, typer.Argument(help="CSV or Parquet: series (a key, * or ATTR=VALUE), first, last, label, exclude (yes/no). Without it: list the events in force.")] = None,
+    file: Annotated[Path | None, typer.Argument(metavar="FILE", help="CSV or Parquet: series (a key, * or ATTR=VALUE), first, last, label, exclude (yes/no). Without it: list the events in force.")] = None,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
 ) -> None:
@@ -132,11 +133,11 @@ def events(
 @app.command()
 def stability(
     ctx: typer.Context,
-    by: Annotated[str, typer.Option("--by", help="Comma list of series, model, horizon (the later run's) or attribute names.")] = "series,model",
-    model: Annotated[list[str] | None, typer.Option("--model", help="Only this model (repeatable).")] = None,
-    series: Annotated[list[str] | None, typer.Option("--series", help="Only this series (repeatable).")] = None,
-    since: Annotated[str | None, typer.Option("--since", help="First target period.")] = None,
-    until: Annotated[str | None, typer.Option("--until", help="Last target period.")] = None,
+    by: Annotated[str, typer.Option("--by", metavar="KEYS", help="Comma list of series, model, horizon (the later run's) or attribute names.")] = "series,model",
+    model: ModelOpt = None,
+    series: SeriesOpt = None,
+    since: SinceOpt = None,
+    until: UntilOpt = None,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
 ) -> None:

@@ -1,8 +1,14 @@
 """Every error Backsight raises on purpose derives from :class:`LedgerError`.
 
 The command line catches ``LedgerError`` in one place, prints ``Error: <message>`` on stderr and
-exits with code 1. Library code never prints and never exits.
+exits with code 1. Library code never prints and never exits. Errors of the operating system
+(no space, permission, not a directory, …), raised by Python or by DuckDB, are turned into such
+a sentence by :func:`describe_os_error`, the one place that words them.
 """
+
+import errno
+import os
+import re
 
 __all__ = [
     "LedgerError",
@@ -18,6 +24,8 @@ __all__ = [
     "GapInHistory",
     "MethodNotApplicable",
     "ReviewRefused",
+    "PeriodOutOfRange",
+    "describe_os_error",
 ]
 
 
@@ -82,6 +90,53 @@ class GapInHistory(LedgerError, ValueError):
 
 class MethodNotApplicable(LedgerError, ValueError):
     """A reference method cannot be applied to this history (season length or sign of the data)."""
+
+
+class PeriodOutOfRange(LedgerError, ValueError):
+    """A period computed from others (a horizon ahead, a lag back) falls outside the years 1 to 9999."""
+
+
+_FIXES = {
+    errno.ENOSPC: "no space is left on the device holding {path}; free some space, or use a folder on "
+                  "another disk, and try again (the ledger is unchanged)",
+    errno.EDQUOT: "the disk quota is used up for {path}; free some space and try again (the ledger is unchanged)",
+    errno.EFBIG: "{path} would grow beyond the largest file allowed here; use another disk and try again",
+    errno.EACCES: "permission denied for {path}; make its folder writable (a ledger also needs room for "
+                  "its .wal and .tmp files beside it) or use another folder",
+    errno.EPERM: "the operation is not permitted on {path}; use another folder",
+    errno.EROFS: "{path} is on a read-only file system; use a writable folder",
+    errno.ENOTDIR: "a part of {path} is a file, not a folder; give a path whose folders are folders",
+    errno.EISDIR: "{path} is a folder; give a file",
+    errno.EEXIST: "{path} already exists and is not a folder; give a new or empty folder",
+    errno.ENOENT: "{path} does not exist (or its folder does not); check the path",
+    errno.ENAMETOOLONG: "the path {path} is too long; use a shorter one",
+}
+# DuckDB reports OS errors in its own text; the strerror words find the errno
+_WORDS = {"No space left on device": errno.ENOSPC, "Disk quota exceeded": errno.EDQUOT,
+          "Permission denied": errno.EACCES, "Read-only file system": errno.EROFS,
+          "Not a directory": errno.ENOTDIR, "Is a directory": errno.EISDIR, "File too large": errno.EFBIG}
+_QUOTED = re.compile(r'\\?"([^"\\]*/[^"\\]*)\\?"')   # a quoted path, perhaps with escaped quotes
+
+
+def describe_os_error(exc: BaseException) -> str | None:
+    """One line naming the path and what to do, for an OS error (or DuckDB's report of one).
+
+    None when ``exc`` is not about the file system, so that a real bug still shows as one.
+    """
+    if isinstance(exc, OSError) and exc.errno is not None:
+        code, path = exc.errno, exc.filename
+    else:
+        text = str(exc)
+        code = next((c for words, c in _WORDS.items() if words in text), None)
+        if code is None:
+            return None
+        found = _QUOTED.search(text)
+        path = found[1] if found else None
+    where = str(path) if path is not None else "a file it needed"
+    fix = _FIXES.get(code)
+    if fix is None:
+        return f"{where}: {os.strerror(code)}"
+    return fix.format(path=where)
 
 
 class ReviewRefused(LedgerError):

@@ -23,6 +23,8 @@ import datetime as dt
 import re
 from typing import Literal, get_args
 
+from .errors import PeriodOutOfRange
+
 __all__ = [
     "Frequency",
     "FREQUENCIES",
@@ -135,7 +137,20 @@ def period_index(day: dt.date, freq: str) -> int:
 
 
 def index_start(index: int, freq: str) -> dt.date:
-    """Inverse of :func:`period_index`: the first day of the period with that index."""
+    """Inverse of :func:`period_index`: the first day of the period with that index.
+
+    Raises :class:`ledger.errors.PeriodOutOfRange` for a period outside the years 1 to 9999.
+    """
+    try:
+        return _index_start(index, freq)
+    except (ValueError, OverflowError) as exc:
+        if "unknown frequency" in str(exc):
+            raise
+        raise PeriodOutOfRange(f"a {freq} period (index {index:,}) would fall outside the years 1 to 9999, "
+                               "where Backsight's dates end; use a shorter horizon or earlier periods") from None
+
+
+def _index_start(index: int, freq: str) -> dt.date:
     if freq == "yearly":
         return dt.date(index, 1, 1)
     if freq == "quarterly":

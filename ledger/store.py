@@ -11,7 +11,6 @@ import contextlib
 import datetime as dt
 import hashlib
 import os
-import shutil
 import time
 from collections.abc import Iterator
 from pathlib import Path
@@ -21,7 +20,8 @@ import numpy as np
 import pandas as pd
 
 from .version import __version__
-from .errors import LedgerBusy, LedgerError, NotALedger, SchemaTooNew, SchemaTooOld
+from .errors import LedgerBusy, LedgerError, NotALedger, SchemaTooNew, SchemaTooOld, describe_os_error
+from .migrations import ACTUAL_WRITES_DDL, ACTUALS_DDL, ATTRIBUTES_DDL, CYCLE_DDL, MIGRATIONS
 
 __all__ = [
     "SCHEMA_VERSION",
@@ -35,82 +35,15 @@ __all__ = [
     "bounded_memory",
 ]
 
-# History of the schema (bump on any change to DDL and add the step to MIGRATIONS):
+# History of the schema (bump on any change to DDL and add the step to migrations.MIGRATIONS):
 #   1 — first version: meta, series, runs, forecasts, bounds, quantiles, actuals.
 #   2 — attributes: versioned series attributes (region, family, planner, …).
-#   3 — events (versioned, optionally excluding cells from scoring) and stored reviews:
-#       reviews, review_findings, review_models.
-SCHEMA_VERSION = 3
-
-_ATTRIBUTES_DDL = """
--- A row per version of one attribute of one series. A changed value appends a row; the value
--- in force at an as-of is the newest recorded at or before it. value NULL means "removed".
-CREATE TABLE attributes (
-    series      VARCHAR NOT NULL,
-    name        VARCHAR NOT NULL,
-    value       VARCHAR,
-    recorded_at TIMESTAMP NOT NULL
-);
-"""
-
-_CYCLE_DDL = """
--- A row per version of one event: a span of target periods [first_day, end_day) of the series
--- that `target` names (a series key, '*' for all, or 'ATTR=VALUE' matched against the
--- attributes in force). An event's identity is (target, first_day, end_day); a changed label or
--- exclude flag appends a version, and the version in force at an as-of is the newest recorded
--- at or before it. exclude = TRUE leaves the event's cells out of scores and findings.
-CREATE TABLE events (
-    target      VARCHAR NOT NULL,
-    first_day   DATE NOT NULL,
-    end_day     DATE NOT NULL,
-    first_label VARCHAR NOT NULL,
-    last_label  VARCHAR NOT NULL,
-    label       VARCHAR NOT NULL,
-    exclude     BOOLEAN NOT NULL,
-    recorded_at TIMESTAMP NOT NULL,
-    source      VARCHAR
-);
-
--- A row per stored review (backsight review): what the ledger held (as_of, state_hash) and
--- what the review recorded from its inbox.
-CREATE TABLE reviews (
-    review_id   INTEGER PRIMARY KEY,
-    as_of       TIMESTAMP NOT NULL,
-    state_hash  VARCHAR NOT NULL,
-    inbox       VARCHAR NOT NULL,
-    files       INTEGER NOT NULL,
-    runs_new    INTEGER NOT NULL,
-    actuals_new INTEGER NOT NULL
-);
-
--- A row per finding of a review; finding_key is the finding's identity across re-runs
--- (kind, model, series, level), not its wording.
-CREATE TABLE review_findings (
-    review_id   INTEGER NOT NULL,
-    position    INTEGER NOT NULL,   -- the finding's place in the review's list (kind, severity order)
-    finding_key VARCHAR NOT NULL,
-    kind        VARCHAR NOT NULL,
-    model       VARCHAR NOT NULL,
-    series      VARCHAR NOT NULL,
-    level       DOUBLE,
-    severity    VARCHAR NOT NULL,
-    since       VARCHAR NOT NULL,
-    figure      DOUBLE,
-    evidence    VARCHAR NOT NULL
-);
-
--- A row per model and review: its recent MASE (last `periods` target periods) and cells used.
-CREATE TABLE review_models (
-    review_id INTEGER NOT NULL,
-    model     VARCHAR NOT NULL,
-    mase      DOUBLE,
-    n         BIGINT NOT NULL,
-    periods   INTEGER NOT NULL
-);
-"""
-
-# MIGRATIONS[v] turns a version-v ledger into version v + 1 (run inside one transaction).
-MIGRATIONS: dict[int, str] = {1: _ATTRIBUTES_DDL, 2: _CYCLE_DDL}
+#   3 — injective content hashes: runs re-hashed with a length-prefixed canonical form (the
+#       version-1 form joined names with a separator byte that a name could hold); actuals get
+#       chain_hash per revision and actual_writes a row per write (see hashing.py).
+#   4 — events (versioned, optionally excluding cells from scoring) and stored reviews:
+#       reviews, review_findings, review_models (issue 19).
+SCHEMA_VERSION = 4
 
 DDL = """
 -- Facts about the file itself: schema_version, created_at, writer_version, and settings
@@ -175,21 +108,9 @@ CREATE TABLE quantiles (
     tau          DOUBLE NOT NULL,
     value        DOUBLE NOT NULL
 );
+""" + ACTUALS_DDL + ATTRIBUTES_DDL + ACTUAL_WRITES_DDL + CYCLE_DDL
 
--- A row per revision of an actual. Revision 1 is the first value recorded; a changed value
--- appends revision n + 1. Scoring uses the newest revision recorded at or before the as-of.
-CREATE TABLE actuals (
-    series       VARCHAR NOT NULL,
-    period       DATE NOT NULL,
-    period_index INTEGER NOT NULL,
-    value        DOUBLE NOT NULL,
-    revision     INTEGER NOT NULL,
-    recorded_at  TIMESTAMP NOT NULL,
-    source       VARCHAR
-);
-""" + _ATTRIBUTES_DDL + _CYCLE_DDL
-
-TABLES = ("meta", "series", "runs", "forecasts", "bounds", "quantiles", "actuals", "attributes",
+TABLES = ("meta", "series", "runs", "forecasts", "bounds", "quantiles", "actuals", "attributes", "actual_writes",
           "events", "reviews", "review_findings", "review_models")
 
 
@@ -217,7 +138,10 @@ def parse_as_of(value: str | dt.datetime | dt.date | None) -> dt.datetime:
         if len(text) == 10:
             return dt.datetime.combine(stamp.date(), dt.time.max)
     if stamp.tzinfo is not None:
-        stamp = stamp.astimezone(dt.UTC).replace(tzinfo=None)
+        try:
+            stamp = stamp.astimezone(dt.UTC).replace(tzinfo=None)
+        except OverflowError:
+            raise LedgerError(f"--as-of {value!r} falls outside the years 1 to 9999 in UTC") from None
     return stamp
 
 
@@ -279,30 +203,45 @@ class Store:
         variable BACKSIGHT_WAIT, else 10) and then raises :class:`LedgerBusy`.
         """
         path = Path(path)
-        exists = path.exists()
-        if not exists and not create:
+        if path.is_dir():
+            raise NotALedger(f"{path} is a folder, not a ledger file")
+        if not path.exists() and not create:
             raise NotALedger(
                 f"no ledger at {path}; record something first (backsight snapshot FILE or "
                 "backsight actuals FILE), or point --ledger at an existing file"
             )
-        if exists and path.is_dir():
-            raise NotALedger(f"{path} is a folder, not a ledger file")
         seconds = _wait_seconds(wait)
-        migrated = _migrate_if_old(path, seconds) if exists else None
-        con = _connect(path, read_only=read_only and exists, wait=seconds)
+        if not (read_only and path.exists()):
+            return _open_writer(path, seconds)
+        con = _connect(path, read_only=True, wait=seconds)
+        migrated = None
+        if _needs_writer(con):       # not created yet, or an older schema: a writer sets it up
+            con.close()
+            writer = _open_writer(path, seconds)
+            migrated = writer.migrated
+            writer.close()
+            con = _connect(path, read_only=True, wait=seconds)
         store = cls(con, path)
         store.migrated = migrated
         try:
-            if exists and _has_tables(con):
-                store._check_schema()
-            elif exists and path.stat().st_size > 0 and not _is_empty_db(con):
-                raise NotALedger(f"{path} is a DuckDB file but not a Backsight ledger (no meta table)")
-            else:
-                store._create()
+            store._check_schema()
         except BaseException:
             con.close()
             raise
         return store
+
+    def _setup(self) -> None:
+        """Create, migrate or check the schema, holding the write lock (so only one process does it)."""
+        if not _has_tables(self.con):
+            if not _is_empty_db(self.con):
+                raise NotALedger(f"{self.path} is a DuckDB file but not a Backsight ledger (no meta table)")
+            self._create()
+            self.con.execute("CHECKPOINT")
+            return
+        found = _schema_version(self.con)
+        if found is not None and found < SCHEMA_VERSION:
+            self.migrated = _migrate(self.con, self.path, found)
+        self._check_schema()
 
     def close(self) -> None:
         self.con.close()
@@ -355,7 +294,9 @@ class Store:
         try:
             yield self.con
         except BaseException:
-            self.con.execute("ROLLBACK")
+            # a failed write (no space …) may leave nothing to roll back; the first error is the news
+            with contextlib.suppress(duckdb.Error):
+                self.con.execute("ROLLBACK")
             raise
         finally:
             self._depth = 0
@@ -444,7 +385,14 @@ def _connect(path: Path, *, read_only: bool, wait: float) -> duckdb.DuckDBPyConn
             return duckdb.connect(str(path), read_only=read_only)
         except duckdb.IOException as exc:
             text = str(exc)
-            if "lock" not in text.lower():
+            if (age := _empty_file_age(path)) is not None:
+                # a creator may be writing it this instant (young file); else a kill left it
+                if age > 5 or time.monotonic() >= deadline:
+                    raise NotALedger(f"{path} is empty (0 bytes), probably left by a command stopped while "
+                                     "creating it; delete it and run the command again") from None
+            elif describe_os_error(exc):
+                raise                       # permission, no space …: worded by the CLI, like every OS error
+            elif "lock" not in text.lower():
                 raise NotALedger(f"{path} cannot be opened as a ledger: {text.splitlines()[0]}") from None
             if time.monotonic() >= deadline:
                 raise LedgerBusy(f"the ledger {path} is in use by another process; try again") from None
@@ -452,6 +400,15 @@ def _connect(path: Path, *, read_only: bool, wait: float) -> duckdb.DuckDBPyConn
             raise NotALedger(f"{path} is not a Backsight ledger ({str(exc).splitlines()[0]})") from None
         time.sleep(min(pause, max(0.0, deadline - time.monotonic())))
         pause = min(pause * 2, 0.5)
+
+
+def _empty_file_age(path: Path) -> float | None:
+    """Seconds since a 0-byte ledger file was last touched; None when it is not empty."""
+    try:
+        stat = path.stat()
+    except OSError:
+        return None
+    return time.time() - stat.st_mtime if stat.st_size == 0 else None
 
 
 def _schema_version(con: duckdb.DuckDBPyConnection) -> int | None:
@@ -470,36 +427,54 @@ def _backup_path(path: Path, version: int) -> Path:
     return backup
 
 
-def _migrate_if_old(path: Path, wait: float) -> tuple[int, Path] | None:
-    """Bring an older ledger to SCHEMA_VERSION: first a backup copy beside it, then every
-    migration step in one transaction. Returns (old version, backup path), or None."""
+def _open_writer(path: Path, wait: float) -> Store:
+    store = Store(_connect(path, read_only=False, wait=wait), path)
     try:
-        con = _connect(path, read_only=True, wait=wait)
-    except NotALedger:
-        return None     # Store.open reports it precisely
+        store._setup()
+    except BaseException:
+        store.close()
+        raise
+    return store
+
+
+def _copy_database(con: duckdb.DuckDBPyConnection, target: Path) -> None:
+    """A copy of the open database in a new file, made by DuckDB itself.
+
+    Not a file copy: closing any descriptor of the ledger file in this process would drop
+    DuckDB's POSIX lock on it, and a second process could then migrate it too.
+    """
+    name = con.execute("SELECT current_database()").fetchall()[0][0]
+    con.execute(f"ATTACH '{str(target).replace(chr(39), chr(39) * 2)}' AS _backup")
     try:
-        found = _schema_version(con)
+        con.execute('COPY FROM DATABASE "' + name.replace('"', '""') + '" TO _backup')
     finally:
-        con.close()
-    if found is None or found >= SCHEMA_VERSION:
-        return None
+        con.execute("DETACH _backup")
+
+
+def _needs_writer(con: duckdb.DuckDBPyConnection) -> bool:
+    if not _has_tables(con):
+        return _is_empty_db(con)
+    found = _schema_version(con)
+    return found is not None and found < SCHEMA_VERSION
+
+
+def _migrate(con: duckdb.DuckDBPyConnection, path: Path, found: int) -> tuple[int, Path]:
+    """Bring an older ledger to SCHEMA_VERSION while holding its write lock: first a backup copy
+    beside it, then every migration step in one transaction. Returns (old version, backup path)."""
     if found not in MIGRATIONS:
         raise SchemaTooOld(f"{path} has schema version {found}, which this Backsight cannot migrate")
     backup = _backup_path(path, found)
-    shutil.copy2(path, backup)
-    con = _connect(path, read_only=False, wait=wait)
+    _copy_database(con, backup)
+    con.execute("BEGIN TRANSACTION")
     try:
-        con.execute("BEGIN TRANSACTION")
-        try:
-            for version in range(found, SCHEMA_VERSION):
-                con.execute(MIGRATIONS[version])
-            con.execute("UPDATE meta SET value = ? WHERE key = 'schema_version'", [str(SCHEMA_VERSION)])
-        except BaseException:
-            con.execute("ROLLBACK")
-            raise
-        con.execute("COMMIT")
-    finally:
-        con.close()
+        for version in range(found, SCHEMA_VERSION):
+            MIGRATIONS[version](con)
+        con.execute("UPDATE meta SET value = ? WHERE key = 'schema_version'", [str(SCHEMA_VERSION)])
+    except BaseException:
+        con.execute("ROLLBACK")
+        raise
+    con.execute("COMMIT")
+    con.execute("CHECKPOINT")            # into the file now: a reader must never replay the migration's WAL
     return found, backup
 
 

@@ -19,7 +19,9 @@ import os
 from pathlib import Path
 from typing import Literal
 
-from .errors import LedgerError
+import duckdb
+
+from .errors import LedgerError, describe_os_error
 from .lake import is_lake, lake_readers
 from .manifest import check_files, read_manifest
 from .store import TABLES, Store
@@ -93,14 +95,26 @@ def import_ledger(store: Store, in_dir: str | os.PathLike) -> dict[str, int]:
             cols = _all_columns(store, table)
             reader, exprs = readers[table]
             if reader is not None:
-                if table == "meta":
-                    con.execute("DELETE FROM meta WHERE key IN (SELECT key FROM " + reader + ")")
-                con.execute(f"INSERT INTO {table} ({', '.join(cols)}) SELECT {', '.join(exprs or cols)} FROM {reader}")
+                _load(con, table, cols, reader, exprs)
             counts[table] = con.execute(f"SELECT count(*) FROM {table}").fetchall()[0][0]
             if expected is not None and counts[table] != expected.get(table, 0):
                 raise LedgerError(f"{src}: {table} has {counts[table]} rows after import, the manifest says "
                                   f"{expected.get(table, 0)}; nothing was imported")
     return counts
+
+
+def _load(con, table: str, cols: list[str], reader: str, exprs: list[str] | None) -> None:
+    """One table from its export file(s); a file DuckDB cannot read is refused in one line."""
+    try:
+        if table == "meta":
+            con.execute("DELETE FROM meta WHERE key IN (SELECT key FROM " + reader + ")")
+        con.execute(f"INSERT INTO {table} ({', '.join(cols)}) SELECT {', '.join(exprs or cols)} FROM {reader}")
+    except duckdb.Error as exc:
+        if describe_os_error(exc):
+            raise
+        first = str(exc).strip().splitlines()[0]
+        raise LedgerError(f"the export's {table} cannot be read ({first}); nothing was imported; "
+                          "export the ledger again") from None
 
 
 def _readers(store: Store, src: Path) -> tuple[dict[str, tuple[str | None, list[str] | None]], dict | None]:

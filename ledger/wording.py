@@ -10,7 +10,7 @@ columns collide). Everything here is pure string formatting: nothing reads the l
   column names and sentences ('80', '97.5').
 - Numbers: :func:`num` (significant figures, for report tables and sentences), :func:`short_num`
   and :func:`signed` (figures in findings' evidence), :func:`pct`, :func:`p_value` / :func:`pval`.
-- Lists and values in one-line messages: :func:`list_names`, :func:`shorten`.
+- Counts, lists and values in one-line messages: :func:`plural`, :func:`list_names`, :func:`shorten`.
 """
 
 from __future__ import annotations
@@ -31,6 +31,7 @@ __all__ = [
     "num",
     "p_value",
     "pct",
+    "plural",
     "pval",
     "severity_rank",
     "short_num",
@@ -134,6 +135,11 @@ def pval(p) -> str:
 
 # ---------------------------------------------------------------------------------------------
 # names and values in one-line messages
+
+
+def plural(n: int, word: str, many: str | None = None) -> str:
+    """'1 cell', '2 cells', '1,204 series' (``many`` for an irregular plural)."""
+    return f"{n:,} {word if n == 1 else (many or word + 's')}"
 
 
 def shorten(value: str, limit: int = 40) -> str:

@@ -13,6 +13,8 @@ from collections.abc import Mapping, Sequence
 import matplotlib
 import numpy as np
 
+from ledger.wording import format_level
+
 from .chart_base import BAND, INK, PALETTE, RC, Chart, clean_svg, figure, legend, model_styles, render, short, ticks
 from .series_chart import Fan, legend_entries, series_chart
 
@@ -103,7 +105,7 @@ def calibration_chart(chart_id: str, title: str, summary: str, points: Sequence[
                       linewidth=5, alpha=0.45)
             ax.plot(xs, [p.observed for p in mine], linestyle="none", marker=st["marker"],
                     color=st["color"], markersize=5, label=short(model))
-        ax.set_xticks(levels, [f"{v:g}%" for v in levels])
+        ax.set_xticks(levels, [f"{format_level(v)}%" for v in levels])
         ax.set(title=title, xlabel=xlabel, ylabel="Observed coverage (%)")
         ax.set_xlim(lo, hi + 3)
         legend(fig)

@@ -22,11 +22,11 @@ from ledger import Ledger
 from ledger.findings.flags import count_by_group
 from ledger.scoring.attributes import check_attribute
 from ledger.scoring.totals import INTERVAL_NOTE
-from ledger.wording import num
+from ledger.wording import num, plural
 
 from .charts import Chart
 from .group_charts import MAX_GROUPS_DRAWN, group_bars_chart
-from .text import bias_words, is_small, plural
+from .text import bias_words, is_small
 from .views import Context, Link
 
 __all__ = [

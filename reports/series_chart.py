@@ -20,6 +20,8 @@ from matplotlib.patches import Polygon
 from matplotlib.ticker import Formatter, Locator, MaxNLocator, NullFormatter, NullLocator
 from matplotlib.transforms import ScaledTranslation
 
+from ledger.wording import format_level
+
 from .chart_base import BAND, INK, RC, Chart, figure, render, short, text_metrics, tick_picks
 
 __all__ = ["Fan", "clear_canvases", "legend_entries", "series_chart"]
@@ -150,7 +152,7 @@ class _SeriesCanvas:
             for i, level in enumerate(levels):
                 self.bands[level] = top.add_patch(Polygon(np.zeros((1, 2)), closed=True, facecolor=color,
                                                           alpha=0.14 + 0.12 * i, linewidth=0,
-                                                          label=f"{level:g}% interval, latest"))
+                                                          label=f"{format_level(level)}% interval, latest"))
             self.fan_line, = top.plot([], [], color=color, linewidth=1.6, marker="o", markersize=2.5,
                                       label=f"{short(fan_model)}, latest run")
             self.origin = top.axvline(0, color=BAND, linewidth=0.8, linestyle=(0, (1, 2)))

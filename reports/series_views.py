@@ -19,10 +19,10 @@ import numpy as np
 import pandas as pd
 
 from ledger.stats.demand import demand_interval_stats, gaps
-from ledger.wording import label, num
+from ledger.wording import label, num, plural
 
 from . import charts
-from .text import SMALL_SAMPLE, bias_words, is_small, plural
+from .text import SMALL_SAMPLE, bias_words, is_small
 
 __all__ = ["HISTORY_SHOWN", "Columns", "LatestRow", "SeriesInput", "SeriesMetric", "SeriesView", "build_series", "metrics_for"]
 

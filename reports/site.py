@@ -24,7 +24,7 @@ from markupsafe import Markup
 
 from ledger import Ledger, __version__
 from ledger.store import parse_as_of, utc_now
-from ledger.wording import severity_rank
+from ledger.wording import format_level, severity_rank
 
 from . import charts
 from .cycle_views import CycleData, SeriesCycle, build_series_cycle, load_cycle
@@ -216,7 +216,7 @@ def series_inputs(data: LedgerData, ctx: Context, *, with_chart: bool = True,
     acts, _ = _by_series(data.actuals, ["period_index", "value"])
     cells, empty_cells = _by_series(data.cells, _CELL_COLUMNS)
     latest, empty_latest = _by_series(data.latest, [c for c in data.latest.columns if c != "series"])
-    levels = [f"{lv:g}" for lv in ctx.levels]
+    levels = [format_level(lv) for lv in ctx.levels]
     metrics: dict[str, list] = {}
     for key, row in zip(data.by_series_model["series"].tolist(), metrics_for(data.by_series_model, ctx.model_href, levels)):
         metrics.setdefault(key, []).append(row)

@@ -11,12 +11,13 @@ import math
 import numpy as np
 from scipy import stats
 
+from ledger.wording import format_level
+
 __all__ = [
     "SMALL_SAMPLE",
     "bias_words",
     "coverage_words",
     "is_small",
-    "plural",
     "sample_note",
     "tolerance_band",
 ]
@@ -27,10 +28,6 @@ SMALL_SAMPLE = 12
 
 def _finite(x) -> bool:
     return x is not None and isinstance(x, (int, float)) and math.isfinite(x)
-
-
-def plural(n: int, word: str, many: str | None = None) -> str:
-    return f"{n:,} {word if n == 1 else (many or word + 's')}"
 
 
 def bias_words(bias_pct) -> str:
@@ -72,7 +69,7 @@ def tolerance_band(n: int, level: float, *, watch: float = 0.95) -> tuple[float,
 def coverage_words(observed: float, level: float, direction: str, zone: str) -> str:
     """'held 68% of actuals (stated 80%) — too narrow, out of tolerance'."""
     if not _finite(observed):
-        return f"no {level:g}% intervals were scored"
+        return f"no {format_level(level)}% intervals were scored"
     judged = {"too narrow": "too narrow", "too wide": "too wide"}.get(direction, "within the tolerance band")
     tail = f"{judged}, {zone}" if direction in ("too narrow", "too wide") else judged
-    return f"held {observed:.0f}% of actuals (stated {level:g}%) — {tail}"
+    return f"held {observed:.0f}% of actuals (stated {format_level(level)}%) — {tail}"

@@ -15,7 +15,7 @@ from collections.abc import Sequence
 import pandas as pd
 
 from ledger.stats.intervals import coverage_zone
-from ledger.wording import num, pct, severity_rank
+from ledger.wording import format_level, num, pct, plural, severity_rank
 
 from . import charts
 from .data import LedgerData
@@ -23,7 +23,6 @@ from .text import (
     bias_words,
     coverage_words,
     is_small,
-    plural,
     sample_note,
     tolerance_band,
 )
@@ -274,7 +273,7 @@ def finding_rows(flags: pd.DataFrame, ctx: Context) -> list[FindingRow]:
         horizon = "" if pd.isna(r["horizon"]) else str(int(r["horizon"]))
         if not horizon and _text(r.get("horizons")):
             horizon = _text(r.get("horizons"))
-        level = "" if pd.isna(r["level"]) else f"{float(r['level']):g}%"
+        level = "" if pd.isna(r["level"]) else f"{format_level(r['level'])}%"
         rows.append(FindingRow(
             kind=_text(r["kind"]), severity=_text(r["severity"]) if has_sev else "", series=series,
             series_href=ctx.series_href.get(series, ""), model=model, model_href=ctx.model_href.get(model, ""),
@@ -385,7 +384,7 @@ def _coverage_clause(data: LedgerData, model: str) -> str:
     level = 80.0 if (counts["level"] == 80).any() else float(counts["level"].iloc[0])
     cell = coverage_cell(level, int(counts.loc[counts["level"] == level, "n"].sum()),
                          int(counts.loc[counts["level"] == level, "misses"].sum()))
-    return f"; its {level:g}% intervals {coverage_words(cell.observed, level, cell.direction, cell.zone)} ({sample_note(cell.n)})"
+    return f"; its {format_level(level)}% intervals {coverage_words(cell.observed, level, cell.direction, cell.zone)} ({sample_note(cell.n)})"
 
 
 def _winner_sentence(data: LedgerData) -> list[str]:
@@ -472,7 +471,7 @@ def _calibration(data: LedgerData, ctx: Context) -> charts.Chart:
         cell = coverage_cell(float(r["level"]), int(r["n"]), int(r["misses"]))
         low, high = tolerance_band(cell.n, cell.level)
         points.append(charts.CalibrationPoint(str(r["model"]), cell.level, cell.observed, low, high, cell.n))
-        words.append(f"{r['model']} {cell.level:g}%: {cell.observed:.0f}% observed ({cell.direction}, {sample_note(cell.n)})")
+        words.append(f"{r['model']} {format_level(cell.level)}%: {cell.observed:.0f}% observed ({cell.direction}, {sample_note(cell.n)})")
     return charts.calibration_chart(
         "c-calibration", "Interval coverage: observed against nominal, all horizons",
         "Markers are observed coverage; grey bars are the range a model with honest intervals would stay "
@@ -514,7 +513,7 @@ def _coverage_chart(model: str, rows: list[MetricRow], ctx: Context) -> charts.C
     if not rows or not ctx.levels or all(c.n == 0 for r in rows for c in r.coverage):
         return None
     hs = [r.horizon for r in rows]
-    names = {lv: f"{lv:g}% interval" for lv in ctx.levels}
+    names = {lv: f"{format_level(lv)}% interval" for lv in ctx.levels}
     values = {names[lv]: [r.coverage[i].observed for r in rows] for i, lv in enumerate(ctx.levels)}
     styles = charts.model_styles(list(values))
     words = "; ".join(f"{name}: {num(v[0])}% at h={hs[0]}, {num(v[-1])}% at h={hs[-1]}" for name, v in values.items())

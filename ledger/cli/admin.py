@@ -10,7 +10,7 @@ import typer
 
 from ..api import Ledger
 from .common import app, busy, notice, open_ledger, say
-from .terminal import count
+from ..wording import plural
 
 __all__ = ["verify", "export", "import_"]
 
@@ -40,7 +40,7 @@ def verify(
     if problems:
         for p in problems:
             say(f"problem: {p}")
-        notice(f"{where}: {count(len(problems), 'problem')} found")
+        notice(f"{where}: {plural(len(problems), 'problem')} found")
         raise typer.Exit(1)
     say(f"{where}: sound")
 
@@ -63,10 +63,10 @@ def export(
         else:
             files = book.export(out_dir, fmt=fmt.value)
     if partition:
-        say(f"wrote {count(len(files), 'file')} to {out_dir} ({count(done.runs_added, 'new run')}, "
-            f"{count(done.revisions_added, 'new actual revision')}; export {done.manifest.exports})")
+        say(f"wrote {plural(len(files), 'file')} to {out_dir} ({plural(done.runs_added, 'new run')}, "
+            f"{plural(done.revisions_added, 'new actual revision')}; export {done.manifest.exports})")
     else:
-        say(f"wrote {count(len(files), 'file')} to {out_dir}")
+        say(f"wrote {plural(len(files), 'file')} to {out_dir}")
 
 
 @app.command("import")

@@ -16,7 +16,7 @@ from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
 from .common import FreqOpt, app, notice, open_ledger, say, split
-from .terminal import count
+from ..wording import plural
 from ..methods.names import FILL_HELP, FILL_METHODS, METHODS_HELP
 from ..methods.recorded import check_options
 
@@ -72,8 +72,8 @@ def _report(result) -> None:
     recorded = Counter(r.model for r in result.recorded)
     unchanged = Counter(r.model for r in result.unchanged)
     for model in sorted(set(recorded) | set(unchanged)):
-        say(f"{model}: {count(recorded[model], 'run')} recorded, {unchanged[model]} unchanged")
-    say(f"{count(len(result.recorded), 'run')} recorded ({count(result.cells, 'cell')}), "
+        say(f"{model}: {plural(recorded[model], 'run')} recorded, {unchanged[model]} unchanged")
+    say(f"{plural(len(result.recorded), 'run')} recorded ({plural(result.cells, 'cell')}), "
         f"{len(result.unchanged)} already in the ledger; horizon {result.horizon}")
     for note in result.notes:
         notice(f"Note: {note}")

@@ -15,6 +15,7 @@ import sys
 from pathlib import Path
 from typing import Annotated
 
+import duckdb
 import pandas as pd
 import typer
 from rich.console import Console
@@ -24,7 +25,7 @@ from typer.core import TyperCommand, TyperGroup
 from .terminal import out_width, printable, render_table, wrap
 from ..version import __version__
 from ..api import DEFAULT_PATH, Ledger
-from ..errors import LedgerError
+from ..errors import LedgerError, describe_os_error
 
 __all__ = ["app", "Format", "FormatOpt", "AsOfOpt", "FreqOpt", "IncludeExcludedOpt", "open_ledger", "busy", "notice", "say", "emit", "split"]
 
@@ -40,6 +41,12 @@ class _Group(TyperGroup):
         except LedgerError as exc:
             # Messages quote names and values from the input: shown inert, never raw.
             typer.echo("\n".join(printable(line) for line in f"Error: {exc}".split("\n")), err=True)
+            raise typer.Exit(EXIT_ERROR) from None
+        except (OSError, duckdb.Error) as exc:     # no space, permission, …: one line, not a traceback
+            message = describe_os_error(exc)
+            if message is None:
+                raise
+            typer.echo(f"Error: {message}", err=True)
             raise typer.Exit(EXIT_ERROR) from None
 
 

@@ -11,7 +11,7 @@ from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
 from .common import app, say
-from .terminal import count
+from ..wording import plural
 
 __all__ = ["demo", "summary_lines"]
 
@@ -42,12 +42,12 @@ def summary_lines(result) -> list[str]:
     """What ``backsight demo`` prints after building (a :class:`reports.demo.DemoResult`)."""
     r = result.replay
     found = ", ".join(f"{n} {kind}" for kind, n in sorted(result.findings.items())) or "none"
-    lines = [f"Replayed {r.scenario}: {count(r.runs, 'run')} ({count(r.cells, 'forecast')}), "
-             f"{count(r.actual_values, 'actual')}, {count(r.revisions, 'revision')}, "
-             f"{count(r.superseded, 'superseded run')}, into {r.ledger_path}",
+    lines = [f"Replayed {r.scenario}: {plural(r.runs, 'run')} ({plural(r.cells, 'forecast')}), "
+             f"{plural(r.actual_values, 'actual')}, {plural(r.revisions, 'revision')}, "
+             f"{plural(r.superseded, 'superseded run')}, into {r.ledger_path}",
              f"Findings: {found}",
              "Lowest MASE by horizon (an estimate from past errors, not a promise):"]
-    lines += [f"  h={row.horizon:<2} {row.model:<20} MASE {row.mase:.2f}  ({count(row.n, 'cell')})"
+    lines += [f"  h={row.horizon:<2} {row.model:<20} MASE {row.mase:.2f}  ({plural(row.n, 'cell')})"
               for row in result.best_by_horizon.itertuples(index=False)]
     lines += [f"Advice: {a}" for a in result.advice]
     top = result.top_findings

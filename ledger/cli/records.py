@@ -23,7 +23,7 @@ from .common import (
 )
 from .columns import choose_columns
 from .filters import HorizonOpt, ModelOpt, SeriesOpt, SinceOpt, UntilOpt, WhereOpt, selection
-from .terminal import count
+from ..wording import plural
 from ..scoring.totals import INTERVAL_NOTE
 
 __all__ = ["snapshot", "actuals", "scores", "attributes", "runs"]
@@ -50,7 +50,7 @@ def snapshot(
             notice(f"run {run.run_id} ({run.model} at {run.origin}) is already in the ledger; nothing written")
         else:
             extra = f"; {run.status}" if run.status.startswith("superseded") else ""
-            say(f"run {run.run_id}  {run.model} at {run.origin}: {count(run.cells, 'cell')} recorded{extra}")
+            say(f"run {run.run_id}  {run.model} at {run.origin}: {plural(run.cells, 'cell')} recorded{extra}")
 
 
 @app.command()
@@ -119,7 +119,7 @@ def attributes(
     """Record series attributes; a changed value is kept as a new version (as-of reproduces old groupings)."""
     with open_ledger(ctx, create=True) as book:
         result = book.record_attributes(file, total_of=total_of)
-    say(f"{count(result.series, 'series', 'series')}: {count(result.changed, 'value')} recorded, {result.unchanged} unchanged "
+    say(f"{plural(result.series, 'series', 'series')}: {plural(result.changed, 'value')} recorded, {result.unchanged} unchanged "
                f"({', '.join(result.names)})")
 
 

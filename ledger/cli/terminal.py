@@ -26,7 +26,7 @@ from typing import Any
 import pandas as pd
 from rich.cells import cell_len
 
-__all__ = ["count", "printable", "out_width", "wrap", "middle", "render_table", "cell_text", "SENTENCE_COLUMNS"]
+__all__ = ["printable", "out_width", "wrap", "middle", "render_table", "cell_text", "SENTENCE_COLUMNS"]
 
 ELLIPSIS = "…"
 GAP = "  "
@@ -213,8 +213,3 @@ def _shorten(shown: list[int], numeric: list[bool], prose: list[bool], floor: in
             return
         i = max(shrinkable, key=lambda i: shown[i])
         shown[i] = max(floor, shown[i] - (total() - width))
-
-
-def count(n: int, noun: str, plural: str | None = None) -> str:
-    """'1 cell', '2 cells', '1,204 series' (``plural`` for irregular nouns)."""
-    return f"{n:,} {noun if n == 1 else (plural or noun + 's')}"

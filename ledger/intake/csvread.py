@@ -119,7 +119,10 @@ class _Text:
         breaks = self._breaks + before.count("\n")
         line = before[before.rfind("\n") + 1:] if "\n" in before else self._line + before
         header_line = self.header if start is None else start.split("\n", 1)[0]
-        header = next(csv.reader([header_line.lstrip("\ufeff")]), [""])
+        try:
+            header = next(csv.reader([header_line.lstrip("\ufeff")]), [""])
+        except csv.Error:
+            header = [""]
         field = line.count(",")
         name = header[field].strip() if field < len(header) else f"{field + 1} (past the header)"
         return max(1, breaks), name or str(field + 1)
@@ -145,6 +148,17 @@ def _delimiter(header_line: str) -> str:
     return best if counts[best] else ","
 
 
+def _header_fields(line: str, sep: str, source: str) -> list[str]:
+    """The header's names; refuses line ends of a lone carriage return and unreadable headers."""
+    if "\r" in line.rstrip("\r"):
+        raise InputError(source, "lines end with a carriage return alone (an old Mac format); save the file "
+                         "with LF or CRLF line ends")
+    try:
+        return next(csv.reader([line], delimiter=sep), [])
+    except csv.Error as exc:       # e.g. a field longer than the csv module's limit (131,072 characters)
+        raise InputError(source, f"the header cannot be read ({exc}); is this a CSV file?") from None
+
+
 def _check_header(names: list[str], source: str) -> None:
     counts = Counter(n.strip().lstrip("\ufeff").strip().lower() for n in names)
     dupes = sorted(n for n, k in counts.items() if k > 1)
@@ -166,7 +180,7 @@ def iter_csv_chunks(path: Path, source: str, rows: int = CHUNK_ROWS, progress=No
         if text.only_blank():
             raise InputError(source, "the file is empty")
         sep = _delimiter(text.header)
-        header = next(csv.reader([text.header], delimiter=sep), [])
+        header = _header_fields(text.header, sep, source)
         _check_header(header, source)
         try:
             # object, not str: pandas' conversion to its string type costs more than the parse

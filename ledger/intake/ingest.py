@@ -19,12 +19,13 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
+from .columns import bound_columns, is_level_column, misspelt_column, quantile_columns
 from ..errors import FrequencyError, InputError
 from ..periods import FREQUENCIES, check_frequency, parse_label
 from .sources import Chunk, open_table
 from .staging import Stage
 from ..store import Store
-from ..wording import format_level, list_names, shorten
+from ..wording import list_names, shorten
 
 __all__ = [
     "ForecastFrame",
@@ -33,13 +34,6 @@ __all__ = [
     "read_actuals",
 ]
 
-_BOUND = re.compile(r"^(lower|upper)_(\d+(?:\.\d+)?)$")
-_QUANTILE = re.compile(r"^q(\d{2,}|0\.\d+|\d+\.\d+)$")
-_BOUND_LIKE = re.compile(
-    r"^(lower|upper|lo|hi|low|high|lwr|upr|lb|ub)[\s_\-.]*(\d+(?:\.\d+)?)(%|pct)?$"
-)
-_QUANTILE_LIKE = re.compile(r"^(q|p|quantile|tau)[\s_\-.]*(\d+(?:\.\d+)?)$")
-_LOWER_WORDS = {"lower", "lo", "low", "lwr", "lb"}
 
 
 class _Staged:
@@ -112,9 +106,32 @@ def _mask(array: pa.Array) -> np.ndarray:
     return array.to_numpy(zero_copy_only=False)
 
 
+_NOT_TEXT = (bytes, bytearray, list, tuple, dict, set, np.ndarray)
+
+
+def _check_value_kinds(source: str, raw: pd.Series, column: str, *, number: bool) -> None:
+    """Refuse what a typed file (Parquet, a DataFrame) can hold but a key or a number is not:
+    true/false for a number, bytes or lists or maps anywhere. Never coerced silently."""
+    if number and pd.api.types.is_bool_dtype(raw):
+        raise InputError(source, "holds true/false values, not numbers", row=1, column=column)
+    if raw.dtype != object:
+        return
+    kind = pd.api.types.infer_dtype(raw, skipna=True)
+    if kind in ("string", "empty", "integer", "floating", "mixed-integer-float", "date", "datetime", "decimal"):
+        return
+    for i, value in enumerate(raw):
+        if isinstance(value, _NOT_TEXT) or (number and isinstance(value, (bool, np.bool_))):
+            what = {bytes: "binary data", bytearray: "binary data", dict: "a map"}.get(type(value), "a list")
+            if isinstance(value, (bool, np.bool_)):
+                what = "a true/false value"
+            raise InputError(source, f"holds {what}, not {'a number' if number else 'text'}; "
+                             "write the column as plain values", row=i + 1, column=column)
+
+
 def _numbers(source: str, frame: pd.DataFrame, column: str, *, allow_blank: bool) -> np.ndarray:
     """Parse a numeric column; refuse non-numbers, NaN and infinities with the first bad row."""
     raw = frame[column]
+    _check_value_kinds(source, raw, column, number=True)
     if pd.api.types.is_numeric_dtype(raw):
         values = raw.to_numpy(dtype="float64", na_value=np.nan)
         blank = np.isnan(values)
@@ -163,6 +180,7 @@ MAX_HORIZON = 1000
 
 
 def _keys(source: str, frame: pd.DataFrame, column: str) -> pa.Array:
+    _check_value_kinds(source, frame[column], column, number=False)
     text = _as_text(frame[column])
     empty = _mask(pc.equal(text, ""))
     if empty.any():
@@ -242,14 +260,10 @@ def _extra_columns(columns: list[str], known: set[str], source: str) -> list[str
     """Refuse columns that look like misspelt bounds or quantiles; warn about the rest."""
     extras = []
     for col in columns:
-        if col in known or _BOUND.match(col) or _QUANTILE.match(col):
+        if col in known or is_level_column(col):
             continue
-        if m := _BOUND_LIKE.match(col):
-            side = "lower" if m[1] in _LOWER_WORDS else "upper"
-            raise InputError(source, f"looks like an interval bound; name it {side}_{m[2]}", column=col)
-        if m := _QUANTILE_LIKE.match(col):
-            raise InputError(source, f"looks like a quantile; name it q{m[2].replace('.', '')} "
-                             "(q10 is the 0.10 quantile)", column=col)
+        if fix := misspelt_column(col):
+            raise InputError(source, fix, column=col)
         extras.append(col)
     return extras
 
@@ -257,34 +271,6 @@ def _extra_columns(columns: list[str], known: set[str], source: str) -> list[str
 def _ignored(source: str, extras: list[str]) -> str:
     shown = list_names([shorten(c) for c in extras], 10)
     return f"{source}: ignored column{'s' if len(extras) > 1 else ''} {shown}"
-
-
-def _bound_columns(columns: list[str], source: str) -> dict[float, tuple[str, str]]:
-    levels: dict[float, dict[str, str]] = {}
-    for col in columns:
-        if m := _BOUND.match(col):
-            level = float(m[2])
-            if not 0 < level < 100:
-                raise InputError(source, f"level {m[2]} is outside (0, 100)", column=col)
-            levels.setdefault(level, {})[m[1]] = col
-    for level, sides in levels.items():
-        for side, other in (("lower", "upper"), ("upper", "lower")):
-            if side in sides and other not in sides:
-                raise InputError(source, f"has no matching {other}_{format_level(level)} column",
-                                 column=sides[side])
-    return {level: (sides["lower"], sides["upper"]) for level, sides in sorted(levels.items())}
-
-
-def _quantile_columns(columns: list[str], source: str) -> dict[float, str]:
-    taus = {}
-    for col in columns:
-        if m := _QUANTILE.match(col):
-            digits = m[1]
-            tau = float(digits) if "." in digits else float("0." + digits)
-            if not 0 < tau < 1:
-                raise InputError(source, f"quantile level {tau:g} is outside (0, 1)", column=col)
-            taus[tau] = col
-    return dict(sorted(taus.items()))
 
 
 def _model_origin(source, frame, model, origin) -> tuple[pa.Array, pa.Array]:
@@ -325,8 +311,8 @@ def read_forecasts(
     table = open_table(data, name=name, progress=progress)
     source, columns = table.source, table.columns
     _require(source, columns, ("series", "period", "forecast"))
-    bound_cols = _bound_columns(columns, source)
-    quant_cols = _quantile_columns(columns, source)
+    bound_cols = bound_columns(columns, source)
+    quant_cols = quantile_columns(columns, source)
     extras = _extra_columns(columns, {"series", "period", "forecast", "model", "origin"}, source)
     warnings = [_ignored(source, extras)] if extras else []
     levels, taus = list(bound_cols), list(quant_cols)
@@ -343,7 +329,7 @@ def read_forecasts(
                 staged = _forecast_chunk(source, chunk, model, origin, periods, origins, bound_cols, quant_cols)
             except InputError as exc:
                 raise exc.shifted(chunk.offset) from None
-            outside.add(chunk.offset, staged, levels)
+            outside.add(chunk.offset, staged, len(levels))
             stage.append(chunk.offset, staged)
         frequency = _decide_frequency(source, [periods, origins], freq, stage.known_frequencies())
         stage.check_recorded(source, frequency)
@@ -354,7 +340,8 @@ def read_forecasts(
     except BaseException:
         stage.close()
         raise
-    return ForecastFrame(source, frequency, stage, levels, taus, warnings + outside.warnings(levels))
+    return ForecastFrame(source, frequency, stage, levels, taus,
+                         warnings + outside.warnings([lower for lower, _ in bound_cols.values()]))
 
 
 def _forecast_chunk(source, chunk: Chunk, model, origin, periods: _Labels, origins: _Labels,
@@ -411,17 +398,19 @@ class _Outside:
         self.count: dict[int, int] = {}
         self.first: dict[int, int] = {}
 
-    def add(self, offset: int, staged: dict[str, np.ndarray], levels: list[float]) -> None:
+    def add(self, offset: int, staged: dict[str, np.ndarray], n_levels: int) -> None:
         point = staged["point"]
-        for i in range(len(levels)):
+        for i in range(n_levels):
             outside = (point < staged[f"lo_{i}"]) | (point > staged[f"hi_{i}"])
             if outside.any():
                 self.first.setdefault(i, offset + int(np.argmax(outside)) + 1)
                 self.count[i] = self.count.get(i, 0) + int(outside.sum())
 
-    def warnings(self, levels: list[float]) -> list[str]:
+    def warnings(self, lower_columns: list[str]) -> list[str]:
+        """One warning per level, named by its column's own spelling (two levels may print alike)."""
         return [f"{self.source}: {self.count[i]} point forecast(s) lie outside their own "
-                f"{format_level(levels[i])}% interval (first at row {self.first[i]})" for i in sorted(self.count)]
+                f"{lower_columns[i].split('_', 1)[1]}% interval (first at row {self.first[i]})"
+                for i in sorted(self.count)]
 
 
 def read_actuals(store: Store, data, *, freq: str | None = None, name: str | None = None,

@@ -5,19 +5,21 @@ Each public function is one transaction: on any error, nothing is written.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
-import hashlib
+
+import duckdb
 
 import numpy as np
 import pandas as pd
 
 from ..errors import RunConflict
+from ..hashing import chain_hash_sql, run_content_hash, write_hash_sql
 from .ingest import ActualsFrame, ForecastFrame
 from ..periods import SEASON_LENGTHS, period_label
 from ..store import Store
-from ..wording import format_level
 
-__all__ = ["RunResult", "SnapshotResult", "ActualsResult", "write_runs", "write_actuals", "run_content_hash"]
+__all__ = ["RunResult", "SnapshotResult", "ActualsResult", "write_runs", "write_actuals"]
 
 
 @dataclasses.dataclass(frozen=True)
@@ -47,51 +49,17 @@ class ActualsResult:
     warnings: list[str]
 
 
-def run_content_hash(model: str, frequency: str, origin_index: int, part: pd.DataFrame) -> str:
-    """SHA-256 over a run's canonical form.
-
-    ``part`` holds the run's rows with columns series, period_index, point, and any
-    ``lower_<L>``/``upper_<L>`` and ``q_<tau>`` columns (other columns are ignored). The
-    canonical form: a header naming model, frequency and origin index; the series keys and then
-    each numeric column, rows sorted by (series, period_index); bound pairs in increasing level,
-    then quantiles in increasing tau; a level or quantile with no value in this run is left out.
-    Floats are hashed as little-endian IEEE-754 bytes, so the hash is exact and independent of how
-    numbers were spelt in the file. ``verify`` recomputes it from the stored rows.
-    """
-    part = part.sort_values(["series", "period_index"], kind="stable")
-    digest = hashlib.sha256(f"backsight-run-v1\x00{model}\x00{frequency}\x00{origin_index}".encode())
-    digest.update("\x1f".join(part["series"].astype(str).tolist()).encode())
-    for col in _canonical_columns(part):
-        digest.update(f"\x00{col}\x00".encode())
-        digest.update(np.ascontiguousarray(part[col].to_numpy(dtype="<f8", na_value=np.nan)).tobytes())
-    return digest.hexdigest()
-
-
-def _canonical_columns(part: pd.DataFrame) -> list[str]:
-    levels = sorted({float(c[6:]) for c in part.columns if c.startswith("lower_")})
-    taus = sorted({float(c[2:]) for c in part.columns if c.startswith("q_")})
-    cols = ["period_index", "point"]
-    for level in levels:
-        pair = [f"lower_{format_level(level)}", f"upper_{format_level(level)}"]
-        if part[pair[0]].notna().any():
-            cols += pair
-    cols += [f"q_{format_level(tau)}" for tau in taus if part[f"q_{format_level(tau)}"].notna().any()]
-    return cols
-
-
 def _run_parts(frame: ForecastFrame):
     """Each run's rows in canonical order, one run at a time: (model, origin index, origin, part).
 
     Streams the ready table sorted by run; only one run is held in memory at a time.
     """
     stage = frame.stage
-    names = {f"lo_{i}": f"lower_{format_level(lv)}" for i, lv in enumerate(frame.levels)}
-    names |= {f"hi_{i}": f"upper_{format_level(lv)}" for i, lv in enumerate(frame.levels)}
-    names |= {f"q_{j}": f"q_{format_level(tau)}" for j, tau in enumerate(frame.taus)}
+    names = [f"{side}_{i}" for i in range(len(frame.levels)) for side in ("lo", "hi")]
+    names += [f"q_{j}" for j in range(len(frame.taus))]
     select = ", ".join(["model", "origin_index", "origin", "series", "period_index", "point", *names])
     pieces: list[pd.DataFrame] = []
     for batch in stage.batches(select, "model, origin_index, series, period_index"):
-        batch = batch.rename(columns=names)
         model, o_index = batch["model"].to_numpy(dtype=object), batch["origin_index"].to_numpy()
         starts = np.flatnonzero(np.r_[True, (model[1:] != model[:-1]) | (o_index[1:] != o_index[:-1])])
         for a, b in zip(starts, np.r_[starts[1:], len(batch)]):
@@ -114,7 +82,7 @@ def write_runs(store: Store, frame: ForecastFrame, *, note: str | None = None,
                supersede: bool = False) -> SnapshotResult:
     """Record every run in ``frame`` (one per model and origin) in one transaction."""
     # Hash every run before writing: the stream must finish before the connection runs anything else.
-    runs = [(model, o_index, origin, len(part), run_content_hash(model, frame.frequency, o_index, part))
+    runs = [(model, o_index, origin, len(part), run_content_hash(model, frame.frequency, o_index, part, frame.levels, frame.taus))
             for model, o_index, origin, part in _run_parts(frame)]
     results: list[RunResult] = []
     new_ids: list[tuple[str, int, str]] = []
@@ -162,7 +130,8 @@ def _insert_cells(con, frame: ForecastFrame, new_ids: list[tuple[str, int, str]]
             con.execute(f"INSERT INTO quantiles SELECT n.run_id, r.series, r.period_index, ?, r.q_{j} "
                         f"FROM {ready} WHERE r.q_{j} IS NOT NULL {order}", [tau])
     finally:
-        con.unregister("_new_ids")
+        with contextlib.suppress(duckdb.Error):    # after a failed write the first error is the news
+            con.unregister("_new_ids")
 
 
 def _register_series(store: Store, table: str, frequency: str, now) -> None:
@@ -173,17 +142,21 @@ def _register_series(store: Store, table: str, frequency: str, now) -> None:
 
 
 def write_actuals(store: Store, frame: ActualsFrame) -> ActualsResult:
-    """Append new actuals and changed values (as new revisions) in one transaction."""
+    """Append new actuals and changed values (as new revisions) in one transaction.
+
+    Each new row gets its chain hash, and the write its row in ``actual_writes``
+    (see :mod:`ledger.hashing`), so that ``verify`` can recompute both.
+    """
     with store.transaction() as con:
         now = store.next_timestamp()
         _register_series(store, frame.stage.ready, frame.frequency, now)
         con.execute(f"""
             CREATE TEMP TABLE _act_diff AS
-            SELECT n.series, n.period, n.period_index, n.value,
+            SELECT n.series, n.period, n.period_index, n.value, o.chain_hash AS prev_hash,
                    coalesce(o.revision, 0) + 1 AS revision, o.revision IS NULL AS is_new,
                    o.value IS NOT NULL AND o.value = n.value AS same
             FROM {frame.stage.ready} n LEFT JOIN (
-                SELECT series, period_index, value, revision FROM (
+                SELECT series, period_index, value, revision, chain_hash FROM (
                     SELECT *, row_number() OVER (PARTITION BY series, period_index ORDER BY revision DESC) rn
                     FROM actuals) t WHERE rn = 1
             ) o ON o.series = n.series AND o.period_index = n.period_index""")
@@ -191,8 +164,15 @@ def write_actuals(store: Store, frame: ActualsFrame) -> ActualsResult:
             new, revised, same = con.execute(
                 "SELECT count(*) FILTER (is_new), count(*) FILTER (NOT is_new AND NOT same), "
                 "count(*) FILTER (same) FROM _act_diff").fetchall()[0]
-            con.execute("INSERT INTO actuals SELECT series, period, period_index, value, revision, ?, ? "
-                        "FROM _act_diff WHERE NOT same ORDER BY series, period_index", [now, frame.source])
+            chain = chain_hash_sql("prev_hash", "series", "period_index", "revision", "value", "$now::TIMESTAMP")
+            con.execute(f"INSERT INTO actuals SELECT series, period, period_index, value, revision, $now, $source, "
+                        f"{chain} FROM _act_diff WHERE NOT same ORDER BY series, period_index",
+                        {"now": now, "source": frame.source})
+            if new + revised:
+                con.execute(f"INSERT INTO actual_writes SELECT $now, $source, count(*), "
+                            f"{write_hash_sql('chain_hash', 'series', 'period_index')} "
+                            "FROM actuals WHERE recorded_at = $now", {"now": now, "source": frame.source})
         finally:
-            con.execute("DROP TABLE _act_diff")
+            with contextlib.suppress(duckdb.Error):
+                con.execute("DROP TABLE _act_diff")
     return ActualsResult(int(new), int(revised), int(same), list(frame.warnings))

@@ -85,6 +85,9 @@ def _file_frames(path: Path, source: str, rows: int, report) -> Iterator[pd.Data
         raise InputError(source, f"no such file: {path}")
     if path.is_dir():
         raise InputError(source, f"{path} is a folder, not a file")
+    if not path.is_file():      # a FIFO or a terminal would block the read, perhaps forever
+        raise InputError(source, "this is not a regular file but a pipe, a device or standard input; "
+                         "save the data to a file and give that")
     if path.suffix.lower() not in (".parquet", ".pq"):
         return iter_csv_chunks(path, source, rows, report)
     return _parquet_frames(path, source, rows, report)

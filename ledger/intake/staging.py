@@ -68,7 +68,8 @@ class Stage:
         try:
             self.con.execute(f"INSERT INTO {self.table} BY NAME SELECT * FROM _chunk")
         finally:
-            self.con.unregister("_chunk")
+            with contextlib.suppress(duckdb.Error):     # after a failed write the first error is the news
+                self.con.unregister("_chunk")
 
     def known_frequencies(self) -> set[str]:
         """The frequencies the ledger has recorded for the staged series."""
@@ -100,7 +101,8 @@ class Stage:
         try:
             self.con.execute(f"CREATE TEMP TABLE {lab} AS SELECT * FROM _labels")
         finally:
-            self.con.unregister("_labels")
+            with contextlib.suppress(duckdb.Error):
+                self.con.unregister("_labels")
         joins, exprs = [], []
         for i, col in enumerate(label_columns):
             joins.append(f"JOIN {lab} l{i} ON l{i}.label = s.{col}")

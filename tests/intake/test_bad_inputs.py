@@ -59,6 +59,10 @@ REFUSED = {
     "actuals_week_53.csv": "row 2 column period: ISO week 53 does not exist in 2025 ('2025-W53')",
     "actuals_quarter_end.csv": "row 1 column period: holds bare dates, which fit several frequencies; say which "
                                "with --freq (yearly, quarterly, monthly, weekly, daily)",
+    "cr_only.csv": "lines end with a carriage return alone (an old Mac format); save the file with LF or CRLF line ends",
+    "parquet_binary_key.parquet": "row 1 column series: holds binary data, not text; write the column as plain values",
+    "parquet_bool_forecast.parquet": "row 1 column forecast: holds true/false values, not numbers",
+    "parquet_list_key.parquet": "row 1 column series: holds a list, not text; write the column as plain values",
 }
 
 # Files read as they stand; the value is (series, period start, value) rows the ledger must hold.
@@ -152,4 +156,15 @@ def test_10_megabyte_cell(runner, base, tmp_path):
     assert result.exit_code == 1
     assert result.stderr == ("Error: bigcell.csv row 1 column series: 'KKKKKKKKKKKKKKKKKKKKKKKKKKKKKKKKKKKKKKKK… "
                              "(10,000,000 characters)' is longer than 200 characters\n")
+    assert table_hashes(base) == before
+
+
+def test_header_field_over_the_csv_limit(runner, base, tmp_path):
+    path = tmp_path / "hugefield.csv"
+    path.write_text("series,period,forecast," + "x" * 140_000 + "\nA,2026-01,10,1\n")
+    before = table_hashes(base)
+    result = _invoke(runner, base, path)
+    assert result.exit_code == 1
+    assert result.stderr == ("Error: hugefield.csv: the header cannot be read (field larger than field limit "
+                             "(131072)); is this a CSV file?\n")
     assert table_hashes(base) == before

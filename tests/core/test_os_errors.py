@@ -1,0 +1,168 @@
+"""Operating-system errors become one `Error:` line naming the path and what to do (exit 1), in
+one place (ledger.errors.describe_os_error), and the ledger is left unchanged. Disk full is
+forced for real on a 3 MB tmpfs (in a private mount namespace); the rest by real paths or a
+patched call where a root test process cannot provoke them."""
+
+from __future__ import annotations
+
+import errno
+import json
+import os
+import shutil
+import subprocess
+import sys
+import textwrap
+
+import duckdb
+import pandas as pd
+import pytest
+
+from ledger import Ledger
+from ledger.cli import app
+from ledger.errors import describe_os_error
+
+from tests.helpers import REPO, table_hashes
+
+
+@pytest.fixture
+def base(tmp_path):
+    path = tmp_path / "l.duckdb"
+    with Ledger.open(path) as book:
+        book.record_actuals(pd.DataFrame({"series": ["a"], "period": ["2026-01"], "actual": [1.0]}))
+    return path
+
+
+@pytest.mark.parametrize("code,needle", [
+    (errno.ENOSPC, "no space is left on the device holding /x/f; free some space"),
+    (errno.EACCES, "permission denied for /x/f; make its folder writable"),
+    (errno.ENOTDIR, "a part of /x/f is a file, not a folder"),
+    (errno.EISDIR, "/x/f is a folder; give a file"),
+    (errno.EEXIST, "/x/f already exists and is not a folder"),
+    (errno.EROFS, "/x/f is on a read-only file system"),
+])
+def test_each_os_error_is_worded_with_its_path(code, needle):
+    assert describe_os_error(OSError(code, os.strerror(code), "/x/f")).startswith(needle)
+    # DuckDB reports the same errors in its own words, the path quoted (sometimes inside JSON)
+    text = f'IO Error: {{"exception_message":"Could not write file \\"/x/f\\": {os.strerror(code)}"}}'
+    if code != errno.EEXIST:
+        assert describe_os_error(duckdb.IOException(text)).startswith(needle)
+    assert describe_os_error(ValueError("a bug, not the file system")) is None
+
+
+def _one_error_line(result) -> str:
+    assert result.exit_code == 1, result.output
+    assert result.stdout == ""
+    lines = result.stderr.splitlines()
+    assert len(lines) == 1 and lines[0].startswith("Error: "), result.stderr
+    return lines[0]
+
+
+def test_permission_denied_on_the_ledger_folder(base, runner, monkeypatch, tmp_path):
+    # a root test process is never refused by chmod, so DuckDB's refusal is patched in
+    before = table_hashes(base)
+
+    def refuse(path, read_only=False):
+        raise duckdb.IOException(f'IO Error: Cannot open file "{path}.wal": Permission denied')
+
+    monkeypatch.setattr("ledger.store.duckdb.connect", refuse)
+    data = tmp_path / "a.csv"
+    data.write_text("series,period,actual\na,2026-02,2\n")
+    line = _one_error_line(runner.invoke(app, ["--ledger", str(base), "actuals", str(data)]))
+    assert line.startswith(f"Error: permission denied for {base}.wal; make its folder writable")
+    monkeypatch.undo()
+    assert table_hashes(base) == before
+
+
+def test_unwritable_export_folder(base, runner, monkeypatch, tmp_path):
+    before = table_hashes(base)
+    out = tmp_path / "locked" / "out"
+
+    def refuse(self, *args, **kwargs):
+        raise PermissionError(errno.EACCES, "Permission denied", str(self))
+
+    monkeypatch.setattr("pathlib.Path.mkdir", refuse)
+    line = _one_error_line(runner.invoke(app, ["--ledger", str(base), "export", str(out)]))
+    monkeypatch.undo()
+    assert line.startswith(f"Error: permission denied for {out}")
+    assert table_hashes(base) == before
+
+
+def test_outdir_that_is_a_file(base, runner, tmp_path):
+    before = table_hashes(base)
+    target = tmp_path / "a-file"
+    target.write_text("mine")
+    line = _one_error_line(runner.invoke(app, ["--ledger", str(base), "export", str(target)]))
+    assert line == f"Error: {target} already exists and is not a folder; give a new or empty folder"
+    assert target.read_text() == "mine" and table_hashes(base) == before
+
+
+def test_ledger_below_a_file(runner, tmp_path):
+    blocker = tmp_path / "plain"
+    blocker.write_text("x")
+    data = tmp_path / "a.csv"
+    data.write_text("series,period,actual\na,2026-02,2\n")
+    line = _one_error_line(runner.invoke(app, ["--ledger", str(blocker / "l.duckdb"), "actuals", str(data)]))
+    assert "not a folder" in line or "Not a directory" in line, line
+
+
+def test_fifo_and_stdin_never_block(base, runner, tmp_path):
+    fifo = tmp_path / "f.csv"
+    os.mkfifo(fifo)
+    before = table_hashes(base)
+    for path, name in ((fifo, "f.csv"), ("/dev/stdin", "stdin")):
+        line = _one_error_line(runner.invoke(app, ["--ledger", str(base), "actuals", str(path)]))
+        assert line == (f"Error: {name}: this is not a regular file but a pipe, a device or standard input; "
+                        "save the data to a file and give that")
+    assert table_hashes(base) == before
+
+
+def test_empty_file_left_by_a_kill_during_creation(runner, tmp_path):
+    path = tmp_path / "l.duckdb"
+    path.touch()
+    os.utime(path, (0, 0))                     # an old empty file: a left-over, not a creation under way
+    line = _one_error_line(runner.invoke(app, ["--ledger", str(path), "runs"]))
+    assert line == (f"Error: {path} is empty (0 bytes), probably left by a command stopped while creating it; "
+                    "delete it and run the command again")
+
+
+SCRIPT = """
+set -e
+mount -t tmpfs -o size=3m tmpfs "$1"
+cd "$3"
+printf 'series,period,actual\\na,2026-01,1\\n' > a.csv
+"$PY" -m ledger --ledger "$1/l.duckdb" actuals a.csv > /dev/null
+"$PY" -c "$HASHES" "$1/l.duckdb" > before.json
+set +e
+"$PY" -m ledger --ledger "$1/l.duckdb" snapshot "$2" --model m --origin 2025-12 2> snap.err; echo $? > snap.rc
+"$PY" -m ledger --ledger "$1/l.duckdb" export "$1/out" 2> export.err; echo $? > export.rc
+set -e
+"$PY" -c "$HASHES" "$1/l.duckdb" > after.json
+"$PY" -m ledger --ledger "$1/l.duckdb" verify > verify.out; echo $? > verify.rc
+cat before.json after.json snap.rc snap.err export.rc export.err verify.rc verify.out | "$PY" -c "
+import json, sys; lines = sys.stdin.read().splitlines(); print(json.dumps(lines))"
+"""
+HASHES = "import sys, json; from tests.helpers import table_hashes; print(json.dumps(table_hashes(sys.argv[1])))"
+
+
+def test_disk_full_during_a_write_and_an_export(tmp_path):
+    if shutil.which("unshare") is None or subprocess.run(["unshare", "-rm", "true"]).returncode != 0:
+        pytest.fail("this test needs `unshare -rm` to mount a private tmpfs (util-linux, user namespaces)")
+    big = tmp_path / "big.csv"
+    rows = ["series,period,forecast,lower_80,upper_80"] + [
+        f"s{i % 3000},{2026 + i // 3000 // 12}-{i // 3000 % 12 + 1:02d},{i}.5,{i},{i + 1}" for i in range(150_000)]
+    big.write_text("\n".join(rows) + "\n")
+    mount = tmp_path / "small"
+    mount.mkdir()
+    notes = tmp_path / "notes"           # the script's own files, outside the full disk
+    notes.mkdir()
+    env = dict(os.environ, PYTHONPATH=str(REPO), PY=sys.executable, HASHES=HASHES)
+    done = subprocess.run(["unshare", "-rm", "sh", "-c", textwrap.dedent(SCRIPT), "sh", str(mount), str(big), str(notes)],
+                          capture_output=True, text=True, env=env, cwd=REPO, timeout=300)
+    assert done.returncode == 0, done.stderr
+    before, after, snap_rc, snap_err, export_rc, export_err, verify_rc, verify_out = json.loads(done.stdout)
+    assert before == after                                           # the ledger is unchanged
+    where = f"{mount}/"
+    assert (snap_rc, export_rc) == ("1", "1")
+    assert snap_err.startswith(f"Error: no space is left on the device holding {where}"), snap_err
+    assert export_err.startswith(f"Error: no space is left on the device holding {where}"), export_err
+    assert verify_rc == "0" and verify_out.endswith("sound")

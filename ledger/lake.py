@@ -68,7 +68,13 @@ def escape_partition_value(value: str) -> str:
 
 
 def is_lake(folder: str | os.PathLike) -> bool:
-    return (Path(folder) / MANIFEST_NAME).is_file()
+    """A folder whose manifest is a partitioned export's (a flat export carries a manifest too)."""
+    if not (Path(folder) / MANIFEST_NAME).is_file():
+        return False
+    try:
+        return read_manifest(folder).layout == LAYOUT
+    except LedgerError:
+        return True          # an unreadable manifest: let the lake's own checks report it
 
 
 def _quote(path: Path | str) -> str:

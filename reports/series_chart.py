@@ -61,6 +61,16 @@ def series_chart(chart_id: str, title: str, summary: str, *, x: Sequence[float],
 _CSS_DASH = {"-": "solid", "--": "dashed", "-.": "dashed", ":": "dotted"}
 
 
+def band_alpha(i: int) -> float:
+    """Opacity of the i-th fan band, widest first (the narrower bands are drawn over it)."""
+    return 0.14 + 0.12 * i
+
+
+def _seen_alpha(i: int) -> float:
+    """How opaque the i-th band looks where it overlaps every wider band (what its swatch shows)."""
+    return 1 - math.prod(1 - band_alpha(j) for j in range(i + 1))
+
+
 def legend_entries(models: Sequence[str], styles: Mapping[str, dict], horizon: int,
                    fan_model: str | None, levels: Sequence[str]) -> list[dict]:
     """The series chart's legend as data for the page: label, colour, CSS line style, kind."""
@@ -70,8 +80,8 @@ def legend_entries(models: Sequence[str], styles: Mapping[str, dict], horizon: i
     if fan_model:
         color = styles[fan_model]["color"]
         out.append({"label": f"{fan_model}, latest run", "color": color, "line": "solid", "kind": "line"})
-        out += [{"label": f"{lv}% interval, latest run", "color": color, "line": "solid", "kind": "band"}
-                for lv in sorted(levels, key=float, reverse=True)]
+        out += [{"label": f"{lv}% interval, latest run", "color": color, "line": "solid", "kind": "band",
+                 "opacity": round(_seen_alpha(i), 3)} for i, lv in enumerate(sorted(levels, key=float, reverse=True))]
     return out
 
 
@@ -151,7 +161,7 @@ class _SeriesCanvas:
             color = styles[fan_model]["color"]
             for i, level in enumerate(levels):
                 self.bands[level] = top.add_patch(Polygon(np.zeros((1, 2)), closed=True, facecolor=color,
-                                                          alpha=0.14 + 0.12 * i, linewidth=0,
+                                                          alpha=band_alpha(i), linewidth=0,
                                                           label=f"{format_level(level)}% interval, latest"))
             self.fan_line, = top.plot([], [], color=color, linewidth=1.6, marker="o", markersize=2.5,
                                       label=f"{short(fan_model)}, latest run")

@@ -58,7 +58,7 @@ def summary_lines(result) -> list[str]:
             lines.append(f"  {i}. {row.kind} {where}: {row.evidence}")
     ledger = f"--ledger {shlex.quote(str(r.ledger_path))}"
     lines += ["Try next:",
-              f"  backsight {ledger} flags --severity alert",
+              f"  backsight {ledger} flags --severity act",
               f"  backsight {ledger} scores --by model --horizon 1",
               f"  backsight {ledger} compare {shlex.quote(result.incumbent)} {shlex.quote(_challenger(result))} --horizon 1"]
     return lines + [f"Report: {result.report.index}"]

@@ -36,12 +36,13 @@ __all__ = ["flags", "compare", "standings", "advise"]
 class Kind(str, enum.Enum):
     drift = "drift"
     calibration = "calibration"
+    quantiles = "quantiles"
     value = "value"
     data = "data"
 
 
 class SeverityOpt(str, enum.Enum):
-    alert = "alert"
+    act = "act"
     watch = "watch"
     note = "note"
 
@@ -56,7 +57,7 @@ _FLAG_TABLE = ["kind", "severity", "series", "model", "horizons", "level", "sinc
 def flags(
     ctx: typer.Context,
     kind: Annotated[list[Kind] | None, typer.Option("--kind", metavar="KIND", help="Only findings of this kind: drift, calibration, value or data (repeatable).")] = None,
-    severity: Annotated[list[SeverityOpt] | None, typer.Option("--severity", metavar="SEVERITY", help="Only findings of this severity: alert, watch or note (repeatable).")] = None,
+    severity: Annotated[list[SeverityOpt] | None, typer.Option("--severity", metavar="SEVERITY", help="Only findings of this severity: act, watch or note (repeatable).")] = None,
     model: ModelOpt = None,
     series: SeriesOpt = None,
     horizon: HorizonOpt = None,

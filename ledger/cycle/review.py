@@ -27,6 +27,7 @@ from ..findings.base import FlagOptions
 from ..intake.ingest import read_actuals, read_forecasts
 from ..intake.record import write_actuals, write_runs
 from ..scoring.cells import Selection
+from ..scoring.reads import report_state_hash
 from ..store import Store
 from .changes import recent_mase
 from .identity import with_keys
@@ -137,7 +138,7 @@ def review(store: Store, inbox, *, include_excluded: bool = False, **thresholds)
             if problems:
                 raise _refuse(inbox, problems)
             as_of = store.next_timestamp()
-            state = store.state_hash(as_of)
+            state = report_state_hash(store, as_of)   # the hash the review's report states
             last = _last_review(store)
             if last is not None and last[1] == state and runs_new == actuals_new == 0:
                 return ReviewResult(last[0], False, last[2], state, [f.name for f in files], 0, 0,

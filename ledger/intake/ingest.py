@@ -11,7 +11,6 @@ is checked there in SQL. Memory stays flat whatever the file's size.
 from __future__ import annotations
 
 import dataclasses
-import datetime as dt
 import re
 
 import numpy as np
@@ -20,6 +19,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from .columns import bound_columns, is_level_column, misspelt_column, quantile_columns
+from .keys import case_twins_warning, check_option, normalise_keys
 from ..errors import FrequencyError, InputError
 from ..periods import FREQUENCIES, check_frequency, parse_label
 from .sources import Chunk, open_table
@@ -181,7 +181,7 @@ MAX_HORIZON = 1000
 
 def _keys(source: str, frame: pd.DataFrame, column: str) -> pa.Array:
     _check_value_kinds(source, frame[column], column, number=False)
-    text = _as_text(frame[column])
+    text = normalise_keys(source, _as_text(frame[column]), column)
     empty = _mask(pc.equal(text, ""))
     if empty.any():
         raise InputError(source, "is empty", row=int(np.argmax(empty)) + 1, column=column)
@@ -194,38 +194,35 @@ def _keys(source: str, frame: pd.DataFrame, column: str) -> pa.Array:
 
 
 class _Labels:
-    """Period labels seen in one column: each distinct label parsed once, with its first row."""
+    """Period labels of one column, parsed a chunk at a time into the stage's label table.
 
-    def __init__(self, column: str, parsed: dict[str, tuple[str | None, dt.date]]):
+    Only one chunk's distinct labels are in memory at once, however many the file holds.
+    """
+
+    def __init__(self, column: str, stage: Stage):
         self.column = column
-        self.parsed = parsed          # shared by the columns of one file
-        self.first: dict[str, int] = {}
+        self.stage = stage
 
     def learn(self, source: str, text: pa.Array, offset: int) -> None:
-        """Parse the labels of one chunk (rows ``offset + 1`` …) that were not seen before."""
+        """Parse the distinct labels of one chunk (rows ``offset + 1`` …)."""
         encoded = text.dictionary_encode()
         codes, uniques = encoded.indices.to_numpy(zero_copy_only=False), encoded.dictionary.to_pylist()
-        new = [i for i, label in enumerate(uniques) if label not in self.first]
-        if not new:
+        if not uniques:
             return
         first_pos = np.unique(codes, return_index=True)[1]  # codes number labels by first appearance
-        for i in new:
-            label = uniques[i]
-            if label not in self.parsed:
-                try:
-                    self.parsed[label] = parse_label(label)
-                except ValueError as exc:  # row within the chunk: the caller shifts it
-                    raise InputError(source, str(exc), row=int(first_pos[i]) + 1, column=self.column) from None
-            self.first[label] = offset + int(first_pos[i]) + 1
+        kinds, days = [], []
+        for i, label in enumerate(uniques):
+            try:
+                kind, day = parse_label(label)
+            except ValueError as exc:  # row within the chunk: the caller shifts it
+                raise InputError(source, str(exc), row=int(first_pos[i]) + 1, column=self.column) from None
+            kinds.append(kind)
+            days.append(day)
+        self.stage.add_labels(self.column, uniques, kinds, days, offset + first_pos + 1)
 
     def kinds(self) -> dict[str, int]:
         """Each label kind (frequency) found in the column, with the first row holding one."""
-        out: dict[str, int] = {}
-        for label, row in self.first.items():
-            kind = self.parsed[label][0]
-            if kind is not None and row < out.get(kind, row + 1):
-                out[kind] = row
-        return out
+        return self.stage.label_kinds(self.column)
 
 
 def _decide_frequency(source: str, columns: list[_Labels], freq: str | None, known: set[str]) -> str:
@@ -268,6 +265,15 @@ def _extra_columns(columns: list[str], known: set[str], source: str) -> list[str
     return extras
 
 
+def _case_warnings(source: str, stage: Stage, *columns: tuple[str, str]) -> list[str]:
+    """Warnings naming keys of the file that differ only by case from each other or the ledger's."""
+    out = []
+    for column, table in columns:
+        if warning := case_twins_warning(source, column, stage.case_twins(column, table)):
+            out.append(warning)
+    return out
+
+
 def _ignored(source: str, extras: list[str]) -> str:
     shown = list_names([shorten(c) for c in extras], 10)
     return f"{source}: ignored column{'s' if len(extras) > 1 else ''} {shown}"
@@ -277,16 +283,18 @@ def _model_origin(source, frame, model, origin) -> tuple[pa.Array, pa.Array]:
     n = len(frame)
     out = []
     for column, option in (("model", model), ("origin", origin)):
+        if option is not None:
+            option = check_option(option, f"--{column}")
         if column in frame.columns:
             values = _keys(source, frame, column)
             if option is not None:
-                differ = _mask(pc.not_equal(values, str(option).strip()))
+                differ = _mask(pc.not_equal(values, option))
                 if differ.any():
                     i = int(np.argmax(differ))
                     raise InputError(source, f"{values[i].as_py()!r} differs from --{column} {option}; give one or the other",
                                      row=i + 1, column=column)
         elif option is not None:
-            values = pa.array(np.full(n, str(option).strip(), dtype=object), pa.string())
+            values = pa.array(np.full(n, option, dtype=object), pa.string())
         else:
             raise InputError(source, f"has no {column} column and no --{column} was given")
         out.append(values)
@@ -321,8 +329,7 @@ def read_forecasts(
     stage = Stage(store.con, {"model": "VARCHAR", "origin": "VARCHAR", "series": "VARCHAR", "period": "VARCHAR"}
                   | numbers)
     try:
-        parsed: dict[str, tuple[str | None, dt.date]] = {}
-        periods, origins = _Labels("period", parsed), _Labels("origin", parsed)
+        periods, origins = _Labels("period", stage), _Labels("origin", stage)
         outside = _Outside(source)
         for chunk in table.chunks:
             try:
@@ -333,10 +340,11 @@ def read_forecasts(
             stage.append(chunk.offset, staged)
         frequency = _decide_frequency(source, [periods, origins], freq, stage.known_frequencies())
         stage.check_recorded(source, frequency)
-        stage.resolve({label: day for label, (_, day) in parsed.items()}, frequency, ["period", "origin"])
+        stage.resolve(frequency, ["period", "origin"])
         stage.check_horizons(source, frequency, MAX_HORIZON)
         stage.check_unique(source, ["model", "origin_index", "series", "period_index"], "period",
                            "a second forecast for the same series, period, model and origin")
+        warnings += _case_warnings(source, stage, ("series", "series"), ("model", "runs"))
     except BaseException:
         stage.close()
         raise
@@ -426,8 +434,7 @@ def read_actuals(store: Store, data, *, freq: str | None = None, name: str | Non
     warnings = [_ignored(source, extras)] if extras else []
     stage = Stage(store.con, {"series": "VARCHAR", "period": "VARCHAR", "value": "DOUBLE"})
     try:
-        parsed: dict[str, tuple[str | None, dt.date]] = {}
-        periods = _Labels("period", parsed)
+        periods = _Labels("period", stage)
         for chunk in table.chunks:
             try:
                 keys = _keys(source, chunk.frame, "series")
@@ -439,8 +446,9 @@ def read_actuals(store: Store, data, *, freq: str | None = None, name: str | Non
             stage.append(chunk.offset, {"series": keys, "period": text, "value": value})
         frequency = _decide_frequency(source, [periods], freq, stage.known_frequencies())
         stage.check_recorded(source, frequency)
-        stage.resolve({label: day for label, (_, day) in parsed.items()}, frequency, ["period"])
+        stage.resolve(frequency, ["period"])
         stage.check_unique(source, ["series", "period_index"], "period", "a second actual for the same series and period")
+        warnings += _case_warnings(source, stage, ("series", "series"))
     except BaseException:
         stage.close()
         raise

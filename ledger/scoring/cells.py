@@ -55,7 +55,7 @@ from .repeatable import one_thread
 from ..store import Store, latest_actuals_sql, live_runs_sql
 from ..wording import format_level
 
-__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "cells_sql", "scale_sql", "forecasts_sql", "score_cells", "interval_cells", "interval_misses", "scores", "POINT_COLUMNS"]
+__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "bounds_join", "cells_sql", "scale_sql", "forecasts_sql", "period_filter", "score_cells", "interval_cells", "interval_misses", "scores", "POINT_COLUMNS"]
 
 GroupKey = Literal["series", "model", "horizon", "origin", "period"]
 GROUP_KEYS: tuple[str, ...] = get_args(GroupKey)
@@ -104,6 +104,16 @@ def _until_date(label: str) -> dt.date:
     return index_start(period_index(day, freq) + 1, freq)
 
 
+def period_filter(sel: Selection, column: str = "f.period") -> str:
+    """The --since/--until condition on a target-period column (" AND …", or "" when unbounded)."""
+    return (f" AND {column} >= $since" if sel.since else "") + (f" AND {column} < $until" if sel.until else "")
+
+
+def bounds_join(cells: str = "c") -> str:
+    """The join of a cell (alias ``cells``: run_id, series, period_index) to its bounds, alias b."""
+    return f"JOIN bounds b ON b.run_id = {cells}.run_id AND b.series = {cells}.series AND b.period_index = {cells}.period_index"
+
+
 def _in_list(column: str, values: Sequence, name: str) -> tuple[str, dict]:
     if not values:
         return "", {}
@@ -126,10 +136,7 @@ def _parts(sel: Selection) -> tuple[str, dict]:
         sql, p = _in_list(column, values, name)
         where += sql
         params.update(p)
-    if sel.since:
-        where += " AND f.period >= $since"
-    if sel.until:
-        where += " AND f.period < $until"
+    where += period_filter(sel)
     for j, (name, value) in enumerate(sel.where):
         params.update({f"wn{j}": name, f"wv{j}": value})
         where += (f" AND f.series IN (SELECT series FROM ({attributes_sql()}) "
@@ -225,22 +232,28 @@ def interval_cells(store: Store, sel: Selection) -> pd.DataFrame:
                b.level, b.lower, b.upper, c.actual, c.actual < b.lower AS below,
                c.actual > b.upper AS above, c.q
         FROM ({sql}) c
-        JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index
+        {bounds_join()}
         ORDER BY c.model, b.level, c.series, c.horizon, c.period_index""", params).df()
 
 
 def interval_misses(store: Store, sel: Selection) -> pd.DataFrame:
     """The rows of :func:`interval_cells`, in its order, with only what calibration tests use.
 
-    Columns: model, series, period_index, horizon, level, below, above (fewer columns to
-    transfer: the findings of a large ledger read millions of these rows).
+    Columns: model, series, period_index, horizon, level, below, above, ratio (|e| over the
+    half-width on the side of the actual, NULL when that half-width is not positive), dist (how
+    far the actual fell outside the interval, over the scale q; 0 inside, NULL without a scale).
+    Fewer columns than :func:`interval_cells`: the findings of a large ledger read millions of
+    these rows.
     """
     sql, params = cells_sql(sel)
     return store.con.execute(f"""
         SELECT c.model, c.series, c.period_index, c.horizon, b.level,
-               c.actual < b.lower AS below, c.actual > b.upper AS above
+               c.actual < b.lower AS below, c.actual > b.upper AS above,
+               CASE WHEN c.e >= 0 AND b.upper > c.point THEN c.e / (b.upper - c.point)
+                    WHEN c.e < 0 AND c.point > b.lower THEN -c.e / (c.point - b.lower) END AS ratio,
+               (greatest(b.lower - c.actual, 0) + greatest(c.actual - b.upper, 0)) / c.q AS dist
         FROM ({sql}) c
-        JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index
+        {bounds_join()}
         ORDER BY c.model, b.level, c.series, c.horizon, c.period_index""", params).df()
 
 
@@ -262,7 +275,7 @@ _POINT_AGG = """
 # n: the cells that carry level L's bounds (a model may send bounds for some series only), so
 # coverage_L and width_L state how many cells they are over (column n_L).
 _LEVEL_AGG = """
-    avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN 1.0 ELSE 0.0 END) AS coverage,
+    avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN CAST(1 AS DOUBLE) ELSE CAST(0 AS DOUBLE) END) AS coverage,
     count(*) AS n,
     avg(b.upper - b.lower) AS width,
     avg((b.upper - b.lower)
@@ -308,7 +321,8 @@ def _materialise(store: Store, sel: Selection, attrs: list[str], where: list[tup
     cols = "".join(f", a{i}.value AS g__{name}" for i, name in enumerate(attrs))
     cond = f"WHERE {' AND '.join(filters)}" if filters else ""
     # sorted by the cell's key, so that the aggregates add each group's values in one order
-    store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT c.*{cols} FROM ({sql}) c "
+    store.con.execute(f"CREATE OR REPLACE TEMP TABLE _scored AS SELECT row_number() OVER (ORDER BY c.model, c.series, "
+                      f"c.origin_index, c.period_index) AS cell_id, c.*{cols} FROM ({sql}) c "
                       f"{' '.join(joins)} {cond} ORDER BY c.model, c.series, c.origin_index, c.period_index",
                       params)
 
@@ -351,7 +365,7 @@ def _aggregates(con, keys: list[str], quantile_detail: bool) -> tuple:
         f"SELECT {select_keys + ',' if keys else ''} {_POINT_AGG} FROM _scored c {gb}").df()
     levels = con.execute(
         f"SELECT {select_keys + ',' if keys else ''} b.level, {_LEVEL_AGG} FROM _scored c "
-        f"JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index "
+        f"{bounds_join()} "
         f"GROUP BY {group + ',' if keys else ''} b.level").df()
     pinball = con.execute(
         f"SELECT {select_keys + ',' if keys else ''} {_PINBALL_AGG} FROM _scored c "

@@ -24,7 +24,7 @@ from tests.helpers import REPO, table_hashes
 def filled(tmp_path):
     path = tmp_path / "l.duckdb"
     with Ledger.open(path) as book:
-        book.record_actuals(pd.DataFrame({"series": ["a", "b\x1fc", "b"], "period": "2026-01", "actual": [1, 2, -0.0]}))
+        book.record_actuals(pd.DataFrame({"series": ["a", "b;c", "b"], "period": "2026-01", "actual": [1, 2, -0.0]}))
         book.record_actuals(pd.DataFrame({"series": ["a"], "period": "2026-01", "actual": [9.5]}))
         book.snapshot(pd.DataFrame({"series": ["a", "b"], "period": "2026-02", "forecast": 1.25, "lower_80": 0.5,
                                     "upper_80": 2.0, "q10": 0.25, "q90": 2.5}), model="m", origin="2026-01")

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import json
 
+import numpy as np
+
 import pandas as pd
 import pytest
 
@@ -36,28 +38,56 @@ def test_review_prints_what_it_recorded_and_writes_the_report(reviewed, tmp_path
     assert stored["state_hash"][:12] in html
 
 
-def test_gate_exit_codes(reviewed, runner):
-    path, inbox, _ = reviewed
+def _narrow_inbox(inbox):
+    """An invented inbox whose one model's 80% intervals are far too narrow (±0.5 around 100 for
+    actuals of sd 10): its calibration finding is of the upper severity."""
+    rng = np.random.default_rng(5)
+    months = pd.period_range("2022-01", "2025-12", freq="M")
+    names = ["n1", "n2", "n3"]
+    y = {s: 100 + rng.normal(0, 10, len(months)) for s in names}
+    (inbox / "narrow").mkdir(parents=True)
+    pd.DataFrame([{"series": s, "period": str(m), "actual": round(float(y[s][i]), 2)}
+                  for s in names for i, m in enumerate(months)]).to_csv(inbox / "actuals.csv", index=False)
+    for o in range(24, len(months) - 1):
+        pd.DataFrame([{"series": s, "period": str(months[o + 1]), "forecast": 100.0, "lower_80": 99.5,
+                       "upper_80": 100.5} for s in names]).to_csv(inbox / "narrow" / f"{months[o]}.csv", index=False)
+
+
+def test_gate_exit_codes(tmp_path, runner):
+    path, inbox = tmp_path / "g.duckdb", tmp_path / "inbox"
     base = ["--ledger", str(path)]
-    assert GATE_EXIT not in (0, 1, 2) and GATE_LEVELS == ("alert", "watch")
-    # the month-0 ledger has alert findings (data: short history) and only notes for calibration
-    r = runner.invoke(app, base + ["flags", "--fail-on", "alert"])
-    assert r.exit_code == GATE_EXIT and r.stderr.startswith("gate: 3 finding(s) at or above alert; exit code 3")
+    assert GATE_EXIT not in (0, 1, 2) and GATE_LEVELS == ("act", "watch")
+    _narrow_inbox(inbox)
+    r = runner.invoke(app, base + ["review", str(inbox), "--out", str(tmp_path / "rep"), "--fail-on", "act"])
+    assert r.exit_code == GATE_EXIT and r.stderr.endswith("gate: 1 finding(s) at or above act; exit code 3\n")
+    assert r.stdout.startswith("review 1: 23 run(s) and 144 actual(s) recorded")   # the output comes first
+    with Ledger.open(path, create=False, read_only=True) as book:
+        found = book.flags()
+    assert found.loc[found["severity"] == "act", "check"].tolist() == ["too narrow"]
+    r = runner.invoke(app, base + ["flags", "--fail-on", "act"])
+    assert r.exit_code == GATE_EXIT and "gate: 1 finding(s) at or above act; exit code 3" in r.stderr
     assert runner.invoke(app, base + ["flags", "--fail-on", "watch", "--format", "csv"]).exit_code == GATE_EXIT
-    r = runner.invoke(app, base + ["flags", "--kind", "calibration", "--fail-on", "watch"])
+    r = runner.invoke(app, base + ["flags", "--kind", "data", "--fail-on", "watch"])   # notes only
     assert r.exit_code == 0 and "gate:" not in r.stderr
     assert runner.invoke(app, base + ["flags"]).exit_code == 0
     r = runner.invoke(app, base + ["flags", "--fail-on", "severe"])
-    assert r.exit_code == 1 and r.stderr == "Error: --fail-on 'severe' is not a severity the gate takes; use alert or watch\n"
+    assert r.exit_code == 1 and r.stderr == "Error: --fail-on 'severe' is not a severity the gate takes; use act or watch\n"
     before = table_hashes(path)
-    r = runner.invoke(app, base + ["review", str(inbox), "--out", str(path.parent / "rep2"), "--fail-on", "alert"])
+    r = runner.invoke(app, base + ["review", str(inbox), "--out", str(tmp_path / "rep2"), "--fail-on", "watch"])
     assert r.exit_code == GATE_EXIT and r.stdout.startswith("nothing new in ")
     assert table_hashes(path) == before
 
 
+def test_the_gate_stays_open_on_notes(reviewed, runner):
+    path, inbox, _ = reviewed     # month 0: too little history for anything but notes
+    r = runner.invoke(app, ["--ledger", str(path), "review", str(inbox), "--out", str(path.parent / "r"),
+                            "--fail-on", "watch"])
+    assert r.exit_code == 0 and "gate:" not in r.stderr
+
+
 def test_gate_order_of_severities():
     frame = pd.DataFrame({"severity": ["watch", "note", "note"]})
-    assert len(at_or_above(frame, "alert")) == 0
+    assert len(at_or_above(frame, "act")) == 0
     assert len(at_or_above(frame, "watch")) == 1
     assert len(at_or_above(frame, "WATCH")) == 1
 
@@ -122,7 +152,9 @@ def test_the_report_shows_changes_events_and_stability(tmp_path, runner):
     counts = {s: diff.count(s) for s in ("new", "resolved", "persisting")}
     assert (f"Review 3: {counts['new']} new, {counts['resolved']} resolved and {counts['persisting']} "
             "persisting findings") in index
-    assert index.index('id="changes"') < index.index('id="leaderboard"')   # on the first screen
+    # a line on the first screen (the review section), the block right after the accuracy matrix
+    line = f"{counts['new']} new, {counts['resolved']} resolved, {counts['persisting']} persisting findings"
+    assert index.index(line) < index.index('id="matrix"') < index.index('id="changes"')
     methods = (out / "methods.html").read_text(encoding="utf-8")
     assert "&lt;b&gt;stock-out&lt;/b&gt;" in methods and "<b>stock-out" not in methods   # escaped
     series = next(p for p in out.glob("s-east-pumps-*.html")).read_text(encoding="utf-8")

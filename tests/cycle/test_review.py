@@ -70,7 +70,7 @@ def test_three_months_record_only_what_is_new(book, tmp_path):
         result = book.review(inbox)
         assert result.stored and result.review_id == k + 1
         assert (result.runs_new, result.actuals_new) == expected[k]
-        assert result.state_hash == book.store.state_hash(result.as_of)
+        assert result.state_hash == book.report_state_hash(as_of=result.as_of)
         assert result.findings["key"].is_unique
     assert len(book.runs()) == 3 + 2 * 3
     listed = book.reviews()
@@ -149,15 +149,15 @@ def _store_review(store, review_id: int, keys: list[tuple[str, str]], mase: dict
 
 def test_changes_equal_a_hand_computed_diff(book):
     k_drift, k_cal, k_val, k_note = ("drift|a|s1||", "calibration|a||80|1", "value|b|||", "calibration|b||95|all")
-    _store_review(book.store, 1, [(k_drift, "alert"), (k_cal, "watch"), (k_note, "note")], {"a": 0.80, "b": 1.00})
-    _store_review(book.store, 2, [(k_cal, "alert"), (k_val, "alert")], {"a": 0.95, "b": 1.05, "c": 0.7})
+    _store_review(book.store, 1, [(k_drift, "act"), (k_cal, "watch"), (k_note, "note")], {"a": 0.80, "b": 1.00})
+    _store_review(book.store, 2, [(k_cal, "act"), (k_val, "act")], {"a": 0.95, "b": 1.05, "c": 0.7})
     got = changes(book.store)
-    # by hand: drift resolved, calibration persisting (watch -> alert), value new; notes are not findings
+    # by hand: drift resolved, calibration persisting (watch -> act), value new; notes are not findings
     assert (got.then, got.now) == (1, 2)
     assert list(zip(got.findings["status"], got.findings["key"])) == [
         ("new", k_val), ("persisting", k_cal), ("resolved", k_drift)]
     persisting = got.findings.iloc[1]
-    assert (persisting["severity_then"], persisting["severity_now"]) == ("watch", "alert")
+    assert (persisting["severity_then"], persisting["severity_now"]) == ("watch", "act")
     models = got.models.set_index("model")
     assert models.loc["a", "change"] == pytest.approx(0.15) and models.loc["a", "moved"]
     assert models.loc["b", "change"] == pytest.approx(0.05) and not models.loc["b", "moved"]

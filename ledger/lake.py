@@ -38,7 +38,8 @@ __all__ = ["LAYOUT", "LakeExport", "LakeMismatch", "export_lake", "is_lake", "la
            "escape_partition_value", "verify_lake"]
 
 LAYOUT = "partitioned"
-WHOLE_TABLES = ("meta", "series", "runs", "attributes", "actual_writes")
+WHOLE_TABLES = ("meta", "series", "runs", "attributes", "actual_writes", "events", "reviews", "review_findings",
+                "review_models")
 RUN_TABLES = ("forecasts", "bounds", "quantiles")
 _ORDER = {"forecasts": "run_id, series, period_index", "bounds": "run_id, series, period_index, level",
           "quantiles": "run_id, series, period_index, tau", "actuals": "series, period_index, revision"}
@@ -67,7 +68,13 @@ def escape_partition_value(value: str) -> str:
 
 
 def is_lake(folder: str | os.PathLike) -> bool:
-    return (Path(folder) / MANIFEST_NAME).is_file()
+    """A folder whose manifest is a partitioned export's (a flat export carries a manifest too)."""
+    if not (Path(folder) / MANIFEST_NAME).is_file():
+        return False
+    try:
+        return read_manifest(folder).layout == LAYOUT
+    except LedgerError:
+        return True          # an unreadable manifest: let the lake's own checks report it
 
 
 def _quote(path: Path | str) -> str:

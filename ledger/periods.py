@@ -36,6 +36,7 @@ __all__ = [
     "period_label",
     "check_frequency",
     "index_start",
+    "period_sql",
 ]
 
 Frequency = Literal["yearly", "quarterly", "monthly", "weekly", "daily"]
@@ -45,12 +46,14 @@ SEASON_LENGTHS: dict[str, int] = {"yearly": 1, "quarterly": 4, "monthly": 12, "w
 _EPOCH_DAY = dt.date(1970, 1, 1)
 _EPOCH_MONDAY = dt.date(1970, 1, 5)
 
-_YEAR = re.compile(r"^(\d{4})$")
-_QUARTER = re.compile(r"^(\d{4})-?[Qq]([1-4])$")
-_MONTH = re.compile(r"^(\d{4})-(\d{1,2})$")
-_WEEK = re.compile(r"^(\d{4})-?[Ww](\d{1,2})$")
-_DATE = re.compile(r"^(\d{4})-(\d{2})-(\d{2})(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d+)?)?(?:Z|[+-]\d{2}:?\d{2})?)?$")
-_SERIAL = re.compile(r"^\d{5}(\.\d+)?$")
+# re.ASCII: \d is 0-9 only, so Arabic-Indic or full-width digits are refused as in numbers
+_YEAR = re.compile(r"^(\d{4})$", re.ASCII)
+_QUARTER = re.compile(r"^(\d{4})-?[Qq]([1-4])$", re.ASCII)
+_MONTH = re.compile(r"^(\d{4})-(\d{1,2})$", re.ASCII)
+_WEEK = re.compile(r"^(\d{4})-?[Ww](\d{1,2})$", re.ASCII)
+_DATE = re.compile(r"^(\d{4})-(\d{2})-(\d{2})(?:[T ](\d{2}):(\d{2})(?::(\d{2})(?:\.\d+)?)?(Z|[+-]\d{2}:?\d{2})?)?$",
+                   re.ASCII)
+_SERIAL = re.compile(r"^\d{5}(\.\d+)?$", re.ASCII)
 
 
 def check_frequency(freq: str) -> str:
@@ -76,6 +79,7 @@ def parse_label(text: str) -> tuple[str | None, dt.date]:
     if len(s) > 40:
         raise ValueError(f"{s[:40]!r}… ({len(s):,} characters) is not a period")
     if m := _DATE.match(s):
+        _check_time(s, m)
         return None, _date(s, int(m[1]), int(m[2]), int(m[3]))
     if m := _MONTH.match(s):
         month = int(m[2])
@@ -97,6 +101,20 @@ def parse_label(text: str) -> tuple[str | None, dt.date]:
         f"{text!r} is not a period{hint}; use an ISO date (2026-07-31) or a label such as "
         "2026, 2026Q3, 2026-11 or 2026-W05"
     )
+
+
+def _check_time(text: str, m: re.Match) -> None:
+    """A time of day is allowed (and ignored) when it is a real time without a UTC offset.
+
+    An offset is refused rather than applied: a period is a calendar date where the data was
+    recorded, and moving it to UTC could move it to another day.
+    """
+    hour, minute, second = (int(g) if g else 0 for g in (m[4], m[5], m[6]))
+    if hour > 23 or minute > 59 or second > 59:
+        raise ValueError(f"{text!r} is not a valid time of day")
+    if m[7]:
+        raise ValueError(f"{text!r} has a UTC offset; give the date alone (a period is a calendar date, "
+                         "in no time zone)")
 
 
 def _date(text: str, year: int, month: int, day: int) -> dt.date:
@@ -165,7 +183,13 @@ def _index_start(index: int, freq: str) -> dt.date:
 
 
 def period_label(day: dt.date, freq: str) -> str:
-    """The canonical label of the period containing ``day``: 2026, 2026Q3, 2026-11, 2026-W05, 2026-11-30."""
+    """The canonical label of the period containing ``day``: 2026, 2026Q3, 2026-11, 2026-W05, 2026-11-30.
+
+    ``day`` may be a datetime (a pandas Timestamp from a query): its time of day is not part of a
+    period, so every message prints the same label (a daily origin 2021-01-02, never 2021-01-02T00:00:00).
+    """
+    if isinstance(day, dt.datetime):
+        day = day.date()
     start = period_start(day, freq)
     if freq == "yearly":
         return f"{start.year}"
@@ -193,3 +217,19 @@ def parse_period(text: str, freq: str) -> dt.date:
         raise ValueError(f"{text!r} is a {label_freq} label, not a {freq} period")
     return period_start(day, freq)
 
+
+
+def period_sql(day: str, freq: str) -> tuple[str, str]:
+    """SQL for (first day, index) of the period of frequency ``freq`` holding DATE ``day``:
+    the formulas of :func:`period_start` and :func:`period_index`, for set-based staging."""
+    freq = check_frequency(freq)
+    if freq == "yearly":
+        return f"make_date(year({day}), 1, 1)", f"year({day})"
+    if freq == "quarterly":
+        return f"CAST(date_trunc('quarter', {day}) AS DATE)", f"4 * year({day}) + (month({day}) - 1) // 3"
+    if freq == "monthly":
+        return f"CAST(date_trunc('month', {day}) AS DATE)", f"12 * year({day}) + month({day}) - 1"
+    if freq == "weekly":
+        monday = f"CAST({day} - CAST(isodow({day}) - 1 AS INTEGER) AS DATE)"
+        return monday, f"({monday} - DATE '1970-01-05') // 7"
+    return day, f"{day} - DATE '1970-01-01'"

@@ -5,9 +5,10 @@ One home, so that two copies cannot drift apart (two formats of one interval lev
 columns collide). Everything here is pure string formatting: nothing reads the ledger.
 
 - Periods: :func:`label` / :func:`labels` turn period indexes into labels ('2026-01', '2026Q3').
-- Severity: :data:`SEVERITY_ORDER` ranks alert before watch before note (:func:`severity_rank`).
+- Severity: :data:`SEVERITY_ORDER` ranks act before watch before note (:func:`severity_rank`).
 - Levels: :func:`format_level` writes an interval level (or a quantile level) as it appears in
-  column names and sentences ('80', '97.5').
+  column names and sentences ('80', '97.5'); :func:`quantile_name` names a quantile's input
+  column ('q10', 'q975').
 - Numbers: :func:`num` (significant figures, for report tables and sentences), :func:`short_num`
   and :func:`signed` (figures in findings' evidence), :func:`pct`, :func:`p_value` / :func:`pval`.
 - Counts, lists and values in one-line messages: :func:`plural`, :func:`list_names`, :func:`shorten`.
@@ -17,10 +18,12 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable
+from decimal import Decimal
 
 import pandas as pd
 
 from .periods import index_start, period_label
+from .stats.quantiles import TAU_DIGITS
 
 __all__ = [
     "SEVERITY_ORDER",
@@ -33,18 +36,19 @@ __all__ = [
     "pct",
     "plural",
     "pval",
+    "quantile_name",
     "severity_rank",
     "short_num",
     "shorten",
     "signed",
 ]
 
-#: Findings are listed most urgent first: a crossed limit, then the watch zone, then notes.
-SEVERITY_ORDER: dict[str, int] = {"alert": 0, "watch": 1, "note": 2}
+#: Findings are listed most urgent first: act (costs accuracy now), watch, then notes (context).
+SEVERITY_ORDER: dict[str, int] = {"act": 0, "watch": 1, "note": 2}
 
 
 def severity_rank(severity: str) -> int:
-    """Sort key of a severity; an unknown one ranks with 'watch' (between alerts and notes)."""
+    """Sort key of a severity; an unknown one ranks with 'watch' (between act and notes)."""
     return SEVERITY_ORDER.get(severity, 1)
 
 
@@ -75,6 +79,18 @@ def format_level(level: float, digits: int = 6) -> str:
     with many decimals survives into the forecast frame before the ledger reads it back.
     """
     return f"{float(level):.{digits}g}"
+
+
+def quantile_name(tau: float | Decimal) -> str:
+    """The input-file column of quantile level tau in (0, 1): 0.1 -> 'q10', 0.975 -> 'q975', 0.05 -> 'q05'.
+
+    A Decimal (a level read from a column name) is written as it is; a float (a level read back
+    from the ledger) is first rounded to ``TAU_DIGITS`` decimals, so float noise such as
+    0.30000000000000004 still names q30.
+    """
+    exact = tau if isinstance(tau, Decimal) else Decimal(f"{float(tau):.{TAU_DIGITS}f}")
+    _, _, digits = format(exact.normalize(), "f").partition(".")
+    return "q" + digits.ljust(2, "0")
 
 
 # ---------------------------------------------------------------------------------------------

@@ -19,6 +19,9 @@ from .chart_base import BAND, INK, PALETTE, RC, Chart, clean_svg, figure, legend
 from .series_chart import Fan, legend_entries, series_chart
 
 __all__ = [
+    "LEVEL_PALETTE",
+    "level_styles",
+    "trend_chart",
     "BAND",
     "INK",
     "PALETTE",
@@ -33,6 +36,18 @@ __all__ = [
     "model_styles",
     "series_chart",
 ]
+
+
+#: Interval levels get their own colours, never a model's: ColorBrewer "Purples" shades (Harrower &
+#: Brewer 2003, ColorBrewer.org; from memory), dark for the first level, with their own dashes.
+LEVEL_PALETTE = ("#54278f", "#9e9ac8", "#3f007d", "#807dba")
+_LEVEL_DASHES = ("-", (0, (4, 2)), (0, (1, 1.5)), "-.")
+
+
+def level_styles(names: Sequence[str]) -> dict[str, dict]:
+    """Colour, dash and marker per interval level (names in ascending level order)."""
+    return {n: {"color": LEVEL_PALETTE[i % len(LEVEL_PALETTE)], "linestyle": _LEVEL_DASHES[i % len(_LEVEL_DASHES)],
+                "marker": ("o", "s", "^", "D")[i % 4]} for i, n in enumerate(names)}
 
 
 def lines_chart(chart_id: str, title: str, summary: str, periods: Sequence[str],
@@ -75,6 +90,40 @@ def horizon_chart(chart_id: str, title: str, summary: str, horizons: Sequence[in
         return render(fig, chart_id, title, summary)
 
 
+def trend_chart(chart_id: str, title: str, summary: str, periods: Sequence[str],
+                raw: Mapping[str, Sequence[float]], smooth: Mapping[str, Sequence[float]],
+                styles: Mapping[str, dict], *, ylabel: str, marks: Mapping[str, Sequence[int]] | None = None,
+                reference: float | None = None, percent: bool = False) -> Chart:
+    """Per model a smoothed line over evaluation periods, its raw per-period values faint behind,
+    and ``marks`` (positions in ``periods``) as ticks on the time axis in the model's colour, e.g.
+    change points of drift findings. NaN leaves a gap."""
+    scale = 100 if percent else 1
+    with matplotlib.rc_context(RC):
+        fig, (ax,) = figure(3.0, len(smooth) + (1 if marks else 0))
+        x = np.arange(len(periods))
+        for model, ys in raw.items():
+            ax.plot(x, np.asarray(ys, dtype=float) * scale, color=styles[model]["color"], linewidth=0.7, alpha=0.25)
+        for model, ys in smooth.items():
+            st = styles[model]
+            ax.plot(x, np.asarray(ys, dtype=float) * scale, label=short(model), color=st["color"],
+                    linestyle=st["linestyle"], linewidth=1.8)
+        if reference is not None:
+            ax.axhline(reference, color=BAND, linewidth=0.9, linestyle=(0, (2, 2)))
+        if percent:
+            ax.set_ylim(-2, 102)
+        if marks and any(len(v) for v in marks.values()):
+            ymin, ymax = ax.get_ylim()
+            for k, (model, where) in enumerate(marks.items()):
+                ax.plot(list(where), [ymin + (0.02 + 0.035 * k) * (ymax - ymin)] * len(where), linestyle="none",
+                        marker="|", markersize=7, color=styles[model]["color"])
+            ax.plot([], [], linestyle="none", marker="|", color=INK, label="drift change point")
+            ax.set_ylim(ymin, ymax)
+        ticks(ax, periods, x)
+        ax.set(title=title, ylabel=ylabel, xlabel="Evaluation period (target period of the forecasts)")
+        legend(fig)
+        return render(fig, chart_id, title, summary)
+
+
 @dataclasses.dataclass(frozen=True)
 class CalibrationPoint:
     """Observed coverage of one model at one nominal level, with its binomial tolerance band (%)."""
@@ -97,6 +146,11 @@ def calibration_chart(chart_id: str, title: str, summary: str, points: Sequence[
         lo, hi = (min(levels) - 10, 100) if levels else (0, 100)
         ax.plot([lo, hi], [lo, hi], color=BAND, linewidth=0.9, linestyle=(0, (2, 2)), label="as stated")
         width = 6.0 / max(len(models), 1)
+        # markers are spread sideways so they do not hide each other; a short dashed tick at each
+        # level marks "as stated" level with them, so none seems off the diagonal
+        span = width * max(len(models), 1) / 2 + 0.6
+        ax.hlines(levels, [v - span for v in levels], [v + span for v in levels], color=BAND, linewidth=0.9,
+                  linestyles=(0, (2, 2)))
         for i, model in enumerate(models):
             st = styles[model]
             mine = [p for p in points if p.model == model]

@@ -1,10 +1,8 @@
 """Everything a report needs, read from a ledger once: scores, cells, actuals, latest runs, findings.
 
-Most figures come from the public :class:`ledger.Ledger` API. Three reads have no API method
-yet and are done here with the ledger's own as-of views (``ledger.store.live_runs_sql``,
-``latest_actuals_sql``) and cell query (``ledger.scoring.cells.cells_sql``): the actuals history of
-every series, the latest run's forecasts and bounds (which need no actual), and interval miss
-counts per model, horizon and level (for the binomial tolerance of calibration charts).
+Every frame comes from the public :class:`ledger.Ledger` API: scores and cells, and the read
+methods for reports (``ledger.scoring.reads``: series, live runs, the actuals history, the latest
+run's forecasts and bounds, pending cells, interval miss counts). No module here runs SQL.
 
 Findings come from the ledger's findings API (``flags``, ``compare``, ``standings``,
 ``advise``); those use every scored period up to the as-of (no --since/--until).
@@ -23,9 +21,9 @@ from ledger.errors import UnknownName
 from ledger.periods import SEASON_LENGTHS
 from ledger.findings import standings
 from ledger.findings.flags import flags as _flag_cells
-from ledger.scoring.cells import Selection, cells_sql, score_cells
-from ledger.store import latest_actuals_sql, live_runs_sql
-from ledger.wording import format_level
+from ledger.scoring.cells import Selection, score_cells
+
+from .value_added import check_overrides, default_benchmark, fva_steps
 
 __all__ = [
     "check_roles",
@@ -47,6 +45,7 @@ class Findings:
     comparisons: dict[tuple[str, str], pd.DataFrame]
     standings: pd.DataFrame
     advice: pd.DataFrame | None
+    value_added: pd.DataFrame     # forecast value added sums per step and horizon (reports.value_added)
 
 
 @dataclasses.dataclass
@@ -61,6 +60,7 @@ class LedgerData:
     incumbent: str | None
     benchmark: str | None
     models: list[str]
+    overrides: dict[str, str]     # override model -> the model it adjusts
     series: pd.DataFrame          # series, frequency, season_length
     runs: pd.DataFrame            # live runs at the as-of
     by_model_h: pd.DataFrame      # scores by model, horizon
@@ -89,7 +89,7 @@ class Window:
 
 def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | None, horizon: int,
          incumbent: str | None, benchmark: str | None, with_findings: bool = True,
-         models: list[str] | None = None) -> LedgerData:
+         models: list[str] | None = None, overrides: dict[str, str] | None = None) -> LedgerData:
     """Read every frame the report needs, at ``as_of`` (findings only ``with_findings``).
 
     ``models``: what :func:`report_models` returned for the same as-of and periods, if the
@@ -99,23 +99,30 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
     models = _models(book, sel) if models is None else models
     incumbent = incumbent or book.incumbent
     check_roles(models, incumbent, benchmark, as_of)
+    overrides = dict(overrides or {})
+    check_overrides(overrides, models)
     q = dict(as_of=as_of, since=since, until=until)
-    by_model_period = book.scores(by=["model", "period"], horizons=[horizon], **q)
-    window = _window(by_model_period, _main_frequency(book, sel))
+    runs = book.live_runs(as_of=as_of)
+    # a ledger with no forecast yet has no horizon to select (the selection check would refuse
+    # --horizon); every frame is empty then either way
+    hs = [horizon] if len(runs) else []
+    by_model_period = book.scores(by=["model", "period"], horizons=hs, **q)
+    window = _window(by_model_period, book.main_frequency(as_of=as_of) or "monthly")
     head_q = dict(q, since=window.first or since)
     return LedgerData(
-        as_of=as_of, state_hash=book.store.state_hash(as_of), since=since, until=until,
-        horizon=horizon, incumbent=incumbent, benchmark=benchmark, models=models,
-        series=_series(book, as_of), runs=_live_runs(book, sel),
+        as_of=as_of, state_hash=book.report_state_hash(as_of=as_of), since=since, until=until,
+        horizon=horizon, incumbent=incumbent, benchmark=benchmark, models=models, overrides=overrides,
+        series=book.series_table(as_of=as_of), runs=runs,
         by_model_h=book.scores(by=["model", "horizon"], **q),
         by_model_period=by_model_period,
         by_series_model=book.scores(by=["series", "model"], **q),
         window=window,
-        headline=book.scores(by=["model"], horizons=[horizon], **head_q),
-        **_interval_counts(book, sel, book.selection(horizons=[horizon], **head_q)),
-        cells=book.cells(horizons=[horizon], **q),
-        actuals=_actuals(book, sel), latest=_latest(book, sel), pending=_pending(book, sel),
-        findings=_findings(book, models, as_of, horizon, incumbent, benchmark) if with_findings else None,
+        headline=book.scores(by=["model"], horizons=hs, **head_q),
+        **_interval_counts(book, sel, book.selection(horizons=hs, **head_q) if hs else None),
+        cells=book.cells(horizons=hs, **q),
+        actuals=book.actual_history(as_of=as_of), latest=book.latest_forecasts(as_of=as_of),
+        pending=book.pending_cells(**q),
+        findings=_findings(book, models, as_of, horizon, incumbent, benchmark, overrides) if with_findings else None,
     )
 
 
@@ -133,16 +140,7 @@ def report_models(book: Ledger, as_of: dt.datetime, since: str | None, until: st
 
 
 def _models(book: Ledger, sel: Selection) -> list[str]:
-    sql, params = cells_sql(sel)
-    rows = book.store.con.execute(f"SELECT DISTINCT model FROM ({sql}) ORDER BY model", params).fetchall()
-    return [r[0] for r in rows]
-
-
-def _main_frequency(book: Ledger, sel: Selection) -> str:
-    row = book.store.con.execute(
-        "SELECT frequency FROM series WHERE first_seen <= $as_of GROUP BY frequency "
-        "ORDER BY count(*) DESC, frequency LIMIT 1", {"as_of": sel.as_of}).fetchall()
-    return row[0][0] if row else "monthly"
+    return book.scored_models(as_of=sel.as_of, since=sel.since, until=sel.until)
 
 
 _UNITS = {"yearly": "years", "quarterly": "quarters", "monthly": "months", "weekly": "weeks", "daily": "days"}
@@ -158,93 +156,22 @@ def _window(by_period: pd.DataFrame, freq: str) -> Window:
     return Window(len(chosen), _UNITS.get(freq, "periods"), str(chosen[0]), str(chosen[-1]))
 
 
-def _series(book: Ledger, as_of: dt.datetime) -> pd.DataFrame:
-    return book.store.con.execute(
-        "SELECT series, frequency, season_length FROM series WHERE first_seen <= $as_of ORDER BY series",
-        {"as_of": as_of}).df()
-
-
-def _live_runs(book: Ledger, sel: Selection) -> pd.DataFrame:
-    return book.store.con.execute(
-        f"SELECT l.run_id, l.model, l.frequency, l.origin, l.origin_index, r.n_cells "
-        f"FROM ({live_runs_sql()}) l JOIN runs r USING (run_id) ORDER BY l.model, l.origin_index",
-        {"as_of": sel.as_of}).df()
-
-
-def _interval_counts(book: Ledger, sel: Selection, head: Selection) -> dict[str, pd.DataFrame]:
+def _interval_counts(book: Ledger, sel: Selection, head: Selection | None) -> dict[str, pd.DataFrame]:
     """n cells with bounds and misses (actual outside): per model, horizon and level over ``sel``
     (``intervals``), and per model and level over ``head`` (``headline_intervals``: one horizon
     from the window's first period on, a subset of ``sel``), from one read of the cells."""
-    sql, params = cells_sql(sel)
-    (horizon,) = head.horizons
-    since = head.params().get("since")
-    params.update(head_h=int(horizon), **({"head_since": since} if since is not None else {}))
-    in_head = "c.horizon = $head_h" + (" AND c.period >= $head_since" if since is not None else "")
-    frame = book.store.con.execute(f"""
-        SELECT c.model, c.horizon, b.level, ({in_head}) AS in_head, count(*) AS n,
-               sum(CASE WHEN c.actual < b.lower OR c.actual > b.upper THEN 1 ELSE 0 END) AS misses
-        FROM ({sql}) c
-        JOIN bounds b ON b.run_id = c.run_id AND b.series = c.series AND b.period_index = c.period_index
-        GROUP BY ALL ORDER BY c.model, c.horizon, b.level""", params).df()
-    frame = frame.astype({"n": "int64", "misses": "int64"})
+    frame = book.interval_counts(head, as_of=sel.as_of, since=sel.since, until=sel.until)
     totals = frame.groupby(["model", "horizon", "level"], as_index=False, sort=True)[["n", "misses"]].sum()
     heads = frame[frame["in_head"]].groupby(["model", "level"], as_index=False, sort=True)[["n", "misses"]].sum()
     return {"intervals": totals, "headline_intervals": heads}
 
 
-def _actuals(book: Ledger, sel: Selection) -> pd.DataFrame:
-    return book.store.con.execute(
-        f"SELECT series, period_index, value FROM ({latest_actuals_sql()}) a ORDER BY series, period_index",
-        {"as_of": sel.as_of}).df()
-
-
-def _latest(book: Ledger, sel: Selection) -> pd.DataFrame:
-    """The newest live run of each model for each series: forecasts, with bounds as lower_L/upper_L."""
-    con = book.store.con
-    con.execute(f"""
-        CREATE OR REPLACE TEMP TABLE _latest AS
-        SELECT * FROM (
-            SELECT l.model, l.origin_index, f.run_id, f.series, f.period_index, f.horizon, f.point,
-                   dense_rank() OVER (PARTITION BY l.model, f.series ORDER BY l.origin_index DESC) AS r
-            FROM forecasts f JOIN ({live_runs_sql()}) l ON f.run_id = l.run_id) t
-        WHERE r = 1""", {"as_of": sel.as_of})
-    try:
-        points = con.execute("SELECT model, series, origin_index, period_index, horizon, point "
-                             "FROM _latest ORDER BY series, model, period_index").df()
-        bounds = con.execute(
-            "SELECT x.model, x.series, x.period_index, b.level, b.lower, b.upper FROM _latest x "
-            "JOIN bounds b ON b.run_id = x.run_id AND b.series = x.series AND b.period_index = x.period_index").df()
-    finally:
-        con.execute("DROP TABLE IF EXISTS _latest")
-    return _widen_bounds(points, bounds)
-
-
-def _widen_bounds(points: pd.DataFrame, bounds: pd.DataFrame) -> pd.DataFrame:
-    keys = ["model", "series", "period_index"]
-    for level, part in bounds.groupby("level", sort=True):
-        tag = format_level(level)
-        part = part.drop(columns="level").rename(columns={"lower": f"lower_{tag}", "upper": f"upper_{tag}"})
-        points = points.merge(part, on=keys, how="left")
-    return points
-
-
-def _pending(book: Ledger, sel: Selection) -> int:
-    """Forecast cells of live runs (in the target-period selection) whose actual has not arrived."""
-    params = sel.params()
-    where = (" AND f.period >= $since" if sel.since else "") + (" AND f.period < $until" if sel.until else "")
-    row = book.store.con.execute(f"""
-        SELECT count(*) FROM forecasts f JOIN ({live_runs_sql()}) l ON f.run_id = l.run_id
-        LEFT JOIN ({latest_actuals_sql()}) a ON a.series = f.series AND a.period_index = f.period_index
-        WHERE a.series IS NULL {where}""", params).fetchall()
-    return int(row[0][0])
-
-
 def series_count(book: Ledger, as_of: dt.datetime) -> int:
-    return int(book.store.con.execute("SELECT count(*) FROM series WHERE first_seen <= $as_of",
-                                      {"as_of": as_of}).fetchall()[0][0])
+    return len(book.series_table(as_of=as_of))
 
 
-def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, benchmark) -> Findings:
+def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, benchmark,
+              overrides: dict[str, str]) -> Findings:
     """The same frames as ``Ledger.flags``, ``compare``, ``standings`` and ``advise`` at ``as_of``
     (no model, horizon or period filter), from one read of the scored cells shared by all."""
     store, sel = book.store, book.selection(as_of=as_of)
@@ -255,7 +182,8 @@ def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, b
     ranks = standings.standings(store, dataclasses.replace(sel, horizons=(horizon,)), cells=cells)
     advice = (standings.advise(store, sel, incumbent, cells=cells)
               if incumbent and len(models) > 1 else None)
-    return Findings(found, comparisons, ranks, advice)
+    fva = fva_steps(cells, models, default_benchmark(models, benchmark), overrides)
+    return Findings(found, comparisons, ranks, advice, fva)
 
 
 # Jobs for worker processes: each opens the ledger read-only (DuckDB allows many readers).
@@ -266,12 +194,11 @@ def _open(path: str) -> Ledger:
 
 def quiet(book: Ledger) -> Ledger:
     """No DuckDB progress bar: it would write to stdout, which the CLI keeps for the index path."""
-    book.store.con.execute("SET enable_progress_bar = false")
-    return book
+    return book.quiet()
 
 
 def findings_job(path: str, as_of: dt.datetime, models: list[str], horizon: int, incumbent: str | None,
-                 benchmark: str | None) -> Findings:
+                 benchmark: str | None, overrides: dict[str, str]) -> Findings:
     """All findings of a report in one worker, sharing one read of the scored cells."""
     with _open(path) as book:
-        return _findings(book, models, as_of, horizon, incumbent, benchmark)
+        return _findings(book, models, as_of, horizon, incumbent, benchmark, overrides)

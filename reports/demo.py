@@ -23,7 +23,7 @@ class DemoResult:
     findings: dict[str, int]        # kind -> count
     best_by_horizon: pd.DataFrame   # horizon, model, mase, n (lowest MASE on common cells' scores)
     advice: tuple[str, ...] = ()    # Ledger.advise(DEMO_INCUMBENT) sentences, one per challenger
-    top_findings: pd.DataFrame | None = None   # the first three alert/watch findings, in flags' order
+    top_findings: pd.DataFrame | None = None   # the first three act/watch findings, in flags' order
     incumbent: str = DEMO_INCUMBENT
 
 

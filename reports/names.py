@@ -17,7 +17,8 @@ from pathlib import Path
 
 from ledger.errors import LedgerError
 
-__all__ = ["NameClash", "UnsafePath", "page_name", "page_names", "safe_write"]
+__all__ = ["NameClash", "UnsafePath", "FolderNotOurs", "MARKER", "claim_folder", "page_name", "page_names",
+           "safe_write"]
 
 _SLUG_LEN = 40
 _DIGEST_LEN = 10
@@ -30,6 +31,32 @@ class UnsafePath(LedgerError):
 
 class NameClash(LedgerError):
     """Two different keys were given the same page file name."""
+
+
+class FolderNotOurs(LedgerError):
+    """The output folder holds files that no report wrote; a report never overwrites them."""
+
+
+#: The file that marks a folder as written by ``backsight report`` (and so safe to write again).
+MARKER = ".backsight-report"
+
+
+def claim_folder(out: Path) -> None:
+    """Make ``out`` a report folder: create it, or accept it when empty or marked as a report's.
+
+    Anything else is refused naming one of its files, so that a user's own ``index.html`` (or a
+    ledger file that happens to be named like a page) is never overwritten.
+    """
+    if out.exists() and not out.is_dir():
+        raise FolderNotOurs(f"{out} is a file, not a folder; give a new or empty folder for the report")
+    if out.is_dir() and not (out / MARKER).is_file():
+        found = sorted(p.name for p in out.iterdir())
+        if found:
+            raise FolderNotOurs(f"{out} holds {found[0]!r}{' and more' if len(found) > 1 else ''}, which no report "
+                                "wrote; give a new or empty folder (a report writes only where it wrote before)")
+    out.mkdir(parents=True, exist_ok=True)
+    (out / MARKER).write_text("This folder was written by backsight report; it may overwrite the files here.\n",
+                              encoding="utf-8")
 
 
 def page_name(prefix: str, key: str) -> str:

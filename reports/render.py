@@ -10,6 +10,7 @@ Every value a template prints is HTML-escaped (autoescape); only chart SVG, whic
 from __future__ import annotations
 
 import functools
+import math
 from importlib import resources
 
 import jinja2
@@ -36,9 +37,35 @@ def _css() -> markupsafe.Markup:
     return markupsafe.Markup(text)
 
 
-def _share(x) -> str:
-    """A 0–1 share as a whole percentage: 0.625 -> '63%'."""
-    return pct(100 * x, 0) if isinstance(x, (int, float)) and x == x else "–"
+def _finite(x) -> bool:
+    return isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x)
+
+
+def _data(value, text: str) -> markupsafe.Markup | str:
+    """``text`` inside a <data> element holding ``value`` to 12 significant digits (in the unit the
+    text shows), which the CSV beside each table takes (:mod:`reports.tables`); missing: plain text.
+    Twelve, not seventeen: DuckDB's parallel sums can differ from run to run past the 14th digit,
+    and the same ledger and as-of must give the same files."""
+    if not _finite(value):
+        return text
+    return markupsafe.Markup('<data value="{}">{}</data>').format(f"{float(value):.12g}", text)
+
+
+def _num(x, digits: int = 3):
+    return _data(x, num(x, digits))
+
+
+def _pct(x, decimals: int = 1):
+    return _data(x, pct(x, decimals))
+
+
+def _share(x):
+    """A 0–1 share as a whole percentage: 0.625 -> '63%' (the data value is 62.5, as shown)."""
+    return _data(100 * x, pct(100 * x, 0)) if _finite(x) else "–"
+
+
+def _pvalue(p):
+    return _data(p, p_value(p)) if _finite(p) else p_value(p)
 
 
 @functools.cache
@@ -52,7 +79,7 @@ def environment() -> jinja2.Environment:
         lstrip_blocks=True,
         keep_trailing_newline=True,
     )
-    env.filters.update(num=num, pct=pct, bias=bias_words, share=_share, pvalue=p_value)
+    env.filters.update(num=_num, pct=_pct, bias=bias_words, share=_share, pvalue=_pvalue)
     env.globals.update(csp=CSP, css=_css, small_sample=SMALL_SAMPLE)
     return env
 

@@ -15,7 +15,7 @@ import concurrent.futures as cf
 import dataclasses
 import multiprocessing
 import os
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from pathlib import Path
 
 import numpy as np
@@ -23,15 +23,22 @@ import pandas as pd
 from markupsafe import Markup
 
 from ledger import Ledger, __version__
+from ledger.findings.base import FlagOptions
 from ledger.store import parse_as_of, utc_now
-from ledger.wording import format_level, severity_rank
+from ledger.wording import format_level
 
 from . import charts
+from .cycle_views import CycleData, SeriesCycle, build_series_cycle, load_cycle
 from .data import LedgerData, check_roles, findings_job, load, quiet, report_models, series_count
+from .trends import ROLLING
+from .value_added import SEASONAL_NAIVE_NAMES, check_overrides
 from .group_views import GROUPS_PAGE, GroupData, build_groups, check_group_by, count_findings, load_groups
-from .names import page_names, safe_write
+from .names import claim_folder, page_names
+from .review import rank_flags
+from .tables import write_page
 from .render import findings_table, render_page
 from .series_views import Columns, SeriesInput, build_series, metrics_for
+from .quantile_views import QuantileData, build_quantile_view, load_quantile_data
 from .views import (
     Context,
     Footer,
@@ -75,12 +82,13 @@ class ReportResult:
     index_bytes: int
     state_hash: str
     as_of: str
+    advice: str          # the review's advice sentence (first screen of index.html)
 
 
 def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None, until: str | None = None,
                   title: str | None = None, incumbent: str | None = None, benchmark: str | None = None,
                   horizon: int = 1, progress: Progress | None = None, workers: int | None = None,
-                  group_by: str | None = None) -> ReportResult:
+                  group_by: str | None = None, overrides: Mapping[str, str] | None = None) -> ReportResult:
     """Write the report site for the ledger at ``ledger_path`` into ``out_dir``; return what was written.
 
     ``as_of`` (default now) fixes what the ledger held; the same ledger and as-of give the same
@@ -93,11 +101,13 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
     ``progress(done, total, what)`` is called after each page or chunk of series pages.
     ``group_by`` (a series attribute, e.g. "region") adds ``groups.html``: accuracy, totals and
     findings per value of the attribute; an attribute not recorded at the as-of raises
-    :class:`ledger.errors.UnknownName`.
+    :class:`ledger.errors.UnknownName`. ``overrides`` ({override: base}, e.g.
+    {"planner-override": "incumbent-hw"}) declares models that adjust another; the value each
+    such step adds is shown beside each model's value over the benchmark.
     """
     stamp = parse_as_of(as_of)
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
+    claim_folder(out)
     path = str(Path(ledger_path).resolve())
     with quiet(Ledger.open(ledger_path, create=False, read_only=True)) as book, \
             _executor(_worker_count(series_count(book, stamp), workers)) as pool:
@@ -106,51 +116,68 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
         # (the longest single job) run while this process reads the report's frames.
         models, chosen = report_models(book, stamp, since, until), incumbent or book.incumbent
         check_roles(models, chosen, benchmark, stamp)
-        found = pool.submit(findings_job, path, stamp, models, horizon, chosen, benchmark)
-        core = load(book, as_of=stamp, since=since, until=until, horizon=horizon,
-                    incumbent=incumbent, benchmark=benchmark, with_findings=False, models=models)
+        overrides = dict(overrides or {})
+        check_overrides(overrides, models)
+        found = pool.submit(findings_job, path, stamp, models, horizon, chosen, benchmark, overrides)
+        core = load(book, as_of=stamp, since=since, until=until, horizon=horizon, incumbent=incumbent,
+                    benchmark=benchmark, with_findings=False, models=models, overrides=overrides)
         groups = load_groups(book, group_by, as_of=stamp, since=since, until=until) if group_by else None
+        quantiles = load_quantile_data(book, as_of=stamp, since=since, until=until)
         ctx = build_context(core, title or "Forecast accuracy report")
-        inputs = series_inputs(core, ctx)
+        cycle = load_cycle(book, stamp, core.models, core.series, ctx.styles, _fan_preference(core))
+        inputs = series_inputs(core, ctx, cycle=cycle.series)
         nav = {"groups_page": GROUPS_PAGE if groups is not None else None}
         pages = [pool.submit(series_pages_chunk, inputs[i:i + _CHUNK], ctx, nav) for i in range(0, len(inputs), _CHUNK)]
         extra = 1 if groups is not None else 0
         tick = _ticker(progress, 4 + extra + len(core.models) + len(inputs))
         tick("computing findings", 0)
         data = dataclasses.replace(core, findings=found.result())
-        overview, rows = _write_fixed(data, ctx, out, tick, nav)
+        overview, rows = _write_fixed(data, ctx, out, tick, nav, cycle, quantiles)
         if groups is not None:
             _write_groups(count_findings(book, groups, data.findings.flags, stamp), ctx, out, tick)
         _write_series(pages, data, ctx, out, tick)
     return ReportResult(out_dir=out.resolve(), index=out.resolve() / "index.html",
                         pages=len(FIXED_PAGES) + extra + len(data.models) + len(inputs), model_pages=len(data.models),
                         series_pages=len(inputs), findings=len(rows), cells_scored=overview.counts["cells_scored"],
-                        index_bytes=(out / "index.html").stat().st_size, state_hash=data.state_hash, as_of=ctx.footer.as_of)
+                        index_bytes=(out / "index.html").stat().st_size, state_hash=data.state_hash, as_of=ctx.footer.as_of,
+                        advice=overview.review.advice)
 
 
-def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict):
-    """Overview, findings, series index, methods and model pages (``nav``: optional navigation links)."""
+def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict, cycle: CycleData,
+                 quantiles: QuantileData | None = None):
+    """Overview, findings, series index, methods and model pages (``nav``: optional navigation links;
+    ``cycle``: the changes block, events and stability charts of :mod:`reports.cycle_views`;
+    ``quantiles``: the frames of the model pages' quantile sections)."""
     overview = build_overview(data, ctx)
-    safe_write(out, "index.html", render_page("index.html", v=overview, ctx=ctx, page="index", **nav))
+    write_page(out, "index.html", render_page("index.html", v=overview, ctx=ctx, page="index",
+                                              changes=cycle.changes, **nav))
     tick("overview")
-    rows = sorted(finding_rows(data.findings.flags, ctx), key=lambda f: severity_rank(f.severity))
-    safe_write(out, "findings.html", render_page("findings.html", rows=rows, ctx=ctx, page="findings", **nav))
+    rows = finding_rows(rank_flags(data.findings.flags), ctx)
+    write_page(out, "findings.html", render_page("findings.html", rows=rows, ctx=ctx, page="findings", **nav))
     tick("findings")
-    safe_write(out, "series.html", render_page("series_index.html", rows=build_series_index(data, ctx),
+    write_page(out, "series.html", render_page("series_index.html", rows=build_series_index(data, ctx),
                                                ctx=ctx, page="series-index", **nav))
     tick("series index")
-    safe_write(out, "methods.html", render_page("methods.html", ctx=ctx, page="methods", **nav))
+    write_page(out, "methods.html", render_page("methods.html", ctx=ctx, page="methods", **method_constants(), events=cycle.events, **nav))
     tick("methods")
     for model in data.models:
         view = build_model(data, ctx, model)
-        safe_write(out, view.href, render_page("model.html", v=view, ctx=ctx, page=view.href, **nav))
+        write_page(out, view.href, render_page("model.html", v=view, ctx=ctx, page=view.href,
+                                               quantiles=build_quantile_view(quantiles, model),
+                                               stability=cycle.stability.get(model), **nav))
         tick(f"model {model}")
     return overview, rows
 
 
+def method_constants() -> dict:
+    """The figures the methods page states, read from the code that uses them."""
+    return {"opts": FlagOptions(), "rolling": ROLLING,
+            "naive_names": " or ".join(SEASONAL_NAIVE_NAMES)}
+
+
 def _write_groups(groups: GroupData, ctx: Context, out: Path, tick) -> None:
     view = build_groups(groups, ctx)
-    safe_write(out, GROUPS_PAGE, render_page("groups.html", v=view, ctx=ctx, page="groups", groups_page=GROUPS_PAGE))
+    write_page(out, GROUPS_PAGE, render_page("groups.html", v=view, ctx=ctx, page="groups", groups_page=GROUPS_PAGE))
     tick(f"groups by {groups.attribute}")
 
 
@@ -174,9 +201,14 @@ def build_context(data: LedgerData, title: str) -> Context:
     footer = Footer(as_of=f"{data.as_of:%Y-%m-%d %H:%M:%S} UTC", state_hash=data.state_hash,
                     version=__version__, generated_at=f"{utc_now():%Y-%m-%d %H:%M:%S} UTC", selection=selection)
     return Context(title=title, footer=footer, models=[Link(m, models[m]) for m in data.models],
-                   model_href=models, series_href=series, styles=charts.model_styles(data.models),
+                   model_href=models, series_href=series, styles=charts.model_styles(_drawn_models(data)),
                    levels=levels_of(data.by_model_h), horizon=data.horizon,
                    findings_note=_scope_note(data))
+
+
+def _drawn_models(data: LedgerData) -> list[str]:
+    """The scored models, then any live model with no scored cell yet (its latest run is still drawn)."""
+    return data.models + sorted(set(data.runs["model"]) - set(data.models))
 
 
 def _scope_note(data: LedgerData) -> str | None:
@@ -204,8 +236,10 @@ def _by_series(frame: pd.DataFrame, columns: list[str]) -> tuple[dict[str, Colum
     return {keys[a]: {c: v[a:b] for c, v in arrays.items()} for a, b in zip(starts, ends)}, empty
 
 
-def series_inputs(data: LedgerData, ctx: Context, *, with_chart: bool = True) -> list[SeriesInput]:
-    """One :class:`SeriesInput` per series, from one pass over each frame."""
+def series_inputs(data: LedgerData, ctx: Context, *, with_chart: bool = True,
+                  cycle: dict[str, SeriesCycle] | None = None) -> list[SeriesInput]:
+    """One :class:`SeriesInput` per series, from one pass over each frame (``cycle``: each series'
+    events and forecast paths, :func:`reports.cycle_views.load_cycle`)."""
     acts, _ = _by_series(data.actuals, ["period_index", "value"])
     cells, empty_cells = _by_series(data.cells, _CELL_COLUMNS)
     latest, empty_latest = _by_series(data.latest, [c for c in data.latest.columns if c != "series"])
@@ -218,18 +252,20 @@ def series_inputs(data: LedgerData, ctx: Context, *, with_chart: bool = True) ->
         for f in finding_rows(data.findings.flags[data.findings.flags["series"] != ""], ctx):
             flags.setdefault(f.series, []).append(f)
     prefer = _fan_preference(data)
+    drawn = _drawn_models(data)
     out = []
     for key, freq, season in zip(data.series["series"].tolist(), data.series["frequency"].tolist(),
                                  data.series["season_length"].tolist()):
         a = acts.get(key)
         out.append(SeriesInput(
             key=key, href=ctx.series_href[key], frequency=freq, season_length=int(season),
-            horizon=data.horizon, models=data.models, styles=ctx.styles, model_href=ctx.model_href,
+            horizon=data.horizon, models=drawn, styles=ctx.styles, model_href=ctx.model_href,
             fan_preference=prefer,
             actual_index=a["period_index"].astype("int64") if a is not None else _EMPTY_I,
             actual_value=a["value"].astype(float) if a is not None else _EMPTY_F,
             cells=cells.get(key, empty_cells), latest=latest.get(key, empty_latest),
-            metrics=metrics.get(key, []), findings=flags.get(key, []), with_chart=with_chart))
+            metrics=metrics.get(key, []), findings=flags.get(key, []), with_chart=with_chart,
+            cycle=(cycle or {}).get(key)))
     return out
 
 
@@ -257,8 +293,9 @@ def series_pages_chunk(inputs: list[SeriesInput], ctx: Context, nav: dict) -> li
     out = []
     for inp in inputs:
         view = build_series(inp)
+        extra = build_series_cycle(inp.cycle, inp.frequency, inp.styles) if inp.with_chart else None
         out.append((view.key, view.href, render_page("series.html", v=view, ctx=ctx, page=view.href,
-                                                     findings_slot=Markup(FINDINGS_SLOT), **nav)))
+                                                     findings_slot=Markup(FINDINGS_SLOT), cycle=extra, **nav)))
     return out
 
 
@@ -300,5 +337,5 @@ def _write_series(futures: list[cf.Future], data: LedgerData, ctx: Context, out:
         pages = fut.result()
         for key, name, html in pages:
             table = findings_table(flags.get(key, []), f"Findings for {key}")
-            safe_write(out, name, html.replace(FINDINGS_SLOT, table, 1))
+            write_page(out, name, html.replace(FINDINGS_SLOT, table, 1))
         tick(f"series {pages[-1][0]}", len(pages))

@@ -14,11 +14,15 @@ from collections.abc import Sequence
 
 import pandas as pd
 
-from ledger.stats.intervals import coverage_zone
-from ledger.wording import format_level, num, pct, plural, severity_rank
+from ledger.wording import format_level, num, pct, plural
 
 from . import charts
+from .coverage import CoverageCell, coverage_cell
 from .data import LedgerData
+from .matrix import Matrix, build_matrix
+from .review import Review, build_review, rank_flags
+from .trends import fva_chart, fva_table, trend_charts
+from .value_added import FvaRow, default_benchmark
 from .text import (
     bias_words,
     coverage_words,
@@ -36,7 +40,6 @@ __all__ = [
     "CoverageCell",
     "FindingRow",
     "Footer",
-    "HorizonBoard",
     "Link",
     "MetricRow",
     "ModelView",
@@ -85,18 +88,6 @@ class Context:
 
 
 @dataclasses.dataclass(frozen=True)
-class CoverageCell:
-    level: float
-    observed: float      # % of actuals inside the interval
-    n: int
-    misses: int
-    expected: float      # expected misses n·(1 − L/100)
-    direction: str       # as stated / too narrow / too wide
-    zone: str
-    small: bool
-
-
-@dataclasses.dataclass(frozen=True)
 class MetricRow:
     model: str
     href: str
@@ -116,12 +107,6 @@ class MetricRow:
     coverage: list[CoverageCell]
     best: bool
     small: bool
-
-
-@dataclasses.dataclass(frozen=True)
-class HorizonBoard:
-    horizon: int
-    rows: list[MetricRow]
 
 
 @dataclasses.dataclass(frozen=True)
@@ -182,12 +167,18 @@ class Overview:
     period_first: str
     period_last: str
     counts: dict[str, int]
+    review: Review
+    matrix: Matrix
     headlines: list[str]
     horizon: int
     levels: list[float]
-    leaderboard: list[HorizonBoard]
+    trend_charts: list[charts.Chart]
     charts: list[charts.Chart]
     chart_notes: list[str]
+    benchmark: str | None
+    fva: list[FvaRow]
+    fva_chart: charts.Chart | None
+    fva_note: str
     findings: list[FindingRow]
     findings_total: int
     findings_by_kind: dict[str, int]
@@ -233,14 +224,6 @@ def levels_of(frame: pd.DataFrame) -> list[float]:
     return sorted(float(c.split("_", 1)[1]) for c in frame.columns if c.startswith("coverage_"))
 
 
-def coverage_cell(level: float, n: int, misses: int) -> CoverageCell:
-    """Observed coverage and its tolerance zone (ledger.stats.intervals.coverage_zone)."""
-    if n == 0:
-        return CoverageCell(level, math.nan, 0, 0, 0.0, "as stated", "no cells", True)
-    z = coverage_zone(int(misses), int(n), p=1 - level / 100)
-    return CoverageCell(level, 100 * (1 - misses / n), int(n), int(misses), z.expected, z.direction, z.zone, is_small(n))
-
-
 def _coverage(counts: pd.DataFrame, levels: Sequence[float]) -> list[CoverageCell]:
     out = []
     for level in levels:
@@ -282,30 +265,40 @@ def finding_rows(flags: pd.DataFrame, ctx: Context) -> list[FindingRow]:
     return rows
 
 
-def _ranked(rows: list[FindingRow]) -> list[FindingRow]:
-    """Alerts first, then watch, then notes (stable within)."""
-    return sorted(rows, key=lambda f: severity_rank(f.severity))
-
-
 # ---------------------------------------------------------------- overview
 
 
 def build_overview(data: LedgerData, ctx: Context) -> Overview:
-    """The overview page: counts, headline sentences, leaderboard, charts, findings, advice."""
+    """The overview page: the review first, then the matrix, trends, value added, findings, advice."""
     all_periods = _scored_period_range(data)
     counts = {"series": len(data.series), "models": len(data.models), "runs": len(data.runs),
               "cells_scored": int(data.by_model_h["n"].sum()) if len(data.by_model_h) else 0,
               "cells_pending": data.pending}
-    flag_rows = _ranked(finding_rows(data.findings.flags, ctx))
-    advice = _advice_rows(data)
+    flag_rows = finding_rows(rank_flags(data.findings.flags), ctx)
     chart_list, notes = _overview_charts(data, ctx)
+    trends, trend_notes = trend_charts(data.by_model_period, data.findings.standings, data.findings.flags,
+                                       data.models, ctx.styles, data.horizon)
+    benchmark = default_benchmark(data.models, data.benchmark)
     return Overview(
         title=ctx.title, as_of=ctx.footer.as_of, period_first=all_periods[0], period_last=all_periods[1],
-        counts=counts, headlines=_headlines(data, ctx, counts, flag_rows, advice), horizon=data.horizon,
-        levels=ctx.levels, leaderboard=_leaderboard(data, ctx), charts=chart_list, chart_notes=notes,
+        counts=counts, review=build_review(data, ctx, counts, all_periods),
+        matrix=build_matrix(data.by_model_h, data.intervals, ctx.levels, ctx.model_href),
+        headlines=_headlines(data, ctx, counts), horizon=data.horizon,
+        levels=ctx.levels, trend_charts=trends, charts=chart_list, chart_notes=trend_notes + notes,
+        benchmark=benchmark, fva=fva_table(data.findings.value_added),
+        fva_chart=fva_chart(data.findings.value_added, ctx.styles), fva_note=_fva_note(data, benchmark),
         findings=flag_rows[:INDEX_FINDINGS], findings_total=len(flag_rows),
-        findings_by_kind=_count_kinds(flag_rows), incumbent=data.incumbent, advice=advice,
+        findings_by_kind=_count_kinds(flag_rows), incumbent=data.incumbent, advice=_advice_rows(data),
         advice_note=_advice_note(data))
+
+
+def _fva_note(data: LedgerData, benchmark: str | None) -> str:
+    if benchmark is None and not data.overrides:
+        return ("No benchmark in the ledger: record a seasonal-naive reference (backsight backtest … --methods snaive) "
+                "or name one with --benchmark MODEL; declare overrides with --adjusts OVERRIDE=BASE.")
+    if data.findings.value_added.empty:
+        return "The benchmark and the models share no scored cell with a scale yet, so no value added can be measured."
+    return ""
 
 
 def _scored_period_range(data: LedgerData) -> tuple[str, str]:
@@ -321,33 +314,9 @@ def _count_kinds(rows: list[FindingRow]) -> dict[str, int]:
     return dict(sorted(out.items()))
 
 
-def _leaderboard(data: LedgerData, ctx: Context) -> list[HorizonBoard]:
-    boards = []
-    for h, part in data.by_model_h.groupby("horizon", sort=True):
-        best = _best_model(part)
-        counts = data.intervals[data.intervals["horizon"] == h]
-        rows = [metric_row(r, ctx.model_href.get(r["model"], ""), counts[counts["model"] == r["model"]],
-                           ctx.levels, best=r["model"] == best) for r in part.to_dict("records")]
-        boards.append(HorizonBoard(int(h), rows))
-    return boards
-
-
-def _best_model(part: pd.DataFrame) -> str | None:
-    ok = part[part["mase"].notna()]
-    return None if ok.empty else str(ok.sort_values(["mase", "model"]).iloc[0]["model"])
-
-
-def _headlines(data: LedgerData, ctx: Context, counts: dict, flags: list[FindingRow],
-               advice: list[AdviceRow]) -> list[str]:
-    lines = [_scope_sentence(counts)]
-    lines += _model_sentences(data, ctx)
-    lines += _winner_sentence(data)
-    kinds = _count_kinds(flags)
-    listed = ", ".join(f"{n} {k}" for k, n in kinds.items())
-    lines.append(f"{plural(len(flags), 'finding')}{': ' + listed if listed else ''} (details below; "
-                 "a finding is evidence for a review, not proof).")
-    lines += [a.advice[0].upper() + a.advice[1:] + "." for a in advice if a.recommend]
-    return lines
+def _headlines(data: LedgerData, ctx: Context, counts: dict) -> list[str]:
+    """The figures in words: scope, then each model's recent accuracy, bias and coverage."""
+    return [_scope_sentence(counts)] + _model_sentences(data, ctx)
 
 
 def _scope_sentence(counts: dict) -> str:
@@ -361,7 +330,7 @@ def _model_sentences(data: LedgerData, ctx: Context) -> list[str]:
     w = data.window
     if not len(data.headline) or w.first is None:
         return ["No forecast has been scored yet: no actual has arrived for any forecast in the selection."]
-    span = f"Over the last {w.length} {w.unit} ({w.first} to {w.last})"
+    span = f"Over the last {plural(w.length, w.unit.rstrip('s'), w.unit)} ({w.first} to {w.last})"
     order = list(data.headline.sort_values(["mase", "model"], na_position="last")["model"])
     if data.incumbent in order:
         order = [data.incumbent] + [m for m in order if m != data.incumbent]
@@ -385,17 +354,6 @@ def _coverage_clause(data: LedgerData, model: str) -> str:
     cell = coverage_cell(level, int(counts.loc[counts["level"] == level, "n"].sum()),
                          int(counts.loc[counts["level"] == level, "misses"].sum()))
     return f"; its {format_level(level)}% intervals {coverage_words(cell.observed, level, cell.direction, cell.zone)} ({sample_note(cell.n)})"
-
-
-def _winner_sentence(data: LedgerData) -> list[str]:
-    part = data.by_model_h[data.by_model_h["horizon"] == data.horizon]
-    ok = part[part["mase"].notna()].sort_values(["mase", "model"])
-    if len(ok) < 2:
-        return []
-    best, second = ok.iloc[0], ok.iloc[1]
-    return [f"At horizon {data.horizon}, {best['model']} had the lowest MASE over all scored periods: "
-            f"{num(_f(best['mase']))} ({sample_note(int(best['n']))}), against {num(_f(second['mase']))} "
-            f"for {second['model']}, the next best. Whether the difference is significant is in the comparisons."]
 
 
 def _advice_rows(data: LedgerData) -> list[AdviceRow]:
@@ -426,27 +384,11 @@ def _pivot(frame: pd.DataFrame, index: str, column: str, models: Sequence[str]) 
 
 
 def _overview_charts(data: LedgerData, ctx: Context) -> tuple[list[charts.Chart], list[str]]:
+    """MASE by horizon and interval calibration (the trends are :func:`reports.trends.trend_charts`)."""
     out, notes = [], []
-    h = data.horizon
-    if len(data.by_model_period):
-        labels, values = _pivot(data.by_model_period, "period", "mase", data.models)
-        last = {m: v[-1] for m, v in values.items() if v and not math.isnan(v[-1])}
-        out.append(charts.lines_chart(
-            "c-mase", f"MASE per model by evaluation period, horizon {h}",
-            f"One line per model over {len(labels)} evaluation periods; 1 is the in-sample seasonal-naive error. "
-            + _last_values(last, labels), labels, values, ctx.styles,
-            ylabel="MASE (lower is better)", reference=1.0))
-    if len(data.findings.standings):
-        labels, values = _pivot(data.findings.standings, "period", "series_won", data.models)
-        out.append(charts.lines_chart(
-            "c-won", f"Share of series won per evaluation period, horizon {h}",
-            f"One line per model: the share of series where it had the lowest scaled error, over {len(labels)} periods. "
-            + _last_values({m: 100 * v[-1] for m, v in values.items() if v and not math.isnan(v[-1])}, labels, "%"),
-            labels, values, ctx.styles, ylabel="Series won (% of series)", percent=True))
-    else:
-        notes.append("Share of series won over time: no evaluation period has common cells of the models yet.")
-    if len(data.by_model_h):
-        hs, values = _pivot(data.by_model_h, "horizon", "mase", data.models)
+    scaled = data.by_model_h[data.by_model_h["mase"].notna()] if len(data.by_model_h) else data.by_model_h
+    if len(scaled):
+        hs, values = _pivot(scaled, "horizon", "mase", data.models)
         out.append(charts.horizon_chart(
             "c-horizon", "MASE by horizon, all scored periods",
             f"One line per model across horizons {hs[0]} to {hs[-1]}; errors usually grow with the horizon. "
@@ -455,13 +397,6 @@ def _overview_charts(data: LedgerData, ctx: Context) -> tuple[list[charts.Chart]
     if len(data.intervals):
         out.append(_calibration(data, ctx))
     return out, notes
-
-
-def _last_values(values: dict[str, float], labels: Sequence[str], unit: str = "") -> str:
-    if not values or not labels:
-        return ""
-    parts = ", ".join(f"{m} {num(v)}{unit}" for m, v in values.items())
-    return f"In {labels[-1]}: {parts}."
 
 
 def _calibration(data: LedgerData, ctx: Context) -> charts.Chart:
@@ -489,7 +424,7 @@ def build_model(data: LedgerData, ctx: Context, model: str) -> ModelView:
     rows = [metric_row(r, ctx.model_href[model], counts[counts["horizon"] == r["horizon"]], ctx.levels)
             for r in part.to_dict("records")]
     flags = data.findings.flags
-    mine = _ranked(finding_rows(flags[flags["model"] == model], ctx))
+    mine = finding_rows(rank_flags(flags[flags["model"] == model]), ctx)
     return ModelView(
         name=model, href=ctx.model_href[model], summary=_model_summary(data, model, rows),
         by_horizon=rows, levels=ctx.levels, chart=_coverage_chart(model, rows, ctx),
@@ -515,7 +450,7 @@ def _coverage_chart(model: str, rows: list[MetricRow], ctx: Context) -> charts.C
     hs = [r.horizon for r in rows]
     names = {lv: f"{format_level(lv)}% interval" for lv in ctx.levels}
     values = {names[lv]: [r.coverage[i].observed for r in rows] for i, lv in enumerate(ctx.levels)}
-    styles = charts.model_styles(list(values))
+    styles = charts.level_styles(list(values))
     words = "; ".join(f"{name}: {num(v[0])}% at h={hs[0]}, {num(v[-1])}% at h={hs[-1]}" for name, v in values.items())
     return charts.horizon_chart(
         "c-coverage",

@@ -54,7 +54,7 @@ def test_p_values():
 
 
 def test_severity_order_and_lists():
-    assert sorted(["note", "alert", "other", "watch"], key=severity_rank) == ["alert", "other", "watch", "note"]
+    assert sorted(["note", "act", "other", "watch"], key=severity_rank) == ["act", "other", "watch", "note"]
     assert list_names("abcdefg") == "a, b, c, d, e and 2 more"
     assert list_names(["x", "y"]) == "x, y"
     assert shorten("z" * 50) == "z" * 40 + "… (50 characters)"

@@ -54,11 +54,11 @@ def summary_lines(result) -> list[str]:
     if top is not None and len(top):
         lines.append("Top findings:")
         for i, row in enumerate(top.itertuples(index=False), start=1):
-            where = " ".join(x for x in (row.model, row.series) if x) or "(all series)"
-            lines.append(f"  {i}. {row.kind} {where}: {row.evidence}")
+            where = "".join(f" {x}" for x in (row.model, row.series) if x)
+            lines.append(f"  {i}. {row.kind}{where}: {row.evidence}")
     ledger = f"--ledger {shlex.quote(str(r.ledger_path))}"
     lines += ["Try next:",
-              f"  backsight {ledger} flags --severity alert",
+              f"  backsight {ledger} flags --severity act",
               f"  backsight {ledger} scores --by model --horizon 1",
               f"  backsight {ledger} compare {shlex.quote(result.incumbent)} {shlex.quote(_challenger(result))} --horizon 1"]
     return lines + [f"Report: {result.report.index}"]

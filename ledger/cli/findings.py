@@ -17,6 +17,7 @@ from ..api import Ledger
 from .common import (
     AsOfOpt,
     Format,
+    IncludeExcludedOpt,
     FormatOpt,
     app,
     busy,
@@ -29,18 +30,20 @@ from .engines import Engine, EngineOpt, LakeOpt, SparkMasterOpt, reading_ledger
 from .filters import HorizonOpt, ModelOpt, SeriesOpt, SinceOpt, UntilOpt, WhereOpt, selection
 from .thresholds import with_thresholds
 from ..findings.summary import finding_counts
+from .cycle import FailOnOpt, check_fail_on, gate
 
 __all__ = ["flags", "compare", "standings", "advise"]
 
 class Kind(str, enum.Enum):
     drift = "drift"
     calibration = "calibration"
+    quantiles = "quantiles"
     value = "value"
     data = "data"
 
 
 class SeverityOpt(str, enum.Enum):
-    alert = "alert"
+    act = "act"
     watch = "watch"
     note = "note"
 
@@ -55,7 +58,7 @@ _FLAG_TABLE = ["kind", "severity", "series", "model", "horizons", "level", "sinc
 def flags(
     ctx: typer.Context,
     kind: Annotated[list[Kind] | None, typer.Option("--kind", metavar="KIND", help="Only findings of this kind: drift, calibration, value or data (repeatable).")] = None,
-    severity: Annotated[list[SeverityOpt] | None, typer.Option("--severity", metavar="SEVERITY", help="Only findings of this severity: alert, watch or note (repeatable).")] = None,
+    severity: Annotated[list[SeverityOpt] | None, typer.Option("--severity", metavar="SEVERITY", help="Only findings of this severity: act, watch or note (repeatable).")] = None,
     model: ModelOpt = None,
     series: SeriesOpt = None,
     horizon: HorizonOpt = None,
@@ -64,6 +67,8 @@ def flags(
     where: WhereOpt = None,
     by: Annotated[str | None, typer.Option("--by", metavar="ATTR", help="Count findings per value of this series attribute and kind.")] = None,
     long: Annotated[bool, typer.Option("--long", help="After the table, each finding's evidence as a sentence.")] = False,
+    include_excluded: IncludeExcludedOpt = False,
+    fail_on: FailOnOpt = None,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
     engine: EngineOpt = Engine.duckdb,
@@ -72,16 +77,14 @@ def flags(
     thresholds: dict | None = None,
 ) -> None:
     """Findings: drifting models, miscalibrated intervals, no value added, data problems."""
+    if fail_on is not None and by is not None:
+        raise typer.BadParameter("--fail-on needs the findings themselves; leave out --by", param_hint="--fail-on")
+    check_fail_on(fail_on)
     chosen = dict(selection(model=model, series=series, horizon=horizon, since=since, until=until, where=where),
-                  kinds=[k.value for k in kind or []], severities=[s.value for s in severity or []])
-    if engine is Engine.spark and by is not None:
-        raise typer.BadParameter("--by is not available with --engine spark yet", param_hint="--by")
+                  kinds=[k.value for k in kind or []], severities=[s.value for s in severity or []],
+                  include_excluded=include_excluded)
     with reading_ledger(ctx, engine, lake, spark_master) as book, busy("Checking"):
-        if engine is Engine.spark:
-            from ..findings.on_spark import spark_flags
-
-            frame = spark_flags(book, as_of=as_of, **chosen, **thresholds)
-        elif by is not None:
+        if by is not None:
             frame = book.flag_counts(by, as_of=as_of, **chosen, **thresholds)
         else:
             frame = book.flags(as_of=as_of, **chosen, **thresholds)
@@ -90,18 +93,22 @@ def flags(
         return
     if fmt is not Format.table:
         emit(frame, fmt)
-        return
-    if frame.empty:
+    elif frame.empty:
         notice("no findings in the selection")
-        return
+    else:
+        _print_findings(frame, fmt, long)
+    gate(frame, fail_on)
+
+
+def _print_findings(frame, fmt: Format, long: bool) -> None:
     say(finding_counts(frame))
     table = frame[[c for c in _FLAG_TABLE if c in frame.columns]].copy()
     table.insert(0, "#", range(1, len(frame) + 1))
     emit(table, fmt, title="Findings (e = actual − forecast)")
     if long:
         for i, row in enumerate(frame.itertuples(index=False), start=1):
-            where_ = " ".join(x for x in (row.model, row.series) if x) or "(all series)"
-            say(f"{i}. {row.kind} {where_}: {row.evidence}")
+            where_ = "".join(f" {x}" for x in (row.model, row.series) if x)   # no empty name in the sentence
+            say(f"{i}. {row.kind}{where_}: {row.evidence}")
 
 
 @app.command()

@@ -6,9 +6,18 @@ of evidence a reviewer can read aloud. The checks that produce findings live in
 :mod:`ledger.findings.drift`, :mod:`ledger.findings.calibration`, :mod:`ledger.findings.value` and :mod:`ledger.findings.data`;
 :mod:`ledger.findings.flags` runs them over a ledger.
 
-Severity: ``alert`` (a test crossed its limit), ``watch`` (interval calibration in the watch
-zone), ``note`` (a check could not judge: too few cells, no benchmark). Notes are listed too,
-because a test that lacks the data to decide must say so.
+Severity says what to do: ``act`` (a change that costs accuracy now: fix or replace),
+``watch`` (a real but smaller or not yet costly problem: look again next cycle), ``note``
+(context: zeros, gaps, short history, a check that lacked the data to judge). Notes are
+listed too, because a test that lacks the data to decide must say so.
+
+Impact (:attr:`Finding.impact`) puts every kind on one scale: the excess scaled absolute error
+the finding stands for, sum of |e|/q over the affected cells of the recent window minus what
+those cells would have cost without the problem, in percent of the ledger's total sum of
+|e|/q over the recent window (all scored cells of the models looked at). Per kind:
+drift, the cost of the change since it started; calibration, the distance by which misses
+beyond the nominal rate fell outside their intervals; value, the model's |e|/q above the
+benchmark's on common cells; data, 0 (context). ``flags`` sorts by severity, then impact.
 """
 
 from __future__ import annotations
@@ -30,6 +39,8 @@ __all__ = [
     "Severity",
     "Correction",
     "KINDS",
+    "SEVERITIES",
+    "SEVERITY_ORDER",
     "Finding",
     "FlagOptions",
     "FINDING_COLUMNS",
@@ -40,10 +51,11 @@ __all__ = [
     "check_models",
 ]
 
-FindingKind = Literal["drift", "calibration", "value", "data"]
-Severity = Literal["alert", "watch", "note"]
+FindingKind = Literal["drift", "calibration", "quantiles", "value", "data"]
+Severity = Literal["act", "watch", "note"]
 Correction = Literal["bh", "holm"]
 KINDS: tuple[str, ...] = get_args(FindingKind)
+SEVERITIES: tuple[str, ...] = get_args(Severity)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -56,6 +68,14 @@ class Finding:
     ``raised`` the period at which a sequential test crossed its limit; ``figure`` the headline
     number, whose meaning ``measure`` names; ``p_value`` the (adjusted, where stated) p-value of
     the test behind the finding, NaN when the test has none; ``n`` the cells (or periods) used.
+
+    ``severity`` is ``act``, ``watch`` or ``note`` (see the module docstring). ``impact`` is the
+    excess scaled absolute error the finding stands for, in percent of the ledger's total over
+    the recent window (0 for notes; the module docstring defines it per kind). ``action`` is
+    what to do, as a sentence; ``action_figure`` its headline number and ``action_measure``
+    what that number is (e.g. "half-width factor", "MAE after a constant correction"); every
+    act and watch finding has one. ``series_list`` names the series of a consolidated
+    (model-level) finding, comma-separated. :attr:`key` is the finding's stable identity.
     """
 
     kind: str
@@ -67,26 +87,45 @@ class Finding:
     figure: float
     evidence: str
     check: str
-    severity: str = "alert"
+    severity: str = "act"
     zone: str = ""
     horizons: str = ""
     raised: str = ""
     measure: str = ""
     p_value: float = math.nan
     n: int = 0
+    impact: float = 0.0
+    action: str = ""
+    action_figure: float = math.nan
+    action_measure: str = ""
+    series_list: str = ""
+
+    @property
+    def key(self) -> str:
+        """Stable identity across monthly runs: kind|model|series|level|topic.
+
+        Free of horizon, dates and figures, so the same problem keeps its key from one cycle to
+        the next. ``level`` is the interval level in percent ('' when none); ``topic`` separates
+        findings of one kind about the same subject: the data check (gap, zero actuals, ...), the
+        calibration test (coverage or clustered misses), '' otherwise.
+        """
+        level = "" if self.level is None or not math.isfinite(self.level) else f"{self.level:g}"
+        topic = self.check if self.kind == "data" else (
+            "clustered" if self.check == "clustered misses" else "coverage" if self.kind == "calibration" else "")
+        return "|".join((self.kind, self.model, self.series, level, topic))
 
 
-FINDING_COLUMNS: tuple[str, ...] = tuple(f.name for f in dataclasses.fields(Finding))
+FINDING_COLUMNS: tuple[str, ...] = tuple(f.name for f in dataclasses.fields(Finding)) + ("key",)
 
 
 @dataclasses.dataclass(frozen=True)
 class FlagOptions:
     """Every threshold of ``flags``, with its default (each is a CLI option of the same name).
 
-    Drift (:mod:`ledger.findings.drift`): ``drift_k``, ``drift_h`` (CUSUM allowance and decision interval
-    in reference standard deviations); ``reference`` (cells in the reference window; None = two
-    seasons, at least 8); ``ts_window`` (tracking-signal window; None = one season, at least 6);
-    ``trigg_alpha``.
+    Drift (:mod:`ledger.findings.drift`): ``drift_k``, ``drift_h`` (allowance and decision
+    interval, in long-run standard deviations, of the CUSUM that dates when a monitor would have
+    sounded); ``ts_window`` (tracking-signal window; None = one season, at least 6);
+    ``trigg_alpha``; drift tests share ``fdr`` and ``min_cells`` with calibration.
     Calibration (:mod:`ledger.findings.calibration`): ``fdr`` (level of the false-finding control across all
     calibration tests), ``correction`` ("bh" Benjamini-Hochberg or "holm"), ``min_cells`` (fewer
     cells: "not enough data to judge"), ``series_calibration`` (also test each series),
@@ -102,7 +141,6 @@ class FlagOptions:
 
     drift_k: float = 0.5
     drift_h: float = DRIFT_H
-    reference: int | None = None
     ts_window: int | None = None
     trigg_alpha: float = 0.1
     fdr: float = 0.05
@@ -145,22 +183,21 @@ class FlagOptions:
 
 
 def findings_frame(findings: Iterable[Finding]) -> pd.DataFrame:
-    """Findings as a frame, ordered by kind, severity, model, series, horizon, level."""
-    rows = [dataclasses.asdict(f) for f in findings]
+    """Findings as a frame, ranked: severity (act, watch, note), then impact (largest first),
+    then kind, model, series, horizon, level (the count line is
+    :func:`ledger.findings.summary.finding_counts`)."""
+    found = list(findings)
+    rows = [dataclasses.asdict(f) | {"key": f.key} for f in found]
     frame = pd.DataFrame(rows, columns=list(FINDING_COLUMNS))
+    for name in ("level", "figure", "p_value", "impact", "action_figure"):
+        frame[name] = frame[name].astype("float64")
     frame["horizon"] = frame["horizon"].astype("Int64")
-    frame["level"] = frame["level"].astype("float64")
-    frame["figure"] = frame["figure"].astype("float64")
-    frame["p_value"] = frame["p_value"].astype("float64")
     frame["n"] = frame["n"].astype("int64")
-    order = pd.DataFrame({
-        "k": frame["kind"].map({k: i for i, k in enumerate(KINDS)}),
-        "s": frame["severity"].map(SEVERITY_ORDER),
-    })
-    frame = frame.assign(_k=order["k"], _s=order["s"])
-    frame = frame.sort_values(["_k", "_s", "model", "series", "horizon", "level", "since"],
+    frame = frame.assign(_s=frame["severity"].map(SEVERITY_ORDER), _i=-frame["impact"].fillna(0.0),
+                         _k=frame["kind"].map({k: i for i, k in enumerate(KINDS)}))
+    frame = frame.sort_values(["_s", "_i", "_k", "model", "series", "horizon", "level", "since"],
                               kind="stable", na_position="first")
-    return frame.drop(columns=["_k", "_s"]).reset_index(drop=True)
+    return frame.drop(columns=["_s", "_i", "_k"]).reset_index(drop=True)
 
 
 def about(x: float) -> str:

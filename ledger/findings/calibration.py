@@ -21,10 +21,24 @@ independence is tested at horizon 1 only) and the conditional-coverage LR.
 
 False findings: every binomial and independence p-value of one ``flags`` call forms one family,
 adjusted by Benjamini-Hochberg (default; ``correction="holm"`` for Holm's family-wise control).
-A coverage finding needs an adjusted p-value <= ``fdr`` (0.05) *and* a zone of watch or out of
-tolerance, which also sets its severity (watch / alert). An independence finding needs an
-adjusted p-value <= ``fdr`` and misses that cluster (a miss more likely after a miss). Groups
-with fewer than ``min_cells`` cells are not tested and say "not enough data to judge".
+A bucket counts when its adjusted p-value is <= ``fdr`` (0.05) *and* its zone is watch or out of
+tolerance; clustering counts when its adjusted p-value is <= ``fdr`` and a miss is more likely
+after a miss. Groups with fewer than ``min_cells`` cells are not tested and say "not enough
+data to judge".
+
+One problem, one finding: one finding per model × level gathers the buckets that count (the
+worst one, by adjusted p-value, speaks; the others and the series that miss most are its
+evidence; clustering joins its evidence). Severity ``act`` when a bucket is out of tolerance,
+``watch`` otherwise. A series gets its own finding only where it departs from its model's own
+calibration: its horizon-1 misses, by an exact two-sided binomial test against the model's
+pooled horizon-1 miss rate at that level; these tests form a second family under the same
+correction.
+
+Action (:mod:`ledger.stats.recalibration`): the half-width factor that reaches the
+stated level over the recent window, and the coverage a factor fitted on the earlier cells
+gives on the recent window, out of sample. Impact: the scaled distance by which recent misses
+beyond the nominal rate fell outside their intervals (too-wide intervals cost no accuracy:
+impact 0).
 """
 
 from __future__ import annotations
@@ -40,6 +54,8 @@ from scipy import stats
 from ..stats import intervals
 from ..stats.intervals import IndependenceTest, ZoneResult, benjamini_hochberg, holm
 from .base import Finding, FlagOptions, about
+from ..stats.recalibration import excess_miss_cost, recalibration
+from .drift_actions import share
 from ..wording import format_level, label, pval
 
 __all__ = ["calibration_findings", "bucket_labels"]
@@ -83,8 +99,13 @@ class _Test:
     cc_p: float = math.nan
 
 
-def calibration_findings(icells: pd.DataFrame, freqs: dict[str, str], options: FlagOptions) -> list[Finding]:
-    """Calibration findings and notes for the cells of ``Ledger.interval_cells`` (see the module doc)."""
+def calibration_findings(icells: pd.DataFrame, freqs: dict[str, str], options: FlagOptions, *,
+                         recent_from: dict[str, int] | None = None, total: float = math.nan) -> list[Finding]:
+    """Calibration findings and notes for the rows of ``interval_misses`` (see the module doc).
+
+    ``recent_from``: first period index of the recent window per frequency (default: the last
+    ``options.recent`` periods); ``total``: the denominator of impact (:mod:`ledger.findings.base`).
+    """
     if icells.empty:
         return []
     data = icells.assign(freq=icells["series"].map(freqs).astype(object),
@@ -95,6 +116,10 @@ def calibration_findings(icells: pd.DataFrame, freqs: dict[str, str], options: F
     # The previous cell's miss in the same series x model x level x horizon sequence, for the
     # transition counts of the independence test (NaN at the start of each sequence).
     data["prev"] = data.groupby(["model", "level", "series", "horizon"])["miss"].shift(1).astype("float64")
+    if recent_from is None:
+        newest = data.groupby("freq")["period_index"].max()
+        recent_from = {str(f): int(v) - options.recent + 1 for f, v in newest.items()}
+    data["recent"] = data["period_index"].to_numpy() >= data["freq"].map(recent_from).to_numpy(dtype=float)
     cols = {c: data[c].to_numpy() for c in ("miss", "below", "above", "period_index", "horizon", "prev")}
     tests, notes = _bucket_tests(data, cols, options)
     if options.series_calibration:
@@ -103,10 +128,30 @@ def calibration_findings(icells: pd.DataFrame, freqs: dict[str, str], options: F
         notes += skipped
     if not tests:
         return notes
-    raw = np.array([t.p for t in tests])
-    adjusted = benjamini_hochberg(raw) if options.correction == "bh" else holm(raw)
-    out = [f for t, adj in zip(tests, adjusted) if (f := _finding(t, adj, options)) is not None]
-    return out + notes
+    counted = []
+    # Departures form their own family: many tiny bucket p-values would otherwise lower the
+    # Benjamini-Hochberg bar for them and let chance departures through.
+    for family in ([t for t in tests if t.test != "departure"], [t for t in tests if t.test == "departure"]):
+        if not family:
+            continue
+        raw = np.array([t.p for t in family])
+        adjusted = benjamini_hochberg(raw) if options.correction == "bh" else holm(raw)
+        counted += [(t, adj) for t, adj in zip(family, adjusted) if _counts(t, adj, options)]
+    return _assemble(counted, data, recent_from, total) + notes
+
+
+def _counts(t: _Test, adj: float, options: FlagOptions) -> bool:
+    if not adj <= options.fdr:
+        return False
+    if t.test == "coverage":
+        return t.zone.direction != "as stated"
+    if t.test == "departure":
+        return True
+    ind = t.independence
+    after_miss = ind.n10 + ind.n11
+    rate_after = ind.n11 / after_miss if after_miss else math.nan
+    rate_after_hit = ind.n01 / (ind.n00 + ind.n01) if ind.n00 + ind.n01 else math.nan
+    return rate_after > rate_after_hit
 
 
 def _bucket_tests(data: pd.DataFrame, cols: dict, options: FlagOptions) -> tuple[list[_Test], list[Finding]]:
@@ -122,11 +167,15 @@ def _bucket_tests(data: pd.DataFrame, cols: dict, options: FlagOptions) -> tuple
 
 
 def _series_tests(data: pd.DataFrame, cols: dict, options: FlagOptions) -> tuple[list[_Test], list[Finding]]:
+    """Per series × model × level at horizon 1: do its misses depart from the model's own rate?
+
+    Horizon 1 only: an actual appears at every horizon, so pooling horizons counts it up to H
+    times and makes the per-series test far too liberal on real data.
+    """
     tests, skipped = [], {}
     freq_of = data["freq"].to_numpy()
-    # Horizon 1 only: an actual appears at every horizon, so pooling horizons counts it up to H
-    # times and makes the per-series test far too liberal on real data.
     first = data[data["horizon"] == 1]
+    pooled = first.groupby(["model", "level"])["miss"].mean()
     for (model, series, level), labels in first.groupby(["model", "series", "level"], sort=True).groups.items():
         idx = labels.to_numpy()
         count = skipped.setdefault((str(model), float(level)), [0, 0])
@@ -135,10 +184,21 @@ def _series_tests(data: pd.DataFrame, cols: dict, options: FlagOptions) -> tuple
             count[0] += 1
             continue
         where = dict(model=str(model), series=str(series), level=float(level), bucket="1", freq=str(freq_of[idx[0]]))
-        tests.append(_coverage_test(where, cols, idx, options))
-        tests += _independence_test(where, cols, idx, options)
+        rate = float(pooled[(model, level)])
+        n, x = int(idx.size), int(cols["miss"][idx].sum())
+        tests.append(_Test("departure", **where, since=int(cols["period_index"][idx].min()), n=n,
+                           p=_binomial_p(x, n, round(rate, 9)), kupiec_p=rate,
+                           below=int(cols["below"][idx].sum()), above=int(cols["above"][idx].sum())))
     notes = [_skipped_note(model, level, n, total, options) for (model, level), (n, total) in skipped.items() if n]
     return tests, notes
+
+
+@functools.lru_cache(maxsize=65536)
+def _binomial_p(x: int, n: int, rate: float) -> float:
+    """Exact two-sided binomial p-value of x of n against ``rate`` (scipy.stats.binomtest)."""
+    if rate <= 0 or rate >= 1:
+        return 1.0 if (x == 0 and rate <= 0) or (x == n and rate >= 1) else 0.0
+    return float(stats.binomtest(x, n, rate).pvalue)
 
 
 def _coverage_test(where: dict, cols: dict, idx: np.ndarray, options: FlagOptions) -> _Test:
@@ -168,49 +228,125 @@ def _independence_test(where: dict, cols: dict, idx: np.ndarray, options: FlagOp
                   p=ind.p_value, independence=ind, cc_statistic=cc, cc_p=float(stats.chi2.sf(cc, 2)))]
 
 
-def _finding(t: _Test, adj: float, options: FlagOptions) -> Finding | None:
-    if not adj <= options.fdr:
-        return None
-    if t.test == "coverage":
-        return _coverage_finding(t, adj) if t.zone.direction != "as stated" else None
-    ind = t.independence
-    after_miss = ind.n10 + ind.n11
-    rate_after = ind.n11 / after_miss if after_miss else math.nan
-    rate_after_hit = ind.n01 / (ind.n00 + ind.n01) if ind.n00 + ind.n01 else math.nan
-    if not rate_after > rate_after_hit:
-        return None
-    return _independence_finding(t, adj, rate_after)
-
-
 def _where(t: _Test) -> str:
     if not t.bucket:
         return "all horizons"
     return f"horizon {t.bucket}" if t.bucket.isdigit() else f"horizons {t.bucket.replace('-', '–')}"
 
 
-def _coverage_finding(t: _Test, adj: float) -> Finding:
-    z, lv = t.zone, format_level(t.level)
-    since = label(t.since, t.freq)
-    text = (f"{lv}% intervals missed {z.misses} of {z.n} actuals since {since}; expected about "
-            f"{about(z.expected)} ({_where(t)}; {z.direction}: {t.below} below, {t.above} above; "
-            f"{z.zone}, Kupiec {pval(t.kupiec_p)}, adjusted {pval(adj)})")
-    return Finding(kind="calibration", series=t.series, model=t.model, horizon=_single(t.bucket),
-                   level=t.level, since=since, figure=1 - z.misses / z.n, evidence=text, check=z.direction,
-                   severity="alert" if z.zone == "out of tolerance" else "watch", zone=z.zone,
-                   horizons=t.bucket or "all", measure="coverage", p_value=adj, n=t.n)
+def _assemble(counted: list[tuple[_Test, float]], data: pd.DataFrame, recent_from: dict, total: float) -> list[Finding]:
+    """One finding per model × level from its counted buckets (and clustering), plus departing series."""
+    per_level: dict[tuple[str, float], dict[str, list]] = {}
+    for t, adj in counted:
+        slot = per_level.setdefault((t.model, t.level), {"coverage": [], "independence": [], "departure": []})
+        slot[t.test].append((t, adj))
+    rows = data.groupby(["model", "level"]).indices
+    series_rows = data.groupby(["model", "level", "series"]).indices
+    out = []
+    for (model, level), slot in per_level.items():
+        cells = data.iloc[rows[(model, level)]]
+        if slot["coverage"]:
+            out.append(_model_finding(slot["coverage"], slot["independence"], cells, recent_from, total))
+        elif slot["independence"]:
+            out.append(_clustered_finding(slot["independence"], cells, recent_from, total))
+        for t, adj in slot["departure"]:
+            out.append(_series_finding(t, adj, data.iloc[series_rows[(model, level, t.series)]], recent_from, total))
+    return out
 
 
-def _independence_finding(t: _Test, adj: float, rate_after: float) -> Finding:
+def _action_figures(cells: pd.DataFrame, level: float, recent_from: dict) -> tuple[str, float, float]:
+    """(sentence, factor, impact numerator) for the cells of one model × level (or one series)."""
+    freq = str(cells["freq"].iloc[0])
+    start = int(recent_from.get(freq, cells["period_index"].min()))
+    ratio = cells["ratio"].to_numpy(dtype=float, na_value=np.nan)
+    factor, before, cover, n = recalibration(ratio, cells["period_index"].to_numpy(), level, start)
+    lv = format_level(level)
+    recent = cells["recent"].to_numpy(dtype=bool)
+    cost = excess_miss_cost(cells["dist"].to_numpy(dtype=float, na_value=np.nan)[recent],
+                            cells["miss"].to_numpy(dtype=bool)[recent], level)
+    if not math.isfinite(factor):
+        return f"widen or narrow the {lv}% intervals; no recent cell to fit a factor on", factor, cost
+    text = f"scale the {lv}% half-widths by {factor:.2f} to reach {lv}% over the {n} recent cells"
+    if math.isfinite(cover):
+        text += (f"; a factor fitted on the cells before {label(start, freq)} ({before:.2f}) would have "
+                 f"covered {cover:.0%} of those {n} cells, out of sample")
+    return text, factor, cost
+
+
+def _model_finding(coverage: list, clustered: list, cells: pd.DataFrame, recent_from: dict, total: float) -> Finding:
+    worst, adj = min(coverage, key=lambda ta: (ta[1], -abs(ta[0].zone.misses / ta[0].zone.n - ta[0].zone.p)))
+    z, lv = worst.zone, format_level(worst.level)
+    misses, n = int(cells["miss"].sum()), len(cells)
+    direction = z.direction
+    others = [_where(t) for t, _ in sorted(coverage, key=lambda ta: _edge(ta[0].bucket)) if t is not worst]
+    text = (f"{lv}% intervals missed {misses} of {n} actuals since {label(worst.since, worst.freq)}; expected about "
+            f"{about(n * (1 - worst.level / 100))}; worst at {_where(worst)}: {z.misses} of {z.n}, expected about "
+            f"{about(z.expected)} ({direction}: {worst.below} below, {worst.above} above; {z.zone}, Kupiec "
+            f"{pval(worst.kupiec_p)}, adjusted {pval(adj)})")
+    if others:
+        text += f"; also {direction} at {', '.join(others)}"
+    text += _worst_series(cells)
+    if clustered:
+        t, a = min(clustered, key=lambda ta: ta[1])
+        text += f"; misses cluster at horizon 1 (Christoffersen LR {t.independence.statistic:.1f}, adjusted {pval(a)})"
+    action, factor, cost = _action_figures(cells, worst.level, recent_from)
+    severity = "act" if any(t.zone.zone == "out of tolerance" for t, _ in coverage) else "watch"
+    return Finding(kind="calibration", series="", model=worst.model, horizon=_single(worst.bucket),
+                   level=worst.level, since=label(worst.since, worst.freq), figure=1 - misses / n, evidence=text,
+                   check=direction, severity=severity, zone=z.zone,
+                   horizons=",".join(t.bucket for t, _ in sorted(coverage, key=lambda ta: _edge(ta[0].bucket))),
+                   measure="coverage", p_value=adj, n=n, impact=share(cost, total) if direction == "too narrow" else 0.0,
+                   action=action, action_figure=factor, action_measure="half-width factor")
+
+
+def _worst_series(cells: pd.DataFrame, top: int = 3) -> str:
+    """'; series missing most at horizon 1: a (9 of 12), b (8 of 12)' from the horizon-1 cells."""
+    first = cells[cells["horizon"] == 1]
+    if first.empty:
+        return ""
+    per = first.groupby("series")["miss"].agg(["sum", "size"])
+    per = per[per["size"] > 0].assign(rate=lambda f: f["sum"] / f["size"]).sort_values(["rate", "size"], ascending=False)
+    parts = [f"{s} ({int(r['sum'])} of {int(r['size'])})" for s, r in per.head(top).iterrows()]
+    return f"; series missing most at horizon 1: {', '.join(parts)}" if parts else ""
+
+
+def _clustered_finding(clustered: list, cells: pd.DataFrame, recent_from: dict, total: float) -> Finding:
+    t, adj = min(clustered, key=lambda ta: ta[1])
     ind, lv = t.independence, format_level(t.level)
     since = label(t.since, t.freq)
     overall = (ind.n01 + ind.n11) / (ind.n00 + ind.n01 + ind.n10 + ind.n11)
+    rate_after = ind.n11 / (ind.n10 + ind.n11) if ind.n10 + ind.n11 else math.nan
     text = (f"{lv}% interval misses cluster at horizon 1 since {since}: {ind.n11} of {ind.n10 + ind.n11} "
             f"actuals after a miss were missed again, against {overall:.0%} of all actuals "
             f"(Christoffersen LR {ind.statistic:.1f}, adjusted {pval(adj)}; conditional coverage "
             f"LR {t.cc_statistic:.1f}, {pval(t.cc_p)})")
+    action, factor, cost = _action_figures(cells, t.level, recent_from)
+    action = "misses come in runs, so the model reacts late to changes; " + action
     return Finding(kind="calibration", series=t.series, model=t.model, horizon=1, level=t.level,
-                   since=since, figure=rate_after, evidence=text, check="clustered misses",
-                   horizons="1", measure="miss rate after a miss", p_value=adj, n=t.n)
+                   since=since, figure=rate_after, evidence=text, check="clustered misses", severity="watch",
+                   horizons="1", measure="miss rate after a miss", p_value=adj, n=t.n,
+                   impact=share(cost, total), action=action, action_figure=factor, action_measure="half-width factor")
+
+
+def _series_finding(t: _Test, adj: float, cells: pd.DataFrame, recent_from: dict, total: float) -> Finding:
+    lv, rate = format_level(t.level), t.kupiec_p
+    x = t.below + t.above
+    direction = "more" if x / t.n > rate else "less"
+    text = (f"{lv}% intervals at horizon 1 missed {x} of {t.n} actuals since {label(t.since, t.freq)} "
+            f"({t.below} below, {t.above} above), {direction} often than the model's own {rate:.0%} at horizon 1 "
+            f"(nominal {1 - t.level / 100:.0%}; exact binomial, adjusted {pval(adj)})")
+    action, factor, cost = _action_figures(cells, t.level, recent_from)
+    return Finding(kind="calibration", series=t.series, model=t.model, horizon=1, level=t.level,
+                   since=label(t.since, t.freq), figure=1 - x / t.n, evidence=text,
+                   check=f"departs from the model ({'too narrow' if direction == 'more' else 'too wide'})",
+                   severity="watch", horizons="1", measure="coverage", p_value=adj, n=t.n,
+                   impact=share(cost, total) if direction == "more" else 0.0, action=action,
+                   action_figure=factor, action_measure="half-width factor")
+
+
+def _edge(bucket: str) -> int:
+    """Lower edge of a bucket label ('1', '2-3', '13+')."""
+    return int(bucket.split("-")[0].rstrip("+"))
 
 
 def _single(bucket: str) -> int | None:

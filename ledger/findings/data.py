@@ -95,7 +95,8 @@ def data_findings(store: Store, sel: Selection, options: FlagOptions) -> list[Fi
 
 def _data(series: str, model: str, since: str, figure: float, text: str, check: str, measure: str, n: int) -> Finding:
     return Finding(kind="data", series=series, model=model, horizon=None, level=None, since=since,
-                   figure=float(figure), evidence=text, check=check, measure=measure, n=int(n))
+                   figure=float(figure), evidence=text, check=check, measure=measure, n=int(n),
+                   severity="note")
 
 
 def _gap_findings(series: str, g: pd.DataFrame) -> list[Finding]:

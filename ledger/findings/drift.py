@@ -1,19 +1,32 @@
-"""Drift findings: bias and deterioration CUSUMs per series × model × horizon, reported once per
-series × model (the lowest flagged horizon speaks; the other flagged horizons are listed).
+"""Drift findings: a sustained change of bias or of error size, found over the whole record and
+dated where it starts; one finding per series × model, or one per model when many of its series
+change at one time.
 
-For each sequence of scored cells (one series, model and horizon, ordered by target period) the
-pure :func:`ledger.stats.signals.drift_test` runs two tabular CUSUMs against the sequence's own
-reference window (default: the first two seasons of scored cells, at least 8): one for bias on
-standardised errors e / sd_ref(e), one for deterioration on square-rooted absolute scaled errors
-|e|/q. k = 0.5 and h = :data:`ledger.stats.signals.DRIFT_H` (5.5) reference standard deviations; the
-in-control false-alarm rate over a 36-period monthly record (24 reference + 12 monitored) is
-about 3-4% per sequence (measured in tests/test_checks.py and, through the ledger, in
-tests/test_findings.py). The tracking signal and Trigg's signal are shown in the evidence, never
-used to raise a finding. Sign convention: e = actual - forecast, so a positive mean error means
-forecasts too low.
+Per series × model × horizon sequence (scored cells ordered by target period, at least
+``min_cells`` of them) two tests of :mod:`ledger.stats.changepoint` run over every cell, with no
+reference window: the bias scan (mean error moving away from zero, the target of an unbiased
+forecast, so a model biased from its first run is found too) and the size test (a rise of
+sqrt(|e|/q)). Their long-run variance uses the autocorrelation pooled over the model's series at
+that horizon (at least :data:`POOL_MIN` sequences; fewer: each sequence's own), because
+multi-step errors overlap and one short record cannot estimate it well. A sequence's p-value is
+the Bonferroni minimum of its two tests; all sequences of one ``flags`` call form one family
+under Benjamini-Hochberg (``fdr``). The start of the change is the maximiser of the test that
+gave the smaller p-value. A Page (1954) CUSUM on the errors standardised by the in-control
+estimates (centre 0, the long-run spread; ``drift_k``, ``drift_h``) runs over the newest cells,
+from the start of the change on: ``raised`` is where a monthly monitor would have sounded.
 
-Figure of a drift finding: recent MASE / reference MASE (above 1: accuracy got worse), where
-recent means the monitored cells after the reference window.
+The tracking signal and Trigg's signal are shown in the evidence, never used to raise a finding.
+Sign convention: e = actual - forecast, a positive mean error means forecasts too low.
+
+Severity: ``act`` when the change costs at least :data:`ACT_SHARE` (10%) of the affected cells'
+scaled absolute error in the recent window (common practice, no source), else ``watch``.
+Impact (see :mod:`ledger.findings.base`): bias, sum over cells since the change (recent window)
+of |e|/q - |e - b|/q, b the mean error since the change; size, sum of |e|/q - the mean |e|/q
+before the change, floored at 0. Figure: MASE since the change / MASE before it.
+
+Consolidation: when at least :data:`CONSOLIDATE_MIN` series of one model change in the same
+direction within :data:`CONSOLIDATE_SPAN` periods of each other, one model-level finding lists
+them (``series_list``); its impact is their sum.
 """
 
 from __future__ import annotations
@@ -23,69 +36,76 @@ import dataclasses
 import numpy as np
 import pandas as pd
 
-from ..stats.signals import DriftResult, drift_test, reference_length, tracking_window
-from .base import Finding, FlagOptions
-from ..wording import label, short_num, signed
+from ..stats.changepoint import MIN_SEGMENT, bias_scan, bonferroni_pair, residual_phi, size_shift
+from ..stats.intervals import benjamini_hochberg
+from ..stats.signals import cusum, tracking_signal, trigg_signal, tracking_window
+from .base import Finding, FlagOptions, horizon_text
+from ..wording import label, pval, short_num as num, signed
+from ..stats.recalibration import corrected_mae
+from .drift_actions import SeriesIndex, best_other, share
 
-__all__ = ["drift_findings", "short_note"]
+__all__ = ["drift_findings", "horizon_ranges", "POOL_MIN", "ACT_SHARE", "CONSOLIDATE_MIN", "CONSOLIDATE_SPAN"]
+
+POOL_MIN = 5
+ACT_SHARE = 0.10
+CONSOLIDATE_MIN = 3
+CONSOLIDATE_SPAN = 2
 
 
-def drift_findings(cells: pd.DataFrame, seasons: dict[str, int], options: FlagOptions) -> list[Finding]:
-    """Drift findings for every series × model × horizon in ``cells`` (from ``Ledger.cells``).
+@dataclasses.dataclass
+class _Seq:
+    """One tested sequence: where it is, its cells (positions in the sorted frame) and results."""
 
-    ``seasons`` maps series to season length m. Sequences with no cell after the reference
-    window are not judged; one note per model counts them.
+    model: str
+    series: str
+    horizon: int
+    idx: np.ndarray
+    p: float = 1.0
+    bias: bool = True
+    start: int = 0
+    shift: float = 0.0
+    lrv: float = np.nan
+
+
+def drift_findings(cells: pd.DataFrame, seasons: dict[str, int], options: FlagOptions, *,
+                   subjects=None, recent_from: dict[str, int] | None = None, total: float = np.nan) -> list[Finding]:
+    """Drift findings for the models in ``subjects`` (None: every model in ``cells``).
+
+    ``cells``: scored cells of every model (``Ledger.cells``), so that a finding can name a model
+    that was more accurate since the change. ``recent_from``: first period index of the recent
+    window per frequency (default: the last ``options.recent`` periods of each frequency).
+    ``total``: the ledger's sum of |e|/q over the recent window, the denominator of impact.
     """
-    flagged: dict[tuple[str, str], list[Finding]] = {}
-    short: dict[str, list] = {}
     ordered = cells.sort_values(["model", "series", "horizon", "period_index"], kind="stable").reset_index(drop=True)
     cols = _columns(ordered)
-    judged = []
-    for (model, series, horizon), idx in ordered.groupby(["model", "series", "horizon"], sort=True).indices.items():
-        m = int(seasons.get(series, 1))
-        ref = options.reference or reference_length(m)
-        counts = short.setdefault(model, [0, 0, set()])
+    recent_from = recent_from or _recent_from(ordered, options.recent)
+    wanted = set(ordered["model"]) if subjects is None else set(subjects)
+    seqs, short = [], {}
+    groups = ordered.groupby(["model", "series", "horizon"], sort=True).indices
+    for (model, series, horizon), idx in groups.items():
+        if model not in wanted:
+            continue
+        counts = short.setdefault(str(model), [0, 0])
         counts[1] += 1
-        counts[2].add(ref)
-        if idx.size <= ref:
+        if idx.size < max(options.min_cells, 2 * MIN_SEGMENT + 2):
             counts[0] += 1
             continue
-        judged.append((model, series, horizon, idx, m, ref))
-    maybe = _screen(cols, [(j[3], j[5]) for j in judged], options)
-    for (model, series, horizon, idx, m, ref), candidate in zip(judged, maybe):
-        if not candidate:
-            continue
-        result = _run(cols, idx, m, ref, options)
-        if result.flagged:
-            flagged.setdefault((str(model), str(series)), []).append(
-                _finding(result, cols, idx, str(model), str(series), int(horizon)))
-    out = [_merge(found) for found in flagged.values()]
-    out += [short_note(model, *c) for model, c in short.items() if c[0]]
+        seqs.append(_Seq(str(model), str(series), int(horizon), idx))
+    _test_all(seqs, cols)
+    if seqs:
+        adjusted = benjamini_hochberg(np.array([q.p for q in seqs]))
+        flagged = [(q, a) for q, a in zip(seqs, adjusted) if a <= options.fdr]
+    else:
+        flagged = []
+    per_pair: dict[tuple[str, str], list] = {}
+    for q, adj in flagged:
+        per_pair.setdefault((q.model, q.series), []).append(_assess(q, adj, cols, recent_from, options))
+    index = SeriesIndex(ordered)
+    found = [_pair_finding(items, index, cols, total, _signal_options(items[0].seq, seasons, options))
+             for items in per_pair.values()]
+    out = _consolidate(found)
+    out += [_short_note(model, *c, options) for model, c in short.items() if c[0]]
     return out
-
-
-def _merge(found: list[Finding]) -> Finding:
-    """One finding per series × model: the lowest flagged horizon speaks, the others are listed."""
-    first = min(found, key=lambda f: f.horizon)
-    if len(found) == 1:
-        return first
-    hs = sorted(f.horizon for f in found)
-    listed = horizon_ranges(hs)
-    return dataclasses.replace(first, horizons=listed,
-                               evidence=f"{first.evidence}; flagged at {len(hs)} horizons in all ({listed})")
-
-
-def horizon_ranges(hs: list[int]) -> str:
-    """[1, 2, 3, 5] -> '1–3, 5'."""
-    parts, start, prev = [], hs[0], hs[0]
-    for h in hs[1:] + [None]:
-        if h is not None and h == prev + 1:
-            prev = h
-            continue
-        parts.append(f"{start}" if start == prev else f"{start}–{prev}")
-        if h is not None:
-            start = prev = h
-    return ", ".join(parts)
 
 
 def _columns(cells: pd.DataFrame) -> dict[str, np.ndarray]:
@@ -93,111 +113,239 @@ def _columns(cells: pd.DataFrame) -> dict[str, np.ndarray]:
     q = cells["q"].to_numpy(dtype=float, na_value=np.nan)
     with np.errstate(divide="ignore", invalid="ignore"):
         s = np.where(q > 0, np.abs(e) / q, np.nan)
-    return {"e": e, "s": s, "period_index": cells["period_index"].to_numpy(),
-            "frequency": cells["frequency"].to_numpy(dtype=object)}
+    return {"e": e, "s": s, "q": np.where(q > 0, q, np.nan), "period_index": cells["period_index"].to_numpy(),
+            "frequency": cells["frequency"].to_numpy(dtype=object), "model": cells["model"].to_numpy(dtype=object),
+            "series": cells["series"].to_numpy(dtype=object), "horizon": cells["horizon"].to_numpy()}
 
 
-#: Screen margin in reference standard deviations: far above the rounding differences between
-#: the batched and the per-sequence arithmetic (~1e-12), far below any meaningful CUSUM step.
-_SCREEN_MARGIN = 1e-6
+def _recent_from(cells: pd.DataFrame, recent: int) -> dict[str, int]:
+    if cells.empty:
+        return {}
+    newest = cells.groupby("frequency")["period_index"].max()
+    return {str(f): int(v) - recent + 1 for f, v in newest.items()}
 
 
-def _screen(cols: dict, seqs: list[tuple[np.ndarray, int]], options: FlagOptions) -> np.ndarray:
-    """Which sequences might alarm: a batched, conservative pre-check before the exact test.
+def _size_values(cols: dict, idx: np.ndarray) -> np.ndarray:
+    """sqrt(|e|/q) of a sequence; cells without a scale use the sequence's median scale."""
+    s = cols["s"][idx]
+    if np.isnan(s).any():
+        q = cols["q"][idx]
+        fill = np.nanmedian(q) if np.isfinite(q).any() else np.mean(np.abs(cols["e"][idx])) or 1.0
+        s = np.where(np.isnan(s), np.abs(cols["e"][idx]) / fill, s)
+    return np.sqrt(s)
 
-    Sequences of equal length and reference window are stacked and their bias and deterioration
-    CUSUMs computed at once, with the arithmetic of :func:`ledger.stats.signals.drift_test` (default
-    floor, centring, transform and autocorrelation widening). A sequence is a candidate when
-    either CUSUM comes within :data:`_SCREEN_MARGIN` of h, or when anything is not finite or a
-    scaled error is missing (those cases go to the exact test unscreened). Only candidates run
-    :func:`ledger.stats.signals.drift_test`, whose result alone decides a finding, so the screen saves
-    time without changing any finding: it can pass extra sequences, never drop an alarming one.
-    """
-    out = np.ones(len(seqs), dtype=bool)
-    buckets: dict[tuple[int, int], list[int]] = {}
-    for i, (idx, ref) in enumerate(seqs):
-        buckets.setdefault((idx.size, ref), []).append(i)
-    for (_, ref), members in buckets.items():
-        rows = np.stack([seqs[i][0] for i in members])
-        peak = np.maximum(_peak(cols["e"][rows], ref, options.drift_k, centre=False, side="two-sided"),
-                          _peak(np.sqrt(cols["s"][rows]), ref, options.drift_k, centre=True, side="upper"))
-        out[members] = ~(peak < options.drift_h - _SCREEN_MARGIN)
+
+def _test_all(seqs: list[_Seq], cols: dict) -> None:
+    """Run both tests on every sequence, stacked by length; autocorrelation pooled per model × horizon."""
+    by_length: dict[int, list[int]] = {}
+    for i, q in enumerate(seqs):
+        by_length.setdefault(q.idx.size, []).append(i)
+    stacks = {n: (np.stack([cols["e"][seqs[i].idx] for i in members]),
+                  np.stack([_size_values(cols, seqs[i].idx) for i in members])) for n, members in by_length.items()}
+    phis = {"scan": np.zeros(len(seqs)), "size": np.zeros(len(seqs))}
+    for n, members in by_length.items():
+        e, g = stacks[n]
+        phis["scan"][members] = residual_phi("scan", e)
+        phis["size"][members] = residual_phi("size", g)
+    pooled = _pooled(seqs, phis)
+    for n, members in by_length.items():
+        e, g = stacks[n]
+        use_b, use_s = pooled["scan"][members], pooled["size"][members]
+        b, s = _both(bias_scan, e, use_b), _both(size_shift, g, use_s)
+        p = bonferroni_pair(b[0], s[0])
+        for j, i in enumerate(members):
+            q = seqs[i]
+            q.p = float(p[j])
+            q.bias = bool(b[0][j] <= s[0][j])
+            q.start = int(b[1][j] if q.bias else s[1][j])
+            q.shift, q.lrv = float(b[2][j]), float(b[3][j])
+
+
+def _pooled(seqs: list[_Seq], phis: dict) -> dict[str, np.ndarray]:
+    """Per sequence, the mean autocorrelation over its model × horizon (NaN: too few to pool)."""
+    keys = [(q.model, q.horizon) for q in seqs]
+    out = {}
+    for test, values in phis.items():
+        frame = pd.DataFrame({"k": keys, "v": values})
+        stats_ = frame.groupby("k")["v"].agg(["mean", "size"])
+        mean = frame["k"].map(stats_["mean"]).to_numpy(dtype=float)
+        size = frame["k"].map(stats_["size"]).to_numpy()
+        out[test] = np.where(size >= POOL_MIN, mean, np.nan)
     return out
 
 
-def _peak(x: np.ndarray, ref: int, k: float, *, centre: bool, side: str) -> np.ndarray:
-    """Highest monitored CUSUM value per row of x (NaN when a row cannot be screened)."""
-    base = x[:, :ref]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        sd = base.std(axis=1, ddof=1) * _ar1_widening(base)
-        sigma = np.maximum(sd, 0.05 * np.abs(base).mean(axis=1))
-        z = (x[:, ref:] - (base.mean(axis=1, keepdims=True) if centre else 0.0)) / sigma[:, None]
-    peak = _cusum_max(z - k)
-    if side == "two-sided":
-        peak = np.maximum(peak, _cusum_max(-z - k))
-    bad = ~(sigma > 0) | np.isnan(x).any(axis=1) | ~np.isfinite(peak)
-    return np.where(bad, np.nan, peak)
+def _both(test, x: np.ndarray, phi: np.ndarray) -> tuple[np.ndarray, ...]:
+    """(p, start, shift, lrv) of ``test`` on rows of x, pooled autocorrelation where given, own elsewhere."""
+    p, start, shift, lrv = (np.empty(x.shape[0]) for _ in range(4))
+    for given in (True, False):
+        rows = np.flatnonzero(np.isfinite(phi) == given)
+        if rows.size == 0:
+            continue
+        r = test(x[rows], phi=phi[rows]) if given else test(x[rows])
+        p[rows], start[rows], shift[rows], lrv[rows] = r.p_value, r.start, r.shift, r.lrv
+    return p, start.astype(int), shift, lrv
 
 
-def _ar1_widening(base: np.ndarray) -> np.ndarray:
-    """sqrt((1 + r) / (1 - r)), r the clipped lag-1 autocorrelation (as in ledger.stats.signals._lag1)."""
-    if base.shape[1] < 4:
-        return np.ones(base.shape[0])
-    d = base - base.mean(axis=1, keepdims=True)
-    den = np.einsum("ij,ij->i", d, d)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        r = np.where(den > 0, np.clip(np.einsum("ij,ij->i", d[:, 1:], d[:, :-1]) / den, 0.0, 0.9), 0.0)
-    return np.sqrt((1 + r) / (1 - r))
+@dataclasses.dataclass
+class _Assessed:
+    seq: _Seq
+    adjusted: float
+    since: int  # period index where the change starts
+    raised: int | None
+    mean_after: float
+    mase_before: float
+    mase_after: float
+    excess: float  # recent-window excess sum of |e|/q
+    affected: float  # recent-window sum of |e|/q of the cells since the change
+    n_after: int
 
 
-def _cusum_max(step: np.ndarray) -> np.ndarray:
-    """max_t of C_t = max(0, C_{t-1} + step_t), C_0 = 0, per row (closed form, as in cusum_path)."""
-    total = np.cumsum(step, axis=1)
-    return (total - np.minimum(0.0, np.minimum.accumulate(total, axis=1))).max(axis=1)
-
-
-def _run(cols: dict, idx: np.ndarray, m: int, ref: int, options: FlagOptions) -> DriftResult:
-    window = options.ts_window or tracking_window(m)
-    return drift_test(cols["e"][idx], cols["s"][idx], reference=ref, k=options.drift_k, h=options.drift_h,
-                      window=window, alpha=options.trigg_alpha)
-
-
-def _finding(r: DriftResult, cols: dict, idx: np.ndarray, model: str, series: str, horizon: int) -> Finding:
-    freq = str(cols["frequency"][idx[0]])
-    periods, e = cols["period_index"][idx], cols["e"][idx]
-    if r.biased:
-        start, alarm = r.bias_start, r.bias_alarm
-        check = "bias and deterioration" if r.deteriorated else "bias"
-        recent = e[start:]
-        text = (f"{r.bias_direction} since {label(periods[start], freq)} at horizon {horizon}: mean error "
-                f"{signed(recent.mean())} over {recent.size} cells, {short_num(abs(recent.mean()) / r.sigma)} "
-                f"times the reference spread")
+def _assess(q: _Seq, adjusted: float, cols: dict, recent_from: dict, options: FlagOptions) -> _Assessed:
+    e, s, periods = cols["e"][q.idx], cols["s"][q.idx], cols["period_index"][q.idx]
+    after = np.arange(q.idx.size) >= q.start
+    freq = str(cols["frequency"][q.idx[0]])
+    recent = after & (periods >= recent_from.get(freq, periods.min()))
+    mean_after = float(e[after].mean())
+    before = s[~after & np.isfinite(s)]
+    mase_before = float(before.mean()) if before.size else np.nan
+    s_recent = s[recent & np.isfinite(s)]
+    if q.bias:
+        qs = cols["q"][q.idx][recent]
+        ok = np.isfinite(qs)
+        excess = max(0.0, float(np.sum(np.abs(e[recent][ok]) / qs[ok] - np.abs(e[recent][ok] - mean_after) / qs[ok])))
     else:
-        start, alarm, check = r.deterioration_start, r.deterioration_alarm, "deterioration"
-        text = f"errors grew since {label(periods[start], freq)} at horizon {horizon}"
-    text += f"; {_mase_text(r)}; tracking signal {_one(r.tracking_signal)}, Trigg {signed(r.trigg_signal)}"
-    return Finding(kind="drift", series=series, model=model, horizon=horizon, level=None,
-                   since=label(periods[start], freq), figure=r.mase_ratio, evidence=text, check=check,
-                   horizons=str(horizon), raised=label(periods[alarm], freq),
-                   measure="recent / reference MASE", n=r.n)
+        excess = float(max(0.0, np.sum(s_recent - mase_before))) if np.isfinite(mase_before) else 0.0
+    z = e / np.sqrt(q.lrv) if q.lrv > 0 else np.zeros_like(e)
+    alarm = cusum(z[q.start:], k=options.drift_k, h=options.drift_h).alarm
+    return _Assessed(q, adjusted, int(periods[q.start]), None if alarm is None else int(periods[q.start + alarm]),
+                     mean_after, mase_before, float(np.nanmean(s[after])) if np.isfinite(s[after]).any() else np.nan,
+                     excess, float(s_recent.sum()), int(after.sum()))
 
 
-def _mase_text(r: DriftResult) -> str:
-    if not np.isfinite(r.mase_ratio):
+def _signal_options(q: _Seq, seasons: dict[str, int], options: FlagOptions) -> tuple[int, float]:
+    return options.ts_window or tracking_window(int(seasons.get(q.series, 1))), options.trigg_alpha
+
+
+def _pair_finding(items: list[_Assessed], index: SeriesIndex, cols: dict, total: float,
+                  signal: tuple[int, float]) -> tuple[Finding, int, str]:
+    """One finding per series × model: the lowest flagged horizon speaks, the others are listed."""
+    items = sorted(items, key=lambda a: a.seq.horizon)
+    lead, q = items[0], items[0].seq
+    freq = str(cols["frequency"][q.idx[0]])
+    since = label(lead.since, freq)
+    hs = [a.seq.horizon for a in items]
+    e, periods = cols["e"][q.idx], cols["period_index"][q.idx]
+    if q.bias:
+        direction = "forecasts too low" if lead.mean_after > 0 else "forecasts too high"
+        head = (f"{direction} since {since} at horizon {q.horizon}: mean error {signed(lead.mean_after)} "
+                f"over {lead.n_after} cells, {num(abs(lead.mean_after) / np.sqrt(lead.seq.lrv))} times the "
+                "long-run spread")
+        check = "bias"
+    else:
+        head = f"errors grew since {since} at horizon {q.horizon}"
+        check = "deterioration"
+    text = (f"{head}; {_mase_text(lead)}; change-point test adjusted {pval(lead.adjusted)}; tracking signal "
+            f"{_one(tracking_signal(e, window=signal[0]))}, Trigg {signed(float(trigg_signal(e, alpha=signal[1])[-1]))}")
+    if len(hs) > 1:
+        text += f"; flagged at {len(hs)} horizons in all ({horizon_ranges(hs)})"
+    excess, affected = sum(a.excess for a in items), sum(a.affected for a in items)
+    action, figure, measure = _action(lead, index, cols, hs)
+    severity = "act" if affected > 0 and excess >= ACT_SHARE * affected else "watch"
+    found = Finding(kind="drift", series=q.series, model=q.model, horizon=q.horizon, level=None, since=since,
+                    figure=_ratio(lead), evidence=text, check=check, severity=severity,
+                    horizons=horizon_ranges(hs), raised="" if lead.raised is None else label(lead.raised, freq),
+                    measure="MASE since / before the change", p_value=lead.adjusted, n=lead.n_after,
+                    impact=share(excess, total), action=action, action_figure=figure, action_measure=measure)
+    return found, lead.since, head.split(" since ")[0]
+
+
+def _action(lead: _Assessed, index: SeriesIndex, cols: dict, hs: list[int]) -> tuple[str, float, str]:
+    q = lead.seq
+    freq = str(cols["frequency"][q.idx[0]])
+    since = label(lead.since, freq)
+    other = best_other(index, q.model, q.series, hs, lead.since)
+    rival = (f"; {other[0]} has been more accurate since then (MAE {num(other[1])} against {num(other[2])} "
+             f"on {other[3]} common cells)") if other else "; no other model in the ledger was more accurate since then"
+    if q.bias:
+        fixed, plain, n = corrected_mae(cols["e"][q.idx][q.start:])
+        if np.isfinite(fixed):
+            return (f"correct the bias since {since} (mean error {signed(lead.mean_after)}): a constant correction "
+                    f"fitted on earlier cells gives MAE {num(fixed)} against {num(plain)} on the {n} later cells"
+                    f"{rival}", fixed, "MAE after a constant correction")
+    if other:
+        return f"since {since}{rival}; re-fit the model or switch", other[1], f"MAE of {other[0]} since the change"
+    return f"since {since} errors are larger; re-fit the model{rival}", lead.mase_after, "MASE since the change"
+
+
+def _ratio(a: _Assessed) -> float:
+    return a.mase_after / a.mase_before if a.mase_before > 0 else np.nan
+
+
+def _mase_text(a: _Assessed) -> str:
+    if not np.isfinite(a.mase_after):
         return "MASE not available (no scale)"
-    return (f"MASE {short_num(r.mase_recent)} recent vs {short_num(r.mase_reference)} reference "
-            f"({short_num(r.mase_ratio)} times)")
+    if not np.isfinite(a.mase_before):
+        return f"MASE {num(a.mase_after)} since the first cell (no cells before the change)"
+    return f"MASE {num(a.mase_after)} since vs {num(a.mase_before)} before ({num(_ratio(a))} times)"
 
 
 def _one(x: float) -> str:
     return "–" if not np.isfinite(x) else f"{x:+.1f}"
 
 
-def short_note(model: str, n_short: int, n_total: int, refs: set[int]) -> Finding:
-    """The note of a model with ``n_short`` of its ``n_total`` sequences too short to judge."""
-    window = f"the {min(refs)}-cell reference window" if len(refs) == 1 else "their reference windows"
-    text = (f"drift not judged on {n_short} of {n_total} series × horizon sequences: "
-            f"no scored cell yet after {window}")
+def horizon_ranges(hs: list[int]) -> str:
+    """[1, 2, 3, 5] -> '1–3, 5'."""
+    return horizon_text(hs).split(" ", 1)[1]
+
+
+def _consolidate(found: list[tuple[Finding, int, str]]) -> list[Finding]:
+    """Many series of one model changing the same way at one time: one model-level finding."""
+    out, by_model = [], {}
+    for f, since, direction in found:
+        by_model.setdefault((f.model, direction), []).append((since, f))
+    for (model, direction), group in by_model.items():
+        group.sort(key=lambda x: x[0])
+        clusters, current = [], [group[0]]
+        for item in group[1:]:
+            if item[0] - current[0][0] <= CONSOLIDATE_SPAN:
+                current.append(item)
+            else:
+                clusters.append(current)
+                current = [item]
+        clusters.append(current)
+        for c in clusters:
+            members = [f for _, f in c]
+            out += [_merged(members, direction)] if len(members) >= CONSOLIDATE_MIN else members
+    return out
+
+
+def _merged(group: list[Finding], head: str) -> Finding:
+    series = sorted(f.series for f in group)
+    lead = max(group, key=lambda f: f.impact)
+    impact = sum(f.impact for f in group)
+    names = ", ".join(series)
+    what = head if head.startswith("forecasts") else "errors grew"
+    text = (f"{what} on {len(series)} series from about {group[0].since}: {names}; the largest "
+            f"({lead.series}): {lead.evidence}")
+    severity = "act" if any(f.severity == "act" for f in group) else "watch"
+    action = f"{len(series)} series changed together, so look for a common cause; for {lead.series}: {lead.action}"
+    return dataclasses.replace(lead, series="", evidence=text, severity=severity, impact=impact, action=action,
+                               series_list=names, since=group[0].since, n=sum(f.n for f in group),
+                               horizons=horizon_ranges(sorted({h for f in group for h in _hs(f.horizons)})))
+
+
+def _hs(text: str) -> list[int]:
+    out = []
+    for part in text.split(","):
+        lo, _, hi = part.strip().partition("–")
+        out += list(range(int(lo), int(hi or lo) + 1))
+    return out
+
+
+def _short_note(model: str, n_short: int, n_total: int, options: FlagOptions) -> Finding:
+    need = max(options.min_cells, 2 * MIN_SEGMENT + 2)
+    text = (f"drift not judged on {n_short} of {n_total} series × horizon sequences: fewer than {need} "
+            "scored cells each; not enough data to judge")
     return Finding(kind="drift", series="", model=model, horizon=None, level=None, since="",
                    figure=float(n_short), evidence=text, check="not enough data", severity="note",
                    horizons="all", measure="sequences not judged", n=n_total)

@@ -1,4 +1,4 @@
-"""``flags``: run the drift, calibration, value-added and data-quality checks over a ledger.
+"""``flags``: run the drift, calibration, quantile, value-added and data-quality checks over a ledger.
 
 One call pulls the scored cells once (set-based SQL in :mod:`ledger.scoring.cells`), runs the
 per-group statistics of :mod:`ledger.findings.drift`, :mod:`ledger.findings.calibration`, :mod:`ledger.findings.value` and
@@ -12,6 +12,7 @@ from __future__ import annotations
 import dataclasses
 from collections.abc import Sequence
 
+import numpy as np
 import pandas as pd
 
 from .calibration import calibration_findings
@@ -26,12 +27,14 @@ from .base import (
     known_models,
 )
 from .data import data_findings, series_models
+from .quantiles import quantile_findings
 from ..scoring.cells import Selection, interval_misses, score_cells
+from ..scoring.quantile_reads import quantile_cells
 from ..scoring.attributes import check_attribute, series_attributes
 from ..store import Store
 from .value import value_findings
 
-__all__ = ["flags", "count_by_group"]
+__all__ = ["flags", "count_by_group", "recent_window"]
 
 
 def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: pd.DataFrame | None = None,
@@ -48,18 +51,39 @@ def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: 
     everyone = dataclasses.replace(sel, models=())
     seasons, freqs = _series_facts(store)
     found: list[Finding] = []
-    if cells is None and {"drift", "value"} & set(kinds):
+    if cells is None:
         cells = score_cells(store, everyone)
     subjects = list(sel.models) or known_models(store)
+    recent_from, total = recent_window(cells[cells["model"].isin(subjects)], options.recent)
     if "drift" in kinds:
-        found += drift_findings(cells[cells["model"].isin(subjects)], seasons, options)
+        found += drift_findings(cells, seasons, options, subjects=subjects, recent_from=recent_from, total=total)
     if "calibration" in kinds:
-        found += calibration_findings(interval_misses(store, sel), freqs, options)
+        found += calibration_findings(interval_misses(store, sel), freqs, options, recent_from=recent_from,
+                                      total=total)
+    if "quantiles" in kinds:
+        found += quantile_findings(quantile_cells(store, sel), options)
     if "value" in kinds:
-        found += value_findings(cells, subjects, known_models(store), options)
+        found += value_findings(cells, subjects, known_models(store), options, total=total)
     if "data" in kinds:
         found += _data_for(store, sel, options)
     return findings_frame(found)
+
+
+def recent_window(cells: pd.DataFrame, recent: int) -> tuple[dict[str, int], float]:
+    """(first period index of the recent window per frequency, sum of |e|/q over its cells).
+
+    The recent window is the last ``recent`` target periods of each frequency; the sum, over
+    cells with a scale, is the denominator of every finding's impact.
+    """
+    if cells.empty:
+        return {}, float("nan")
+    newest = cells.groupby("frequency")["period_index"].max()
+    starts = {str(f): int(v) - recent + 1 for f, v in newest.items()}
+    first = cells["frequency"].astype(object).map(starts).to_numpy(dtype=float)
+    q = cells["q"].to_numpy(dtype=float, na_value=np.nan)
+    e = cells["e"].to_numpy(dtype=float)
+    keep = (cells["period_index"].to_numpy() >= first) & (q > 0)
+    return starts, float(np.sum(np.abs(e[keep]) / q[keep]))
 
 
 def _check_kinds(kinds: Sequence[str]) -> list[str]:

@@ -227,7 +227,10 @@ def advise(store: Store, sel: Selection, incumbent: str | None = None, *,
     the recent window (the last ``window`` common evaluation periods): relative MAE below 1 and
     lower MASE; (2) the DM-HLN test over all common periods is significant at ``alpha`` in the
     challenger's favour at every horizon that matters (``horizons``; default all horizons they
-    share); (3) it has the lower MAE on a majority of series over the recent window. Otherwise
+    share); (3) it has the lower MAE on a majority of series over the recent window. The test
+    also runs over the recent window alone, and the advice states both: the rule uses all
+    common periods because a 12-period test has little power (it would rarely confirm a real
+    difference), while the recent window already decides which model is better now. Otherwise
     the advice says why not: not enough data (fewer common periods than the window, or a horizon
     the test cannot judge), mixed by horizon, not better, not significant, or mixed by series.
     ``incumbent`` None uses the ledger setting "incumbent" (``Ledger.set_incumbent``).
@@ -259,13 +262,31 @@ def _advice(pairs: pd.DataFrame, inc: str, ch: str, window: int, horizons: tuple
     ws = win_share(per["mae_a"], per["mae_b"])
     hs = sorted(set(horizons) or set(pairs["horizon"].astype(int)))
     tests = {h: dm_hln(period_differential(pairs[pairs["horizon"] == h]), h=h) for h in hs}
+    recent_tests = {h: dm_hln(period_differential(recent[recent["horizon"] == h]), h=h) for h in hs}
     outcomes = {h: _outcome(t, alpha) for h, t in tests.items()}
     row |= dict(periods=int(recent["period_index"].nunique()),
                 rel_mae=relative_mae(per["mae_a"], per["mae_b"], per["n"]).value,
                 mase_incumbent=float(recent["loss_a"].mean()), mase_challenger=float(recent["loss_b"].mean()),
                 series_won=ws.share, **_horizon_lists(outcomes))
     reason, text = _decide(row, outcomes, tests, ws, len(periods), window, inc, ch)
+    if reason != "not enough data" and _any_tested(tests):
+        text += _test_windows(tests, recent_tests, len(periods), row["periods"])
     return row | dict(recommend=reason == "recommended", reason=reason, advice=text)
+
+
+def _any_tested(tests: dict) -> bool:
+    """True when at least one horizon's test has a p-value."""
+    return any(math.isfinite(t.p_value) for t in tests.values())
+
+
+def _test_windows(tests: dict, recent: dict, n_all: int, n_recent: int) -> str:
+    """'; DM-HLN over all 46 common periods: 1: p 0.3, …; over the last 12: 1: p 0.5, …; the rule uses …'."""
+    def listed(results: dict) -> str:
+        return ", ".join(f"{h}: {pval(t.p_value)}" for h, t in results.items())
+
+    return (f"; DM-HLN over all {n_all} common periods: {listed(tests)}; over the last {n_recent}: "
+            f"{listed(recent)}; the rule tests all common periods, because {n_recent} periods give the test "
+            "little power, and uses the recent window to judge which model is better now")
 
 
 def _horizon_lists(outcomes: dict[int, str]) -> dict:
@@ -291,13 +312,14 @@ def _decide(row, outcomes, tests, ws, n_periods, window, inc, ch) -> tuple[str, 
     if untestable:
         return "not enough data", f"{keep}: not enough data to test {ch} at {horizon_text(untestable)}"
     if unclear or worse:
-        ps = ", ".join(f"{h}: {pval(tests[h].p_value)}" for h in unclear + worse)
         return "not significant", (f"{keep}: {ch} is better over {recent} ({figures}) but not significantly "
-                                   f"more accurate at {horizon_text(unclear + worse)} (DM-HLN {ps})")
+                                   f"more accurate at {horizon_text(unclear + worse)} over all {n_periods} "
+                                   "common periods")
     won = ws.wins + 0.5 * ws.ties
     if not ws.share > 0.5:
         return "mixed by series", (f"{keep}: {ch} is significantly more accurate overall but better on only "
                                    f"{won:g} of {ws.n} series over {recent}")
     return "recommended", (f"replace {inc} with {ch}: better over {recent} ({figures}), significantly more "
-                           f"accurate at {horizon_text(better)} (DM-HLN, {_p_band([tests[h].p_value for h in better])}), "
+                           f"accurate at {horizon_text(better)} over all {n_periods} common periods "
+                           f"(DM-HLN, {_p_band([tests[h].p_value for h in better])}), "
                            f"better on {won:g} of {ws.n} series")

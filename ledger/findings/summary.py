@@ -45,7 +45,7 @@ def keep_findings(store: Store, sel: Selection, frame: pd.DataFrame, severities:
 
 
 def finding_counts(frame: pd.DataFrame) -> str:
-    """'135 findings: 80 alert, 40 watch, 15 note; 43 drift, 84 calibration, 1 value, 7 data'."""
+    """'135 findings: 80 act, 40 watch, 15 note; 43 drift, 84 calibration, 1 value, 7 data'."""
     n = len(frame)
     by_severity = frame["severity"].value_counts()
     by_kind = frame["kind"].value_counts()

@@ -16,6 +16,13 @@ Per series: noise alone puts many series of a good model at or below zero over 1
 a series-level finding needs VA <= 0 *and* the benchmark significantly more accurate on that
 series (one-sided DM-HLN, Benjamini-Hochberg across the model's series, level ``value_alpha``).
 
+One problem, one finding: where the model as a whole adds no value, its significant series go
+into that finding's evidence; otherwise each is a finding of its own (``watch``). Severity of a
+model-level finding: ``act`` when the benchmark is significantly more accurate, else ``watch``.
+Action: use the benchmark instead, with the number of series on which the model's recent MAE
+was above the benchmark's (its figure). Impact: sum over the recent common cells of
+(|e_model| - |e_benchmark|) / q, in percent of the ledger's total (:mod:`ledger.findings.base`).
+
 Default benchmark: a model named "ref-snaive" (the seasonal-naive reference that Backsight's
 backtests record), else the first model, alphabetically, whose name contains "snaive",
 "seasonal-naive" or "seasonal_naive" (case-insensitive). With none, the check is skipped with a
@@ -24,6 +31,7 @@ note.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Sequence
 
@@ -33,7 +41,8 @@ import pandas as pd
 from ..stats.intervals import benjamini_hochberg
 from ..stats.comparison import DMResult, dm_hln
 from .base import Finding, FlagOptions
-from ..wording import label, pval, short_num
+from ..wording import label, pval, short_num as num
+from .drift_actions import share
 from .standings import paired, period_differential
 
 __all__ = ["default_benchmark", "value_findings", "BENCHMARK_HINTS"]
@@ -51,8 +60,9 @@ def default_benchmark(models: Sequence[str]) -> str | None:
 
 
 def value_findings(cells: pd.DataFrame, subjects: Sequence[str], known: Sequence[str],
-                   options: FlagOptions) -> list[Finding]:
-    """Value-added findings for each model in ``subjects`` against the benchmark."""
+                   options: FlagOptions, *, total: float = math.nan) -> list[Finding]:
+    """Value-added findings for each model in ``subjects`` against the benchmark; ``total`` is
+    the denominator of impact."""
     if cells.empty:
         return []
     bench = options.benchmark or default_benchmark(known)
@@ -68,8 +78,14 @@ def value_findings(cells: pd.DataFrame, subjects: Sequence[str], known: Sequence
             continue
         periods = np.sort(pairs["period_index"].unique())
         recent = pairs[pairs["period_index"].isin(periods[-options.recent:])]
-        out += _model_value(recent, model, bench, options)
-        out += _series_value(recent, model, bench, options)
+        whole = _model_value(recent, model, bench, options, total)
+        series = _series_value(recent, model, bench, options, total)
+        if whole and series:
+            names = ", ".join(f.series for f in series)
+            whole = [dataclasses.replace(whole[0], evidence=f"{whole[0].evidence}; significantly worse than "
+                                         f"{bench} on {len(series)} series: {names}")]
+            series = []
+        out += whole + series
     return out
 
 
@@ -92,7 +108,17 @@ def _figures(recent: pd.DataFrame) -> tuple[float, float, float]:
     return mae_model, mae_bench, va
 
 
-def _model_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOptions) -> list[Finding]:
+def _excess(recent: pd.DataFrame) -> float:
+    """Sum of (|e_model| - |e_benchmark|) / q over the common cells with a scale."""
+    return float(np.nansum(recent["loss_b"].to_numpy(dtype=float) - recent["loss_a"].to_numpy(dtype=float)))
+
+
+def _worse_series(recent: pd.DataFrame) -> tuple[int, int]:
+    per = recent.assign(a=recent["e_a"].abs(), b=recent["e_b"].abs()).groupby("series")[["a", "b"]].mean()
+    return int((per["b"] > per["a"]).sum()), len(per)
+
+
+def _model_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOptions, total: float) -> list[Finding]:
     mae_model, mae_bench, va = _figures(recent)
     if not va <= 0:
         return []
@@ -105,13 +131,20 @@ def _model_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOpti
     else:
         statement = f"the difference is not significant (DM-HLN {pval(dm.p_value)})"
     since, head = _window_text(recent, bench, "")
-    text = f"{head}: MAE {short_num(mae_model)} vs {short_num(mae_bench)}, value added {va:+.0%}; {statement}"
+    text = f"{head}: MAE {num(mae_model)} vs {num(mae_bench)}, value added {va:+.0%}; {statement}"
+    worse, n_series = _worse_series(recent)
+    significant = math.isfinite(dm.p_value) and dm.p_value < options.value_alpha and dm.statistic < 0
+    action = (f"use {bench} instead of {model}: over the same window {model} had the higher MAE on {worse} of "
+              f"{n_series} series")
     return [Finding(kind="value", series="", model=model, horizon=None, level=None, since=since,
                     figure=va, evidence=text, check="no value added", horizons="all",
-                    measure="value added (1 - MAE / benchmark MAE)", p_value=dm.p_value, n=len(recent))]
+                    severity="act" if significant else "watch",
+                    measure="value added (1 - MAE / benchmark MAE)", p_value=dm.p_value, n=len(recent),
+                    impact=share(max(0.0, _excess(recent)), total), action=action, action_figure=float(worse),
+                    action_measure="series where the benchmark was more accurate")]
 
 
-def _series_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOptions) -> list[Finding]:
+def _series_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOptions, total: float) -> list[Finding]:
     groups = [(str(s), g) for s, g in recent.groupby("series", sort=True)]
     figures = [_figures(g) for _, g in groups]
     # Every series is tested, not only those at or below zero, so that the family (and BH's m)
@@ -126,11 +159,14 @@ def _series_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOpt
         if not (va <= 0 and adj <= options.value_alpha):
             continue
         since, head = _window_text(g, bench, " on this series")
-        text = (f"{head}: MAE {short_num(mae_model)} vs {short_num(mae_bench)}, value added {va:+.0%}; the benchmark is "
+        text = (f"{head}: MAE {num(mae_model)} vs {num(mae_bench)}, value added {va:+.0%}; the benchmark is "
                 f"significantly more accurate (DM-HLN one-sided {pval(t.p_value)}, adjusted {pval(adj)})")
+        action = f"use {bench} for {series}: MAE {num(mae_bench)} against {num(mae_model)} over the window"
         out.append(Finding(kind="value", series=series, model=model, horizon=None, level=None, since=since,
-                           figure=va, evidence=text, check="no value added", horizons="all",
-                           measure="value added (1 - MAE / benchmark MAE)", p_value=float(adj), n=len(g)))
+                           figure=va, evidence=text, check="no value added", horizons="all", severity="watch",
+                           measure="value added (1 - MAE / benchmark MAE)", p_value=float(adj), n=len(g),
+                           impact=share(max(0.0, _excess(g)), total), action=action, action_figure=mae_bench,
+                           action_measure=f"MAE of {bench}"))
     return out
 
 

@@ -16,8 +16,9 @@ import re
 from decimal import Decimal
 
 from ..errors import InputError
+from ..wording import quantile_name
 
-__all__ = ["bound_columns", "quantile_columns", "misspelt_column", "quantile_name", "is_level_column"]
+__all__ = ["bound_columns", "quantile_columns", "misspelt_column", "is_level_column"]
 
 _BOUND = re.compile(r"^(lower|upper)_(\d+(?:\.\d+)?)$")
 _QUANTILE = re.compile(r"^q(\d{2,}|\d+\.\d+)$")
@@ -29,12 +30,6 @@ _LOWER_WORDS = {"lower", "lo", "low", "lwr", "lb"}
 def is_level_column(name: str) -> bool:
     """True for a well-formed bound or quantile column name (its level is checked separately)."""
     return bool(_BOUND.match(name) or _QUANTILE.match(name))
-
-
-def quantile_name(tau: Decimal) -> str:
-    """The column name of quantile level tau in (0, 1): 0.1 -> q10, 0.975 -> q975, 0.05 -> q05."""
-    _, _, digits = _plain(tau).partition(".")
-    return "q" + digits.ljust(2, "0")
 
 
 def _plain(number: Decimal) -> str:

@@ -52,67 +52,107 @@ class ActualsResult:
 def _run_parts(frame: ForecastFrame):
     """Each run's rows in canonical order, one run at a time: (model, origin index, origin, part).
 
-    Streams the ready table sorted by run; only one run is held in memory at a time.
+    Streams the ready table sorted by run; only one run is held in memory at a time. A part is
+    a dict of NumPy arrays (not a DataFrame: a back-fill of thousands of one-row runs would
+    spend most of its time building frames).
     """
     stage = frame.stage
     names = [f"{side}_{i}" for i in range(len(frame.levels)) for side in ("lo", "hi")]
     names += [f"q_{j}" for j in range(len(frame.taus))]
     select = ", ".join(["model", "origin_index", "origin", "series", "period_index", "point", *names])
-    pieces: list[pd.DataFrame] = []
+    key, origin, pending = None, None, None
     for batch in stage.batches(select, "model, origin_index, series, period_index"):
-        model, o_index = batch["model"].to_numpy(dtype=object), batch["origin_index"].to_numpy()
+        cols = {c: batch[c].to_numpy() for c in ("model", "origin_index", "series", "period_index")}
+        cols |= {c: batch[c].to_numpy(dtype="float64", na_value=np.nan) for c in ["point", *names]}
+        model, o_index = cols["model"], cols["origin_index"]
         starts = np.flatnonzero(np.r_[True, (model[1:] != model[:-1]) | (o_index[1:] != o_index[:-1])])
         for a, b in zip(starts, np.r_[starts[1:], len(batch)]):
-            piece = batch.iloc[a:b]
-            if pieces and (pieces[0]["model"].iat[0], pieces[0]["origin_index"].iat[0]) != \
-                    (piece["model"].iat[0], piece["origin_index"].iat[0]):
-                yield _run_of(pieces)
-                pieces = []
-            pieces.append(piece)
-    if pieces:
-        yield _run_of(pieces)
+            if pending is not None and (model[a], o_index[a]) != key:
+                yield str(key[0]), int(key[1]), origin, _joined(pending)
+                pending = None
+            if pending is None:
+                key, origin, pending = (model[a], o_index[a]), batch["origin"].iat[a], {c: [] for c in cols}
+            for c, values in cols.items():
+                pending[c].append(values[a:b])
+    if pending is not None:
+        yield str(key[0]), int(key[1]), origin, _joined(pending)
 
 
-def _run_of(pieces: list[pd.DataFrame]):
-    part = pd.concat(pieces, ignore_index=True) if len(pieces) > 1 else pieces[0].reset_index(drop=True)
-    return str(part["model"].iat[0]), int(part["origin_index"].iat[0]), part["origin"].iat[0], part
+def _joined(pending: dict[str, list[np.ndarray]]) -> dict[str, np.ndarray]:
+    return {c: v[0] if len(v) == 1 else np.concatenate(v) for c, v in pending.items()}
 
 
 def write_runs(store: Store, frame: ForecastFrame, *, note: str | None = None,
                supersede: bool = False) -> SnapshotResult:
-    """Record every run in ``frame`` (one per model and origin) in one transaction."""
+    """Record every run in ``frame`` (one per model and origin) in one transaction.
+
+    Set-based: the newest recorded run of every (model, origin) is read in one query, and the
+    new runs are inserted and the superseded ones marked in one statement each.
+    """
     # Hash every run before writing: the stream must finish before the connection runs anything else.
-    runs = [(model, o_index, origin, len(part), run_content_hash(model, frame.frequency, o_index, part, frame.levels, frame.taus))
+    runs = [(model, o_index, origin, len(part["series"]),
+             run_content_hash(model, frame.frequency, o_index, part, frame.levels, frame.taus))
             for model, o_index, origin, part in _run_parts(frame)]
     results: list[RunResult] = []
-    new_ids: list[tuple[str, int, str]] = []
+    new_rows: list[tuple] = []
+    replaced: list[tuple[str, str]] = []
     with store.transaction() as con:
         now = store.next_timestamp()
         _register_series(store, frame.stage.ready, frame.frequency, now)
+        previous = _newest_runs(con, frame.frequency, [(m, o) for m, o, *_ in runs])
         for model, o_index, origin, n, chash in runs:
             label = period_label(origin, frame.frequency)
-            previous = con.execute(
-                "SELECT run_id, content_hash FROM runs WHERE model = ? AND frequency = ? AND origin_index = ? "
-                "ORDER BY recorded_at DESC LIMIT 1", [model, frame.frequency, o_index]).fetchall()
-            previous = previous[0] if previous else None
-            if previous and previous[1] == chash:
-                results.append(RunResult(previous[0], model, label, n, "unchanged"))
+            prev = previous.get((model, o_index))
+            if prev and prev[1] == chash:
+                results.append(RunResult(prev[0], model, label, n, "unchanged"))
                 continue
-            if previous and not supersede:
+            if prev and not supersede:
                 raise RunConflict(
                     f"{frame.source}: model {model!r} already has a different run at origin {label} "
-                    f"(run {previous[0]}); to replace it (the old run is kept), use --supersede")
+                    f"(run {prev[0]}); to replace it (the old run is kept), use --supersede")
             run_id = chash[:16]
-            con.execute("INSERT INTO runs VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, NULL)",
-                        [run_id, model, frame.frequency, origin, o_index, now, frame.source, note, chash, n])
-            if previous:
-                con.execute("UPDATE runs SET superseded_by = ? WHERE run_id = ?", [run_id, previous[0]])
-            new_ids.append((model, o_index, run_id))
-            results.append(RunResult(run_id, model, label, n,
-                                     f"superseded {previous[0]}" if previous else "recorded"))
-        if new_ids:
-            _insert_cells(con, frame, new_ids)
+            new_rows.append((run_id, model, o_index, origin, chash, n))
+            if prev:
+                replaced.append((prev[0], run_id))
+            results.append(RunResult(run_id, model, label, n, f"superseded {prev[0]}" if prev else "recorded"))
+        if new_rows:
+            _insert_runs(con, frame, new_rows, replaced, now, note)
+            _insert_cells(con, frame, [(m, o, r) for r, m, o, *_ in new_rows])
     return SnapshotResult(results, list(frame.warnings))
+
+
+def _newest_runs(con, frequency: str, keys: list[tuple[str, int]]) -> dict[tuple[str, int], tuple[str, str]]:
+    """(model, origin index) -> (run_id, content_hash) of the newest recorded run, for the given keys."""
+    if not keys:
+        return {}
+    con.register("_run_keys", pd.DataFrame(keys, columns=["model", "origin_index"]))
+    try:
+        rows = con.execute("""
+            SELECT model, origin_index, run_id, content_hash FROM (
+                SELECT r.*, row_number() OVER (PARTITION BY r.model, r.origin_index ORDER BY r.recorded_at DESC) rn
+                FROM runs r JOIN _run_keys k ON k.model = r.model AND k.origin_index = r.origin_index
+                WHERE r.frequency = ?) WHERE rn = 1""", [frequency]).fetchall()
+    finally:
+        with contextlib.suppress(duckdb.Error):
+            con.unregister("_run_keys")
+    return {(m, int(o)): (run_id, chash) for m, o, run_id, chash in rows}
+
+
+def _insert_runs(con, frame: ForecastFrame, rows: list[tuple], replaced: list[tuple[str, str]], now,
+                 note: str | None) -> None:
+    con.register("_new_runs", pd.DataFrame(rows, columns=["run_id", "model", "origin_index", "origin",
+                                                          "content_hash", "n_cells"]))
+    con.register("_replaced", pd.DataFrame(replaced, columns=["old", "new"], dtype=object))
+    try:
+        con.execute("INSERT INTO runs SELECT run_id, model, $freq, CAST(origin AS DATE), origin_index, $now, "
+                    "$source, $note, content_hash, n_cells, NULL FROM _new_runs ORDER BY model, origin_index",
+                    {"freq": frame.frequency, "now": now, "source": frame.source, "note": note})
+        if replaced:
+            con.execute("UPDATE runs SET superseded_by = p.new FROM _replaced p WHERE runs.run_id = p.old")
+    finally:
+        with contextlib.suppress(duckdb.Error):
+            con.unregister("_new_runs")
+            con.unregister("_replaced")
 
 
 def _insert_cells(con, frame: ForecastFrame, new_ids: list[tuple[str, int, str]]) -> None:

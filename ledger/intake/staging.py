@@ -21,7 +21,7 @@ import pandas as pd
 import pyarrow as pa
 
 from ..errors import FrequencyError, InputError
-from ..periods import period_index, period_label, period_start
+from ..periods import period_label, period_sql
 from ..store import bounded_memory
 
 __all__ = ["Stage"]
@@ -37,6 +37,7 @@ class Stage:
         self.table = f"_stage_{next(_names)}"
         self.ready = f"{self.table}_ready"
         self._closed = False
+        self._labels_made = False
         # DuckDB spills beyond this cap, so a multi-GB import stays under 2 GB of RSS
         self._memory = bounded_memory(con)
         self._memory.__enter__()
@@ -53,7 +54,7 @@ class Stage:
         if self._closed:
             return
         self._closed = True
-        for table in (self.table, self.ready, f"{self.table}_labels"):
+        for table in (self.table, self.ready, f"{self.table}_labels", f"{self.table}_lab"):
             with contextlib.suppress(duckdb.Error):  # the connection may be gone after a crash
                 self.con.execute(f"DROP TABLE IF EXISTS {table}")
         self._memory.__exit__(None, None, None)
@@ -89,28 +90,51 @@ class Stage:
                 f"{source} row {row} column series: series {key!r} is recorded as {recorded}, "
                 f"but this file is {freq}; a series keeps the frequency it was first recorded with")
 
-    def resolve(self, labels: dict[str, dt.date], freq: str, label_columns: list[str]) -> None:
-        """Build the ready table: each label column becomes a start date and a period index."""
-        lab = f"{self.table}_labels"
-        days = list(labels.values())
-        self.con.register("_labels", pd.DataFrame({
-            "label": pd.Series(list(labels), dtype=object),
-            "day": pd.Series([period_start(d, freq) for d in days], dtype="datetime64[s]").dt.date,
-            "idx": pd.Series([period_index(d, freq) for d in days], dtype="int64"),
-        }))
+    def add_labels(self, column: str, labels: list[str], kinds: list[str | None], days: list[dt.date],
+                   first_rows: np.ndarray) -> None:
+        """Record one chunk's distinct labels of ``column``, parsed, with the row where each first appears.
+
+        Kept in DuckDB, not in a Python dict: a file of millions of distinct labels (daily data
+        with times) would otherwise hold them all in memory.
+        """
+        raw = f"{self.table}_labels"
+        if not self._labels_made:
+            self.con.execute(f"CREATE TEMP TABLE {raw} (col VARCHAR, label VARCHAR, kind VARCHAR, day DATE, "
+                             "first_row BIGINT)")
+            self._labels_made = True
+        frame = pa.table({"col": pa.array([column] * len(labels), pa.string()), "label": pa.array(labels, pa.string()),
+                          "kind": pa.array(kinds, pa.string()), "day": pa.array(days, pa.date32()),
+                          "first_row": pa.array(first_rows, pa.int64())})
+        self.con.register("_chunk_labels", frame)
         try:
-            self.con.execute(f"CREATE TEMP TABLE {lab} AS SELECT * FROM _labels")
+            self.con.execute(f"INSERT INTO {raw} SELECT * FROM _chunk_labels")
         finally:
             with contextlib.suppress(duckdb.Error):
-                self.con.unregister("_labels")
+                self.con.unregister("_chunk_labels")
+
+    def label_kinds(self, column: str) -> dict[str, int]:
+        """Each label kind (frequency) found in ``column``, with the first row holding one."""
+        if not self._labels_made:
+            return {}
+        rows = self.con.execute(f"SELECT kind, min(first_row) FROM {self.table}_labels WHERE col = ? "
+                                "AND kind IS NOT NULL GROUP BY kind", [column]).fetchall()
+        return {kind: int(row) for kind, row in rows}
+
+    def resolve(self, freq: str, label_columns: list[str]) -> None:
+        """Build the ready table: each label column becomes a start date and a period index (in SQL,
+        with the formulas of :func:`ledger.periods.period_start` and :func:`~ledger.periods.period_index`)."""
+        raw, lab = f"{self.table}_labels", f"{self.table}_lab"
+        start, index = period_sql("l.day", freq)
+        self.con.execute(f"CREATE TEMP TABLE {lab} AS SELECT label, {start} AS day, {index} AS idx FROM "
+                         f"(SELECT label, any_value(day) AS day FROM {raw} GROUP BY label) l")
         joins, exprs = [], []
         for i, col in enumerate(label_columns):
             joins.append(f"JOIN {lab} l{i} ON l{i}.label = s.{col}")
             exprs.append(f"l{i}.day AS {col}, l{i}.idx AS {col}_index")
         self.con.execute(f"CREATE TEMP TABLE {self.ready} AS SELECT s.* EXCLUDE ({', '.join(label_columns)}), "
                          f"{', '.join(exprs)} FROM {self.table} s {' '.join(joins)}")
-        self.con.execute(f"DROP TABLE {self.table}")
-        self.con.execute(f"DROP TABLE {lab}")
+        for table in (self.table, lab, raw):
+            self.con.execute(f"DROP TABLE {table}")
 
     def check_horizons(self, source: str, freq: str, max_horizon: int) -> None:
         far = self.con.execute(f"SELECT row, period_index - origin_index FROM {self.ready} "
@@ -133,6 +157,17 @@ class Stage:
             "WHERE row > first ORDER BY row LIMIT 1").fetchall()
         if rows:
             raise InputError(source, f"{what} (first at row {rows[0][1]})", row=rows[0][0], column=column)
+
+    def case_twins(self, column: str, table: str, limit: int = 6) -> list[list[str]]:
+        """Groups of keys in ``column`` (with the ledger's ``table``.``column``) equal but for case,
+        each holding at least one key of this file."""
+        rows = self.con.execute(f"""
+            WITH mine AS (SELECT DISTINCT {column} AS k FROM {self.ready}),
+                 keys AS (SELECT k FROM mine UNION SELECT DISTINCT {column} FROM {table}
+                          WHERE lower({column}) IN (SELECT lower(k) FROM mine))
+            SELECT list(k ORDER BY k) FROM keys GROUP BY lower(k) HAVING count(*) > 1
+            ORDER BY 1 LIMIT {int(limit)}""").fetchall()
+        return [r[0] for r in rows]
 
     def series(self) -> list[str]:
         return [r[0] for r in self.con.execute(f"SELECT DISTINCT series FROM {self.ready} ORDER BY series").fetchall()]

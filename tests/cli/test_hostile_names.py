@@ -18,6 +18,7 @@ from hypothesis import HealthCheck, given, settings, strategies as st
 
 from ledger import Ledger
 from ledger.errors import LedgerError
+from ledger.intake.keys import key_problem
 from ledger.cli import app
 from ledger.cli.common import Format, emit
 from ledger.cli.terminal import printable, render_table
@@ -29,7 +30,9 @@ UNSAFE = {"Cc", "Cf", "Zl", "Zp", "Cs", "Co", "Cn"}
 # marks, zero-width characters and rich's markup brackets.
 SPECIAL = st.sampled_from(["\x1b", "\x1b[2J", "\n", "\r", "\x00", "\x85", "\u202e", "\u2066", "\u200b", "\ufeff",
                            "\u0301", "[", "]", "[/]", "[red]", "[link=x]", "\\", ":", ",", '"'])
-NAMES = st.lists(st.one_of(st.characters(), SPECIAL), min_size=1, max_size=12).map("".join)
+# Lone surrogates (category Cs) are left out: no UTF-8 file or Arrow string can carry one, so no name
+# can hold one (pandas refuses them before Backsight sees them).
+NAMES = st.lists(st.one_of(st.characters(exclude_categories=("Cs",)), SPECIAL), min_size=1, max_size=12).map("".join)
 
 
 def _inert(line: str) -> bool:
@@ -77,7 +80,8 @@ def hostile(tmp_path_factory):
     """A ledger whose model and series names are markup and escape sequences (if intake admits them)."""
     p = tmp_path_factory.mktemp("hostile") / "l.duckdb"
     y = planted.actuals(3, planted.HISTORY + 14, seed=9)
-    rename = dict(zip(planted.names(3), HOSTILE_SERIES))
+    # intake refuses control characters in keys (the identity rule, ledger/intake/keys.py)
+    rename = {old: new for old, new in zip(planted.names(3), HOSTILE_SERIES) if key_problem(new) is None}
     admitted = []
     with Ledger.open(p) as book:
         book.record_actuals(planted.actual_frame(y).replace({"series": rename}))

@@ -152,8 +152,8 @@ def test_filters_equal_the_api(runner, path):
 
 def test_flags_severity_and_kind_filters(runner, path):
     every = _csv(_run(runner, path, "flags", "--format", "csv"))
-    alerts = _csv(_run(runner, path, "flags", "--severity", "alert", "--kind", "calibration", "--format", "csv"))
-    want = every[(every["severity"] == "alert") & (every["kind"] == "calibration")].reset_index(drop=True)
+    alerts = _csv(_run(runner, path, "flags", "--severity", "act", "--kind", "calibration", "--format", "csv"))
+    want = every[(every["severity"] == "act") & (every["kind"] == "calibration")].reset_index(drop=True)
     _same(alerts, want)
 
 

@@ -85,3 +85,21 @@ def test_check_frequency():
     assert check_frequency(" Monthly ") == "monthly"
     with pytest.raises(ValueError, match="use one of yearly, quarterly, monthly, weekly, daily"):
         check_frequency("fortnightly")
+
+
+def test_period_sql_matches_the_python_formulas():
+    # staging resolves labels in SQL; it must agree with period_start/period_index everywhere
+    import datetime as dt
+
+    import duckdb
+
+    from ledger.periods import FREQUENCIES, period_index, period_sql, period_start
+
+    days = [dt.date(1, 1, 8) + dt.timedelta(days=k * 997) for k in range(3600)] + \
+        [dt.date(1969, 12, 28) + dt.timedelta(days=k) for k in range(20)] + [dt.date(9999, 12, 26)]
+    con = duckdb.connect()
+    con.execute("CREATE TABLE d AS SELECT unnest(?::DATE[]) AS day", [days])
+    for freq in FREQUENCIES:
+        start, index = period_sql("day", freq)
+        got = con.execute(f"SELECT day, {start}, {index} FROM d ORDER BY day").fetchall()
+        assert [(s, i) for _, s, i in got] == [(period_start(d, freq), period_index(d, freq)) for d in sorted(days)], freq

@@ -15,7 +15,7 @@ from ledger.cli import app
 from ledger.errors import LedgerBusy, LedgerError
 from ledger.store import SCHEMA_VERSION, TABLES, Store
 
-HOSTILE = ["NULL", "=1+1", "-north", "+x", "@sum", "'quoted", "a,b", "line\nbreak", '"dq"',
+HOSTILE = ["NULL", "=1+1", "-north", "+x", "@sum", "'quoted", "a,b", "no\u00a0break space", '"dq"',
            "<script>alert(1)</script>", "../../etc", "North/Hoses", "north/hoses", "ünïcode ✓"]
 
 

@@ -14,6 +14,7 @@ import pytest
 
 from ledger.stats.comparison import dm_hln
 from ledger.errors import LedgerError, UnknownName
+from ledger.wording import pval
 
 from tests.planted import build
 
@@ -98,10 +99,23 @@ def test_advise_recommends_only_when_warranted(book):
     assert got.loc["h1only", "reason"] == "not significant" and not got.loc["h1only", "recommend"]
     assert "not significantly more accurate at horizons 2–3" in got.loc["h1only", "advice"]
     assert got.loc["mixed", "reason"] == "mixed by horizon"
-    assert got.loc["mixed", "advice"] == ("keep inc: mixed is significantly more accurate at horizon 1 "
-                                          "but less accurate at horizon 3")
+    assert got.loc["mixed", "advice"].startswith("keep inc: mixed is significantly more accurate at horizon 1 "
+                                                 "but less accurate at horizon 3; DM-HLN over all 36 common periods: ")
     assert got.loc["worse", "reason"] == "not better"
     assert got["recommend"].sum() == 1
+
+
+def test_advise_names_both_test_windows_and_the_one_its_rule_uses(book):
+    # Issue 13: the sentence names its window, states DM-HLN over the recent window and over all
+    # common periods, and says which one the rule uses and why; the figures match compare().
+    got = _advice(book, challengers=["h1only"])
+    text = got.loc["h1only", "advice"]
+    assert "not significantly more accurate at horizons 2–3 over all 36 common periods" in text
+    everything = book.compare("inc", "h1only")
+    listed = ", ".join(f"{h}: {pval(p)}" for h, p in zip(everything["horizon"], everything["p_value"]))
+    assert f"; DM-HLN over all 36 common periods: {listed}; over the last 12: " in text
+    assert text.endswith("; the rule tests all common periods, because 12 periods give the test little power, "
+                         "and uses the recent window to judge which model is better now")
 
 
 def test_advise_at_the_horizons_that_matter(book):

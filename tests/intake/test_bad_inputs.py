@@ -18,6 +18,7 @@ SNAP = ["--model", "m", "--origin", "2025-12"]
 ISO_HINT = "use an ISO date (2026-07-31) or a label such as 2026, 2026Q3, 2026-11 or 2026-W05"
 NOT_PERIOD = "row 1 column period: '{}' is not a period; " + ISO_HINT
 
+KEYS = "; keys may not hold control, bidirectional or zero-width characters"
 REFUSED = {
     "truncated_row.csv": "row 2 column forecast: is empty",
     "truncated_quote.csv": "row 2 column series: a quoted field is not closed before the end of the file",
@@ -63,6 +64,20 @@ REFUSED = {
     "parquet_binary_key.parquet": "row 1 column series: holds binary data, not text; write the column as plain values",
     "parquet_bool_forecast.parquet": "row 1 column forecast: holds true/false values, not numbers",
     "parquet_list_key.parquet": "row 1 column series: holds a list, not text; write the column as plain values",
+    "period_arabic_digits.csv": NOT_PERIOD.format("\u0662\u0660\u0662\u0666-\u0660\u0661"),
+    "period_fullwidth_digits.csv": NOT_PERIOD.format("\uff12\uff10\uff12\uff16-01"),
+    "period_bad_time.csv": "row 1 column period: '2026-01-31 99:99:99' is not a valid time of day",
+    "period_utc_offset.csv": "row 1 column period: '2026-01-31T10:00+05:00' has a UTC offset; give the date alone "
+                             "(a period is a calendar date, in no time zone)",
+    # the series identity rule (README): control, bidirectional and zero-width characters are refused
+    "key_newline.csv": "row 1 column series: 'line one\\nline two' holds a control character (U+000A)" + KEYS,
+    "key_escape.csv": "row 1 column series: 'A\\x1b[2J' holds a control character (U+001B)" + KEYS,
+    "key_zero_width.csv": "row 1 column series: 'nor\\u200bth' holds a zero-width character "
+                          "(U+200B ZERO WIDTH SPACE)" + KEYS,
+    "key_bidi_override.csv": "row 1 column series: 'abc\\u202efed' holds a bidirectional embedding or override "
+                             "(U+202E RIGHT-TO-LEFT OVERRIDE)" + KEYS,
+    "key_bom_inside.csv": "row 1 column series: 'A\\ufeffB' holds a byte-order mark "
+                          "(U+FEFF ZERO WIDTH NO-BREAK SPACE)" + KEYS,
 }
 
 # Files read as they stand; the value is (series, period start, value) rows the ledger must hold.
@@ -79,13 +94,15 @@ READ = {
     "dates_iso_time.csv": [("A", "2026-01-01", 10.0)],
     "dates_iso_time_nonzero.csv": [("A", "2026-01-01", 10.0)],                      # the time of day is ignored
     "key_quotes.csv": [('he said "hi"', "2026-01-01", 10.0)],                       # CSV quoting undone
-    "key_newline.csv": [("line one\nline two", "2026-01-01", 10.0)],                # kept verbatim
     "key_html.csv": [("<script>alert(1)</script>", "2026-01-01", 10.0)],            # kept verbatim, escaped on output
     "key_path.csv": [("../../etc/passwd", "2026-01-01", 10.0), ("..\\..\\windows", "2026-01-01", 11.0)],
     "key_spaces.csv": [("north", "2026-01-01", 10.0)],                              # keys are trimmed
     "actuals_negative_zero.csv": [("A", "2026-01-01", 0.0), ("A", "2026-02-01", 0.0)],
+    "actuals_key_nfd.csv": [("caf\u00e9", "2026-01-01", 10.0), ("caf\u00e9", "2026-02-01", 11.0)],  # NFC: one series
+    "actuals_key_case.csv": [("North", "2026-01-01", 10.0), ("north", "2026-01-01", 11.0)],   # two, with a warning
 }
-ARGS = {"actuals_quarter_end.csv": [], "actuals_negative_zero.csv": [], "actuals_week_53.csv": []}
+ARGS = {"actuals_quarter_end.csv": [], "actuals_negative_zero.csv": [], "actuals_week_53.csv": [],
+        "actuals_key_nfd.csv": [], "actuals_key_case.csv": []}
 
 
 def test_corpus_is_complete():
@@ -168,3 +185,10 @@ def test_header_field_over_the_csv_limit(runner, base, tmp_path):
     assert result.stderr == ("Error: hugefield.csv: the header cannot be read (field larger than field limit "
                              "(131072)); is this a CSV file?\n")
     assert table_hashes(base) == before
+
+
+def test_keys_differing_only_by_case_are_named(runner, base):
+    result = _invoke(runner, base, CORPUS / "actuals_key_case.csv")
+    assert result.exit_code == 0
+    assert result.stderr == ("Warning: actuals_key_case.csv: series names that differ only by case: "
+                             "'North' / 'north'; they are different series (case is significant)\n")

@@ -11,7 +11,7 @@ from hypothesis import given, settings, strategies as st
 
 from ledger import Ledger
 from ledger.errors import InputError
-from ledger.intake.columns import quantile_name
+from ledger.wording import quantile_name
 
 
 def frame(**columns):

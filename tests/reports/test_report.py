@@ -31,7 +31,7 @@ from ledger import Ledger
 from ledger.store import parse_as_of
 from reports import render_report
 from reports.data import load
-from reports.names import UnsafePath, page_name, safe_write
+from reports.names import MARKER, UnsafePath, page_name, safe_write   # MARKER: the folder marker, not a page
 from reports.series_views import build_series
 from reports.site import build_context, series_inputs
 from reports.views import build_model, build_overview, build_series_index
@@ -116,7 +116,7 @@ def site(ledger_file, tmp_path_factory):
 @pytest.fixture(scope="module")
 def pages(site) -> dict[str, str]:
     result, _ = site
-    return {p.name: p.read_text(encoding="utf-8") for p in result.out_dir.iterdir()}
+    return {p.name: p.read_text(encoding="utf-8") for p in result.out_dir.glob("*.html")}
 
 
 def _series_page(pages: dict[str, str], key: str) -> str:
@@ -177,12 +177,19 @@ def test_view_models_match_gold(views):
 
 
 def test_gold_numbers_agree_with_the_ledger_api(views, ledger_file):
-    """The leaderboard's figures are Ledger.scores' figures, and coverage is misses over cells."""
+    """The matrix's and the model page's figures are Ledger.scores' figures, and coverage is
+    misses over cells."""
     with Ledger.open(ledger_file, create=False, read_only=True) as book:
         scores = book.scores(by=["model", "horizon"], as_of=AS_OF)
+        pooled = book.scores(by=["model"], as_of=AS_OF, horizons=[1])
         cells = book.interval_cells(as_of=AS_OF, horizons=[1], models=[INCUMBENT])
-    row = next(r for r in views["overview"]["leaderboard"][0]["rows"] if r["model"] == INCUMBENT)
+    matrix = views["overview"]["matrix"]
+    assert matrix["columns"] == ["1", "2", "3", "4", "5", "6"]          # six horizons: one column each
+    cell = next(r for r in matrix["rows"] if r["model"] == INCUMBENT)["cells"][0]
     want = scores[(scores["model"] == INCUMBENT) & (scores["horizon"] == 1)].iloc[0]
+    assert cell["n"] == want["n"] and cell["mase"] == pytest.approx(pooled.loc[pooled["model"] == INCUMBENT, "mase"].iloc[0], rel=1e-8)
+    assert [m["text"] for m in cell["marks"]] == ["80% narrow!", "95% narrow!"]   # planted: too narrow
+    row = next(r for r in views["models"][INCUMBENT]["by_horizon"] if r["horizon"] == 1)
     assert row["n"] == want["n"] and row["mase"] == pytest.approx(want["mase"], rel=1e-8)
     at80 = cells[cells["level"] == 80]
     cov = next(c for c in row["coverage"] if c["level"] == 80)
@@ -194,7 +201,7 @@ def test_gold_numbers_agree_with_the_ledger_api(views, ledger_file):
 
 def test_footer_carries_the_ledger_state_hash(site, ledger_file, pages):
     with Ledger.open(ledger_file, create=False, read_only=True) as book:
-        digest = book.store.state_hash(parse_as_of(AS_OF))
+        digest = book.report_state_hash(as_of=AS_OF)
     assert site[0].state_hash == digest
     for name, text in pages.items():
         assert digest in text, name
@@ -206,7 +213,8 @@ def test_footer_carries_the_ledger_state_hash(site, ledger_file, pages):
 
 
 SECTIONS = {
-    "index.html": ["summary", "headlines", "leaderboard", "charts", "findings", "advice"],
+    "index.html": ["review", "advice-sentence", "top-findings", "figures", "matrix", "over-time", "value-added",
+                   "headlines", "charts", "findings", "advice"],
     "model": ["summary", "metrics", "findings", "comparisons"],
     "series": ["summary", "chart", "metrics", "latest", "findings", "data-quality"],
     "methods.html": ["sign", "metrics", "tests", "cautions", "sources"],
@@ -321,7 +329,7 @@ def test_planted_problems_are_visible(pages):
     assert "incumbent-hw&#39;s (the incumbent)" in index and "too narrow" in index
     assert "Replacement advice" in index
     hoses = page_name("s", "North/Hoses")
-    drift = re.search(r"<td>drift</td>.*?</tr>", index, flags=re.DOTALL)
+    drift = re.search(r"<td[^>]*>drift</td>.*?</tr>", index, flags=re.DOTALL)
     assert drift and hoses in drift.group(0), "the planted drift on North/Hoses links to its series page"
     pots = _series_page(pages, "east/pots")
     assert "Missing actuals: 2024-07 to 2024-08 (2 periods)" in pots
@@ -340,7 +348,7 @@ def test_gaps_are_breaks_in_the_chart(pages):
 def test_charts_are_accessible_figures(pages):
     text = pages["index.html"]
     figures = re.findall(r'<figure class="chart" id="([^"]+)-fig">\s*<svg ([^>]+)>', text)
-    assert len(figures) == 4
+    assert [f[0] for f in figures] == ["c-mase", "c-won", "c-fva", "c-horizon", "c-calibration"]
     for chart_id, attrs in figures:
         assert 'role="img"' in attrs and f'aria-describedby="{chart_id}-d"' in attrs
         assert f'<figcaption id="{chart_id}-d">' in text and f'<title id="{chart_id}-t">' in text
@@ -368,8 +376,11 @@ def test_cli_report_prints_the_index_path_and_renders_reproducibly(runner, tiny,
     assert res.exit_code == 0, res.output
     assert res.stdout == f"{(out / 'index.html').resolve()}\n"
     again = render_report(tiny, tmp_path / "api", as_of=AS_OF, incumbent=INCUMBENT, benchmark="snaive", title="Tiny")
-    names = sorted(p.name for p in out.iterdir())
-    assert names == sorted(p.name for p in again.out_dir.iterdir()) and len(names) == 4 + 3 + 2
+    names = sorted(p.name for p in out.glob("*.html"))
+    assert names == sorted(p.name for p in again.out_dir.glob("*.html")) and len(names) == 4 + 3 + 2
+    tables = sorted(p.relative_to(out).as_posix() for p in out.glob("tables/*.csv"))
+    assert tables and tables == sorted(p.relative_to(again.out_dir).as_posix() for p in again.out_dir.glob("tables/*.csv"))
+    names += tables
     stamp = re.compile(r"<dt>Generated</dt><dd>[^<]*</dd>")
     for name in names:       # charts included: the SVG is deterministic too
         a, b = ((d / name).read_text(encoding="utf-8") for d in (out, again.out_dir))
@@ -383,14 +394,14 @@ def test_worker_processes_write_the_same_pages(pages, ledger_file, tmp_path):
 
     result = render_report(ledger_file, tmp_path / "pool", as_of=AS_OF, title="Invented review <i>Q4</i>",
                            incumbent=INCUMBENT, benchmark="snaive", workers=2)
-    names = sorted(p.name for p in result.out_dir.iterdir())
+    names = sorted(p.name for p in result.out_dir.glob("*.html"))
     assert names == sorted(pages)
     stamp = re.compile(r"<dt>Generated</dt><dd>[^<]*</dd>")
     for name in names:
         text = (result.out_dir / name).read_text(encoding="utf-8")
         assert FINDINGS_SLOT not in text
         assert stamp.sub("", text) == stamp.sub("", pages[name]), name
-    assert "<td>drift</td>" in _series_page(pages, "North/Hoses"), "a series page shows its findings"
+    assert '<td data-label="Kind">drift</td>' in _series_page(pages, "North/Hoses"), "a series page shows its findings"
 
 
 def test_cli_report_refuses_an_unknown_incumbent(runner, tiny, tmp_path):

@@ -113,3 +113,100 @@ def test_page_does_not_overflow_horizontally(site, tmp_path, kind):
     for width in WIDTHS:
         scroll, client = map(int, found[f"w{width}"].split("x"))
         assert client >= width - 20 and scroll <= client, f"{kind} at {width} px: content {scroll} px wide in {client} px"
+
+
+# ---------------------------------------------------------------- the review (issue 14)
+
+
+def _probe_page(page: str, width: int, height: int) -> str:
+    """A wrapper with the page in an iframe of width x height and a script that writes, into the
+    DOM, where the review ends, where the matrix starts, and the right edge of the widest table cell."""
+    frame = (f'<iframe id="f" width="{width}" height="{height}" style="border:0;display:block" '
+             f'srcdoc="{html.escape(page, quote=True)}"></iframe>')
+    script = ("window.addEventListener('load', function () { var d = document.getElementById('f').contentDocument;"
+              "var r = d.getElementById('review'), m = d.getElementById('matrix'), right = 0;"
+              "d.querySelectorAll('td, th').forEach(function (c) { var b = c.getBoundingClientRect();"
+              " if (b.width > 0) { right = Math.max(right, b.right); } });"
+              "document.body.setAttribute('data-probe', [r ? r.getBoundingClientRect().bottom : -1,"
+              " m ? m.getBoundingClientRect().top : -1, right, d.documentElement.clientWidth].join('x')); });")
+    return f"<!DOCTYPE html><html><body style='margin:0'>{frame}<script>{script}</script></body></html>"
+
+
+def _probe(page_file: Path, width: int, height: int, tmp_path: Path) -> tuple[float, float, float, float]:
+    wrapper = tmp_path / f"probe-{width}.html"
+    wrapper.write_text(_probe_page(page_file.read_text(encoding="utf-8"), width, height), encoding="utf-8")
+    dom = _run(["--window-size=1400,1000", "--dump-dom", wrapper.as_uri()], tmp_path / "profile").stdout
+    found = re.search(r'data-probe="([-\d.]+)x([-\d.]+)x([-\d.]+)x([-\d.]+)"', dom)
+    assert found, "the probe wrote nothing into the DOM"
+    return tuple(float(x) for x in found.groups())
+
+
+def test_first_screen_at_1280x800_is_the_review(site, shots, tmp_path):
+    review_bottom, matrix_top, _, _ = _probe(site / "index.html", 1280, 800, tmp_path)
+    assert 0 < review_bottom <= 800, f"the review ends at {review_bottom} px, below the fold of 800 px"
+    assert matrix_top >= review_bottom
+    png = shots / "report-index-first-screen-1280x800.png"
+    _run([f"--screenshot={png}", "--window-size=1280,800", (site / "index.html").as_uri()], tmp_path / "profile")
+    assert png.is_file() and png.stat().st_size > 10_000
+
+
+@pytest.mark.parametrize("kind", ["index", "model", "series", "findings"])
+def test_no_table_column_is_off_screen_at_390(site, tmp_path, kind):
+    """On a phone every table is a stack of labelled cards: no cell reaches past the screen."""
+    name = {"findings": "findings.html"}.get(kind) or PAGES[kind]
+    _, _, right, client = _probe(site / name, 390, 900, tmp_path)
+    assert 0 < right <= client + 0.5, f"{kind}: a table cell ends at {right} px on a {client} px screen"
+
+
+def _pdf_pages(pdf: Path) -> int:
+    counts = [int(n) for n in re.findall(rb"/Count (\d+)", pdf.read_bytes())]
+    assert counts, f"{pdf}: no page tree"
+    return max(counts)
+
+
+@pytest.mark.parametrize("paper", ["A4", "letter"])
+def test_the_review_prints_on_one_page(site, tmp_path, paper):
+    text = (site / "index.html").read_text(encoding="utf-8")
+    first = text[:text.index('<section id="matrix"')] + "</main></body></html>"
+    page = tmp_path / "first.html"
+    page.write_text(first.replace("</head>", f"<style>@page {{ size: {paper}; }}</style></head>"), encoding="utf-8")
+    pdf = tmp_path / "first.pdf"
+    _run(["--no-pdf-header-footer", f"--print-to-pdf={pdf}", page.as_uri()], tmp_path / "profile")
+    assert _pdf_pages(pdf) == 1
+
+
+def test_printed_sections_start_on_new_pages_without_navigation(site, tmp_path):
+    pdf = tmp_path / "all.pdf"
+    _run(["--no-pdf-header-footer", f"--print-to-pdf={pdf}", (site / "index.html").as_uri()], tmp_path / "profile")
+    sections = (site / "index.html").read_text(encoding="utf-8").count("\n<section id=")
+    assert _pdf_pages(pdf) >= sections
+    css = (site / "index.html").read_text(encoding="utf-8")
+    assert re.search(r"@media print \{.*?header\.site \.brand, header\.site nav \{ display: none; \}", css, re.S)
+
+
+@pytest.fixture(scope="module", params=sorted(__import__("tests.reports.young_ledgers", fromlist=["MATRIX"]).MATRIX))
+def young(request, tmp_path_factory):
+    from tests.reports.young_ledgers import MATRIX
+
+    root = tmp_path_factory.mktemp(f"young-{request.param}")
+    MATRIX[request.param](root / "young.duckdb")
+    return request.param, render_report(root / "young.duckdb", root / "site", as_of=AS_OF, workers=0).out_dir
+
+
+def test_young_ledger_pages_open_without_console_messages(young, shots, tmp_path):
+    """Every page of a young or odd ledger loads in Chromium with nothing on the console (no
+    blocked load, no error); the overview is kept as screenshots at 1280 and 390 px."""
+    name, site_dir = young
+    pages = sorted(site_dir.glob("*.html"))
+    body = "".join(f'<iframe width="1280" height="600" srcdoc="{html.escape(p.read_text(encoding="utf-8"), quote=True)}">'
+                   "</iframe>" for p in pages)
+    wrapper = tmp_path / "all.html"
+    wrapper.write_text(f"<!DOCTYPE html><html><body>{body}</body></html>", encoding="utf-8")
+    done = _run(["--enable-logging=stderr", "--v=0", "--dump-dom", wrapper.as_uri()], tmp_path / "profile")
+    console = [line for line in done.stderr.splitlines() if ":CONSOLE" in line]
+    assert not console, f"{name}: {console[:3]}"
+    assert done.stdout.count("<iframe") == len(pages) >= 4
+    for width in WIDTHS:
+        png = shots / f"young-{name}-index-{width}.png"
+        _run([f"--screenshot={png}", f"--window-size={width},1000", (site_dir / "index.html").as_uri()], tmp_path / "profile")
+        assert png.is_file() and png.stat().st_size > 5_000

@@ -25,7 +25,7 @@ from ledger.store import parse_as_of
 from ledger.scoring.totals import INTERVAL_NOTE
 from reports import render_report
 from reports.group_views import GROUPS_PAGE, NO_GROUP, build_groups, count_findings, load_groups
-from reports.names import page_name
+from reports.names import MARKER, page_name
 from ledger.wording import num, pct
 from reports.text import bias_words
 from tests.reports.test_report import _parse
@@ -83,7 +83,7 @@ def ledger_file(tmp_path_factory) -> Path:
 def site(ledger_file, tmp_path_factory):
     out = tmp_path_factory.mktemp("site") / "out"
     result = render_report(ledger_file, out, as_of=AS_OF, group_by="region", workers=0)
-    return result, {p.name: p.read_text(encoding="utf-8") for p in out.iterdir()}
+    return result, {p.name: p.read_text(encoding="utf-8") for p in out.glob("*.html")}
 
 
 @pytest.fixture(scope="module")
@@ -271,7 +271,7 @@ def test_hostile_attribute_values_are_escaped(site):
 
 def test_without_group_by_there_is_no_groups_page_and_no_link(ledger_file, tmp_path):
     result = render_report(ledger_file, tmp_path / "plain", as_of=AS_OF, workers=0)
-    names = [p.name for p in result.out_dir.iterdir()]
+    names = [p.name for p in result.out_dir.glob("*.html")]
     assert GROUPS_PAGE not in names and result.pages == len(names) == 4 + len(MODELS) + len(REGIONS)
     for name in names:
         assert GROUPS_PAGE not in (result.out_dir / name).read_text(encoding="utf-8"), name

@@ -13,6 +13,7 @@ import scoringrules as sr
 from scipy import stats
 
 from ledger.stats import quantiles as Q
+from ledger.wording import quantile_name
 
 TAUS = np.round(np.arange(1, 20) * 0.05, 2)          # 0.05, 0.10, ..., 0.95 (the median included)
 DECILES = np.round(np.arange(1, 10) * 0.1, 1)
@@ -153,7 +154,7 @@ def test_point_stands_in_for_a_missing_median_and_pairs_are_found():
 
 @pytest.mark.parametrize("tau,name", [(0.1, "q10"), (0.05, "q05"), (0.975, "q975"), (0.5, "q50"), (0.9, "q90")])
 def test_tau_names_follow_the_input_columns(tau, name):
-    assert Q.tau_name(tau) == name
+    assert quantile_name(tau) == name
 
 
 def test_pit_is_linear_between_quantiles_and_mid_tail_outside():

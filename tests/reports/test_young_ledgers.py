@@ -1,0 +1,36 @@
+"""Young and odd ledgers never crash the report, and each says plainly what is missing (issue 14, item 6)."""
+
+from __future__ import annotations
+
+import html
+import re
+
+import pytest
+
+from reports import render_report
+from tests.reports.young_ledgers import MATRIX
+
+AS_OF = "2100-01-01"
+
+
+def _text(page: str) -> str:
+    return html.unescape(re.sub(r"\s+", " ", re.sub(r"<[^>]+>", " ", page)))
+
+
+@pytest.fixture(scope="module", params=sorted(MATRIX))
+def young_site(request, tmp_path_factory):
+    root = tmp_path_factory.mktemp(request.param)
+    says = MATRIX[request.param](root / "young.duckdb")
+    result = render_report(root / "young.duckdb", root / "site", as_of=AS_OF, workers=0)
+    return request.param, says, result
+
+
+def test_every_page_renders_and_says_what_is_missing(young_site):
+    name, says, result = young_site
+    pages = {p.name: p.read_text(encoding="utf-8") for p in result.out_dir.glob("*.html")}
+    assert {"index.html", "findings.html", "series.html", "methods.html"} <= set(pages)
+    index = _text(pages["index.html"])
+    for phrase in says:
+        assert phrase.lower() in index.lower(), f"{name}: the overview does not say {phrase!r}"
+    for page, text in pages.items():
+        assert "Traceback" not in text and "nan" not in re.findall(r"\bnan\b", _text(text)), (name, page)

@@ -13,6 +13,7 @@ set from a list        ``unnest($keys)``           ``explode(:keys)``
 list membership        ``list_contains($k, x)``    ``array_contains(:k, x)``
 temporary table        ``CREATE OR REPLACE TEMP    a cached DataFrame registered
                        TABLE t AS SELECT …``       as temporary view ``t``
+delete rows of it      ``DELETE FROM t WHERE c``   the view replaced by its rows without c
 drop it                ``DROP TABLE IF EXISTS t``  uncache and drop the view
 =====================  ==========================  ==============================
 
@@ -36,6 +37,7 @@ __all__ = ["Dialect", "DUCKDB", "SPARK", "Statement", "render", "parse_statement
 
 _PARAM = re.compile(r"\$([A-Za-z_][A-Za-z0-9_]*)")
 _CREATE = re.compile(r"^\s*CREATE\s+OR\s+REPLACE\s+TEMP(?:ORARY)?\s+TABLE\s+(\w+)\s+AS\s+(.*)$", re.S | re.I)
+_DELETE = re.compile(r"^\s*DELETE\s+FROM\s+(\w+)\s+WHERE\s+(.*)$", re.S | re.I)
 _DROP = re.compile(r"^\s*DROP\s+TABLE\s+IF\s+EXISTS\s+(\w+)\s*;?\s*$", re.I)
 
 
@@ -66,7 +68,7 @@ def render(sql: str, dialect: Dialect) -> str:
 class Statement:
     """A statement as an engine must run it: a query, or the creation or removal of a temp table."""
 
-    kind: str        # "query", "create_temp" or "drop_temp"
+    kind: str        # "query", "create_temp", "delete_temp" (sql: the condition) or "drop_temp"
     table: str | None
     sql: str | None  # the SELECT of a query or of a temp table, in the engine's dialect
 
@@ -75,6 +77,8 @@ def parse_statement(sql: str, dialect: Dialect) -> Statement:
     """Split off the temp-table statements that Spark runs through its DataFrame API."""
     if m := _CREATE.match(sql):
         return Statement("create_temp", m.group(1), render(m.group(2), dialect))
+    if m := _DELETE.match(sql):
+        return Statement("delete_temp", m.group(1), render(m.group(2), dialect))
     if m := _DROP.match(sql):
         return Statement("drop_temp", m.group(1), None)
     return Statement("query", None, render(sql, dialect))

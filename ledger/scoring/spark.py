@@ -85,7 +85,7 @@ def _spark_types() -> dict[str, str]:
     import duckdb
 
     names = {"VARCHAR": "string", "DATE": "date", "INTEGER": "int", "BIGINT": "bigint",
-             "DOUBLE": "double", "TIMESTAMP": "timestamp_ntz"}
+             "DOUBLE": "double", "TIMESTAMP": "timestamp_ntz", "BOOLEAN": "boolean"}
     con = duckdb.connect()
     con.execute(DDL)
     rows = con.execute("SELECT table_name, column_name, data_type FROM information_schema.columns "
@@ -129,6 +129,13 @@ class _SparkSQL:
             if frame is not None:
                 frame.unpersist()
             self.spark.catalog.dropTempView(stmt.table)
+            return None
+        if stmt.kind == "delete_temp":
+            old = self._temps.pop(stmt.table)
+            kept = old.where(f"NOT coalesce(({stmt.sql}), false)").persist()   # DELETE keeps rows where c is NULL
+            kept.createOrReplaceTempView(stmt.table)
+            self._temps[stmt.table] = kept
+            old.unpersist()
             return None
         frame = self.spark.sql(stmt.sql, args=args) if args else self.spark.sql(stmt.sql)
         if stmt.kind == "create_temp":

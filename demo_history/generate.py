@@ -15,7 +15,8 @@ How the forecasts are made (each origin uses only the actuals known when its run
   with z = 1.0 for "80%" and z = 1.5 for "95%" (instead of 1.2816 and 1.96): the tool's intervals
   are too narrow by the factors 0.78 and 0.77.
 * ``challenger-damped`` -- damped additive Holt-Winters, ETS(A,Ad,A), every weight (alpha, beta,
-  gamma, phi) re-chosen at every origin from a wide grid; its own normal intervals.
+  gamma, phi) re-chosen at every origin from a wide grid; its own normal intervals, and
+  quantiles q05 ... q95 whose tails are planted over-confident (``CHALLENGER_Q``).
 * ``seasonal-naive`` -- ``ledger.methods.forecasters.forecast(method="snaive")`` with its standard intervals.
 * ``planner-override`` -- the incumbent's point forecast raised by a noisy 8% (mean 0.08, sd 0.05
   per cell), rounded to whole units; no intervals.
@@ -303,9 +304,10 @@ def hw_filter(y: np.ndarray, grid: Grid, until: int) -> Iterator[tuple[int, Fit]
 
 
 def hw_forecast(fit: Fit, grid: Grid, pick: np.ndarray, z: np.ndarray, sigma2: np.ndarray, origin: int,
-                zvalues: dict[int, float]) -> dict[str, np.ndarray]:
+                zvalues: dict[int, float], quantiles: dict[str, float] | None = None) -> dict[str, np.ndarray]:
     """Point forecasts and normal bounds (series x H) at ``origin`` for grid point pick[s] of
-    series s with initial states z[s] and one-step variance sigma2[s]."""
+    series s with initial states z[s] and one-step variance sigma2[s]; ``quantiles`` maps a
+    column name (q25) to its multiplier of the forecast standard deviation."""
     alpha, beta, phi = grid.alpha[pick], grid.beta[pick], grid.phi[pick]
     level, trend, season = fit.states(pick, z)
     steps = np.arange(1, H + 1)
@@ -318,10 +320,18 @@ def hw_forecast(fit: Fit, grid: Grid, pick: np.ndarray, z: np.ndarray, sigma2: n
     for lv, zz in zvalues.items():
         out[f"lower_{lv}"] = point - zz * sd
         out[f"upper_{lv}"] = point + zz * sd
+    for name, zz in (quantiles or {}).items():
+        out[name] = point + zz * sd
     return out
 
 
 TRUE_Z = {80: 1.2815515655446004, 95: 1.959963984540054}
+# The challenger's quantile export. q25, q50 and q75 are the quantiles of its normal predictive
+# distribution (Phi^-1(0.75) = 0.6745); the tail quantiles are PLANTED over-confident: the export
+# puts q10/q90 at 1.0 and q05/q95 at 1.15 forecast standard deviations from the point, where the
+# distribution has 1.2816 and 1.6449.
+CHALLENGER_Q = {"q05": -1.15, "q10": -1.0, "q25": -0.6744897501960817, "q50": 0.0,
+                "q75": 0.6744897501960817, "q90": 1.0, "q95": 1.15}
 
 
 def _best(fit: Fit) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -340,7 +350,7 @@ def challenger_runs(truth) -> dict[int, dict[str, np.ndarray]]:
         for t, fit in hw_filter(data, grid, max(origins)):
             if t in origins:
                 pick, z, sse = _best(fit)
-                out[t] = hw_forecast(fit, grid, pick, z, _fpe(sse, fit.n, N_INIT + 4), t, TRUE_Z)
+                out[t] = hw_forecast(fit, grid, pick, z, _fpe(sse, fit.n, N_INIT + 4), t, TRUE_Z, CHALLENGER_Q)
     return out
 
 
@@ -426,7 +436,7 @@ def _run_rows(run: dict[str, np.ndarray], origin: int, columns: list[str], perio
 
 
 INCUMBENT_COLS = ["series", "period", "forecast", "lower_80", "upper_80", "lower_95", "upper_95"]
-CHALLENGER_COLS = ["series", "period", "forecast", "lower_95", "upper_95", "lower_80", "upper_80"]
+CHALLENGER_COLS = ["series", "period", "forecast", "lower_95", "upper_95", "lower_80", "upper_80", *CHALLENGER_Q]
 
 
 def _actual_rows(truth, months, *, revised: bool = False) -> list[list[str]]:

@@ -26,12 +26,12 @@ __all__ = ["backtest"]
 Fill = enum.Enum("Fill", {name: name for name in FILL_METHODS}, type=str)
 
 
-def _levels(text: str) -> list[float]:
+def _numbers(text: str, option: str, example: str) -> list[float]:
     try:
         return [float(v) for v in split([text])]
     except ValueError:
-        raise typer.BadParameter(f"{text!r} is not a comma list of numbers, e.g. 80,95",
-                                 param_hint="--levels") from None
+        raise typer.BadParameter(f"{text!r} is not a comma list of numbers, e.g. {example}",
+                                 param_hint=option) from None
 
 
 @app.command()
@@ -43,6 +43,7 @@ def backtest(
     holdout: Annotated[int | None, typer.Option("--holdout", metavar="K", help="One origin per series, K periods before its last actual.")] = None,
     origins: Annotated[str | None, typer.Option("--origins", metavar="FIRST:LAST[:STEP]", help="Every origin in this range of period labels.")] = None,
     levels: Annotated[str, typer.Option("--levels", metavar="LIST", help="Comma list of interval levels in percent.")] = "80,95",
+    quantiles: Annotated[str | None, typer.Option("--quantiles", metavar="LIST", help="Comma list of quantile levels in (0, 1) to record as q<NN> columns, e.g. 0.05,0.1,0.5,0.9,0.95.")] = None,
     freq: FreqOpt = None,
     jobs: Annotated[int | None, typer.Option("--jobs", metavar="N", help="Worker processes (default: all cores).")] = None,
     fill: Annotated[Fill | None, typer.Option("--fill", metavar="METHOD", help=FILL_HELP)] = None,
@@ -50,7 +51,9 @@ def backtest(
 ) -> None:
     """Backtest reference methods on a history file and record the forecasts as ref-METHOD runs."""
     options = dict(methods=split([methods]), horizon=horizon, holdout=holdout, origins=origins,
-                   levels=_levels(levels), jobs=jobs, fill=None if fill is None else fill.value)
+                   levels=_numbers(levels, "--levels", "80,95"),
+                   quantiles=_numbers(quantiles, "--quantiles", "0.1,0.5,0.9") if quantiles else [],
+                   jobs=jobs, fill=None if fill is None else fill.value)
     check_options(**options)  # before the ledger file is created
     console = Console(stderr=True, highlight=False)
     columns = (TextColumn("backtest"), BarColumn(), MofNCompleteColumn(), TextColumn("series, ETA"),

@@ -51,7 +51,7 @@ __all__ = [
     "check_models",
 ]
 
-FindingKind = Literal["drift", "calibration", "value", "data"]
+FindingKind = Literal["drift", "calibration", "quantiles", "value", "data"]
 Severity = Literal["act", "watch", "note"]
 Correction = Literal["bh", "holm"]
 KINDS: tuple[str, ...] = get_args(FindingKind)

@@ -1,4 +1,4 @@
-"""``flags``: run the drift, calibration, value-added and data-quality checks over a ledger.
+"""``flags``: run the drift, calibration, quantile, value-added and data-quality checks over a ledger.
 
 One call pulls the scored cells once (set-based SQL in :mod:`ledger.scoring.cells`), runs the
 per-group statistics of :mod:`ledger.findings.drift`, :mod:`ledger.findings.calibration`, :mod:`ledger.findings.value` and
@@ -27,7 +27,9 @@ from .base import (
     known_models,
 )
 from .data import data_findings, series_models
+from .quantiles import quantile_findings
 from ..scoring.cells import Selection, interval_misses, score_cells
+from ..scoring.quantile_reads import quantile_cells
 from ..scoring.attributes import check_attribute, series_attributes
 from ..store import Store
 from .value import value_findings
@@ -58,6 +60,8 @@ def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: 
     if "calibration" in kinds:
         found += calibration_findings(interval_misses(store, sel), freqs, options, recent_from=recent_from,
                                       total=total)
+    if "quantiles" in kinds:
+        found += quantile_findings(quantile_cells(store, sel), options)
     if "value" in kinds:
         found += value_findings(cells, subjects, known_models(store), options, total=total)
     if "data" in kinds:

@@ -54,6 +54,7 @@ from statsmodels.tsa.seasonal import seasonal_decompose
 from ..errors import GapInHistory, MethodNotApplicable, NotEnoughData, UnknownName
 from ..wording import format_level
 from .names import METHODS, check_levels
+from .quantile_output import add_quantiles, check_quantiles, levels_with_quantiles
 
 __all__ = [
     "forecast",
@@ -402,13 +403,16 @@ def _check_method(method: str) -> None:
 
 
 def forecast(
-    y: np.ndarray, *, method: str, h: int, m: int, levels: Sequence[float] = (80, 95)
+    y: np.ndarray, *, method: str, h: int, m: int, levels: Sequence[float] = (80, 95),
+    quantiles: Sequence[float] = (),
 ) -> Forecast:
     """Forecast ``h`` periods after the last value of ``y`` with a reference method.
 
     ``y`` is the history up to and including the origin (1-D, oldest first, no NaN); ``m`` the
     season length (1 for non-seasonal). Returns ``forecast`` and, for each level L,
-    ``lower_<L>`` / ``upper_<L>`` (see :func:`format_level`), each an array of length h.
+    ``lower_<L>`` / ``upper_<L>`` (see :func:`format_level`), each an array of length h, and
+    for each quantile level tau in ``quantiles`` a column ``q<NN>`` from the same predictive
+    distribution (:mod:`ledger.methods.quantile_output`).
     Raises :class:`GapInHistory` (a ValueError) if y has NaN, ``NotEnoughData`` if y is shorter
     than :func:`min_history`, :class:`MethodNotApplicable` when the method cannot apply.
     """
@@ -431,7 +435,12 @@ def forecast(
             f"method {method} needs at least {need} history values with m={m}, got n={values.size}; "
             "use a later origin or a simpler method"
         )
-    return _DISPATCH[method](values, h, m, check_levels(levels))
+    levels = check_levels(levels)
+    if not quantiles:
+        return _DISPATCH[method](values, h, m, levels)
+    taus = check_quantiles(quantiles)
+    out = _DISPATCH[method](values, h, m, levels_with_quantiles(levels, taus))
+    return add_quantiles(out, levels, taus, lambda level: format_level(level, LEVEL_DIGITS))
 
 
 # ---------------------------------------------------------------------------------------------

@@ -33,6 +33,7 @@ from ..intake.record import ActualsResult, RunResult, write_actuals, write_runs
 from ..store import Store
 from ..wording import label, labels
 from .names import check_fill, check_levels, check_methods
+from .quantile_output import check_quantiles
 
 __all__ = ["BacktestResult", "check_options", "run_backtest"]
 
@@ -73,7 +74,7 @@ class BacktestResult:
 
 def check_options(*, methods: Sequence[str], horizon: int | None, holdout: int | None,
                   origins: str | None, levels: Sequence[float], jobs: int | None,
-                  fill: str | None) -> None:
+                  fill: str | None, quantiles: Sequence[float] = ()) -> None:
     """Refuse bad backtest options before anything is read or written (UnknownName)."""
     check_methods(methods)
     if (holdout is None) == (origins is None):
@@ -85,6 +86,7 @@ def check_options(*, methods: Sequence[str], horizon: int | None, holdout: int |
     if origins is not None:
         _split_origins(origins)
     check_levels(levels, command="backtest")
+    check_quantiles(quantiles)
     check_fill(fill)
 
 
@@ -191,6 +193,7 @@ def run_backtest(
     holdout: int | None = None,
     origins: str | None = None,
     levels: Sequence[float] = (80, 95),
+    quantiles: Sequence[float] = (),
     freq: str | None = None,
     jobs: int | None = None,
     fill: str | None = None,
@@ -207,6 +210,8 @@ def run_backtest(
     periods ahead (default one season of the file's frequency, at least 1). ``fill``: None
     (a series-origin whose history has a gap is skipped with a note), "linear" or "previous".
     ``jobs``: worker processes (default all cores). ``progress(done, total)``: series finished.
+    ``quantiles``: levels tau in (0, 1) recorded as q<NN> columns from each method's predictive
+    distribution (:mod:`ledger.methods.quantile_output`).
 
     Notes name periods by their labels. Raises :class:`ledger.errors.UnknownName` for bad options,
     :class:`~ledger.errors.InputError` / :class:`~ledger.errors.FrequencyError` for a bad file
@@ -217,7 +222,7 @@ def run_backtest(
 
     methods = list(methods)
     check_options(methods=methods, horizon=horizon, holdout=holdout, origins=origins, levels=levels,
-                  jobs=jobs, fill=fill)
+                  jobs=jobs, fill=fill, quantiles=quantiles)
     with read_actuals(store, history, freq=freq, name=name) as actuals:
         span = None if origins is None else _origin_indices(origins, actuals.frequency)
         steps = int(horizon) if horizon is not None else SEASON_LENGTHS[actuals.frequency]
@@ -225,7 +230,7 @@ def run_backtest(
         keys = actuals.stage.series()
     frame, seasons = _latest_history(store, keys)
     forecasts, notes = backtest(frame, methods=methods, horizon=steps, m=seasons, levels=levels,
-                                holdout=holdout, origins=span, jobs=jobs, fill=fill, progress=progress)
+                                quantiles=quantiles, holdout=holdout, origins=span, jobs=jobs, fill=fill, progress=progress)
     notes = [_relabel(n, actuals.frequency) for n in notes]
     runs, warnings = _snapshot(store, forecasts, actuals.frequency, actuals.source, fill, supersede)
     return BacktestResult(actuals.source, actuals.frequency, steps, written, runs, notes,

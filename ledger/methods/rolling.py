@@ -30,7 +30,8 @@ import pandas as pd
 from .forecasters import LEVEL_DIGITS, forecast, min_history, season_length_note, short_history_note
 from .names import FillMethod, check_fill, check_levels, check_methods
 from ..errors import InputError, LedgerError, UnknownName
-from ..wording import format_level
+from ..wording import format_level, quantile_name
+from .quantile_output import check_quantiles
 
 __all__ = ["backtest"]
 
@@ -194,7 +195,7 @@ def _history(task: _Task, origin: int, fill: str | None, notes: _Notes) -> np.nd
     return _fill(hist, fill)
 
 
-def _run_task(task: _Task, methods, horizon: int, levels, fill, chunk: _Chunk) -> None:
+def _run_task(task: _Task, methods, horizon: int, levels, fill, chunk: _Chunk, quantiles=()) -> None:
     notes = _Notes(task.series)
     hist = None
     for origin in task.origins:
@@ -205,7 +206,7 @@ def _run_task(task: _Task, methods, horizon: int, levels, fill, chunk: _Chunk) -
         if short_history_note(hist.size, task.m) is not None:
             notes.at(origin, f"history is shorter than three seasons ({3 * task.m} values for m = {task.m})")
         for method in methods:
-            _run_method(task, origin, hist, method, horizon, levels, notes, chunk)
+            _run_method(task, origin, hist, method, horizon, levels, notes, chunk, quantiles)
     if hist is not None and short_history_note(hist.size, task.m) is None:
         # Checked once per series, on the history up to its last usable origin.
         period = season_length_note(hist, task.m)
@@ -214,13 +215,13 @@ def _run_task(task: _Task, methods, horizon: int, levels, fill, chunk: _Chunk) -
     chunk.notes.extend(notes.sentences())
 
 
-def _run_method(task, origin, hist, method, horizon, levels, notes: _Notes, chunk: _Chunk) -> None:
+def _run_method(task, origin, hist, method, horizon, levels, notes: _Notes, chunk: _Chunk, quantiles=()) -> None:
     need = min_history(method, task.m)
     if hist.size < need:
         notes.at(origin, f"ref-{method} skipped: it needs at least {need} history values (m = {task.m})")
         return
     try:
-        out = forecast(hist, method=method, h=horizon, m=task.m, levels=levels)
+        out = forecast(hist, method=method, h=horizon, m=task.m, levels=levels, quantiles=quantiles)
     except LedgerError as exc:
         notes.at(origin, f"ref-{method} skipped: {exc}")
         return
@@ -234,10 +235,10 @@ def _run_method(task, origin, hist, method, horizon, levels, notes: _Notes, chun
         chunk.add(key, values)
 
 
-def _run_chunk(tasks: list[_Task], methods, horizon, levels, fill) -> _Chunk:
+def _run_chunk(tasks: list[_Task], methods, horizon, levels, fill, quantiles=()) -> _Chunk:
     chunk = _Chunk()
     for task in tasks:
-        _run_task(task, methods, horizon, levels, fill, chunk)
+        _run_task(task, methods, horizon, levels, fill, chunk, quantiles)
     return chunk
 
 
@@ -282,10 +283,11 @@ def _execute(tasks, args, jobs: int, progress: Progress | None) -> list[_Chunk]:
     return results  # type: ignore[return-value]
 
 
-def _assemble(chunks: list[_Chunk], levels: Sequence[float]) -> pd.DataFrame:
+def _assemble(chunks: list[_Chunk], levels: Sequence[float], quantiles: Sequence[float] = ()) -> pd.DataFrame:
     names = ["model", "series", "origin", "t", "horizon", "forecast"]
     for level in levels:
         names += [f"lower_{format_level(level, LEVEL_DIGITS)}", f"upper_{format_level(level, LEVEL_DIGITS)}"]
+    names += [quantile_name(t) for t in quantiles]
     data = {}
     for name in names:
         parts = [a for c in chunks for a in c.columns.get(name, [])]
@@ -305,6 +307,7 @@ def backtest(
     horizon: int,
     m: int | dict,
     levels: Sequence[float] = (80, 95),
+    quantiles: Sequence[float] = (),
     holdout: int | None = None,
     origins: tuple[int, int, int] | None = None,
     jobs: int | None = None,
@@ -321,7 +324,8 @@ def backtest(
     process as series finish. ``fill``: None (skip gapped origins) or a :data:`FillMethod`.
 
     Returns the forecasts (columns ``model`` = "ref-<method>", ``series``, ``origin``, ``t``,
-    ``horizon`` = t - origin, ``forecast``, ``lower_<L>``, ``upper_<L>``), sorted by model,
+    ``horizon`` = t - origin, ``forecast``, ``lower_<L>``, ``upper_<L>``, ``q<NN>`` per level of
+    ``quantiles``), sorted by model,
     series, origin and horizon, and a list of data-quality notes (plain sentences naming the
     series and origins: gaps, too short, season length disagreement, skipped methods).
     """
@@ -332,8 +336,9 @@ def backtest(
         raise UnknownName(f"backtest: horizon={horizon!r} must be an integer >= 1")
     check_fill(fill)
     levels = check_levels(levels, command="backtest")
+    quantiles = check_quantiles(quantiles)
     tasks = _tasks(frame, m, holdout, origins)
     workers = max(1, min(int(jobs or os.cpu_count() or 1), max(1, len(tasks))))
-    chunks = _execute(tasks, (chosen, int(horizon), levels, fill), workers, progress)
+    chunks = _execute(tasks, (chosen, int(horizon), levels, fill, quantiles), workers, progress)
     notes = [note for chunk in chunks for note in chunk.notes]
-    return _assemble(chunks, levels), notes
+    return _assemble(chunks, levels, quantiles), notes

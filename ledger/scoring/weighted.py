@@ -62,10 +62,10 @@ def _weights(store: Store, sel: Selection, weight: str) -> tuple[pd.Series, str]
 
 
 def weighted_scores(store: Store, sel: Selection, by: Sequence[str], *, weight: str,
-                    where: Sequence[tuple[str, str]] = ()) -> pd.DataFrame:
+                    where: Sequence[tuple[str, str]] = (), quantile_detail: bool = False) -> pd.DataFrame:
     """:func:`ledger.scoring.cells.scores` plus weighted MAPE, bias %, MASE and RMSSE per group."""
     keys = [k.strip().lower() for k in by if k.strip()]
-    base = scores(store, sel, keys, where=where)
+    base = scores(store, sel, keys, where=where, quantile_detail=quantile_detail)
     per_series = scores(store, sel, keys if "series" in keys else keys + ["series"], where=where)
     w, label = _weights(store, sel, weight)
     per_series["_w"] = per_series["series"].map(w).fillna(0.0).to_numpy(dtype=float)

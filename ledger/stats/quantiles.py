@@ -24,7 +24,6 @@ import dataclasses
 
 import numpy as np
 import numpy.typing as npt
-from scipy import stats
 
 __all__ = [
     "WISParts",
@@ -38,6 +37,7 @@ __all__ = [
     "pit_bin_counts",
     "pit_uniformity",
     "quantile_binomial",
+    "binomial_band",
 ]
 
 FloatArray = npt.NDArray[np.float64]
@@ -230,6 +230,7 @@ def pit_uniformity(pit: npt.ArrayLike, *, taus: npt.ArrayLike) -> tuple[float, f
         return float("nan"), float("nan"), counts, widths
     expected = n * widths
     x2 = float(((counts - expected) ** 2 / expected).sum())
+    from scipy import stats   # on first use: scoring imports this module, and scipy slows start-up
     return x2, float(stats.chi2.sf(x2, widths.size - 1)), counts, widths
 
 
@@ -241,4 +242,22 @@ def quantile_binomial(below: int, n: int, *, tau: float) -> float:
     """
     if n == 0:
         return float("nan")
+    from scipy import stats
     return float(stats.binomtest(int(below), int(n), float(tau)).pvalue)
+
+
+def binomial_band(n: npt.ArrayLike, tau: npt.ArrayLike, *, level: float = 0.95) -> tuple[FloatArray, FloatArray]:
+    """Central ``level`` range of the share below a calibrated tau quantile out of n cells.
+
+    From the Binomial(n, tau) quantiles at (1 - level)/2 and (1 + level)/2, divided by n: where
+    the observed share of a reliability diagram falls ``level`` of the time when the quantile is
+    calibrated (a pointwise band, not a simultaneous one). NaN where n = 0.
+    """
+    from scipy import stats
+    n = np.asarray(n, dtype=float)
+    tau = np.asarray(tau, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        lo = stats.binom.ppf((1 - level) / 2, n, tau) / n
+        hi = stats.binom.ppf((1 + level) / 2, n, tau) / n
+    bad = n <= 0
+    return np.where(bad, np.nan, lo), np.where(bad, np.nan, hi)

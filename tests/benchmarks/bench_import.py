@@ -1,6 +1,8 @@
 """Benchmark: import a multi-GB forecast CSV and an actuals CSV; print time and peak memory.
 
     python tests/benchmarks/bench_import.py [--gb 2.5] [--keep DIR]
+    python tests/benchmarks/bench_import.py --case distinct-labels [--rows 4000000]
+    python tests/benchmarks/bench_import.py --case many-runs [--runs 8000]
 
 Writes (or, with --keep DIR, reuses) a synthetic monthly forecast file of about GB gigabytes —
 models × origins × series × 12 horizons, a point and 80% / 95% bounds per row (invented data) —
@@ -8,6 +10,11 @@ and an actuals file for the same series, then runs ``backsight actuals`` and ``b
 snapshot`` on a new ledger, each in a fresh process, and prints each one's wall time, rows per
 second and peak resident memory (the child's own ru_maxrss).
 Target (issue 7): peak RSS under 2 GB however large the file, because imports stream.
+
+``--case distinct-labels``: an actuals file whose every row has its own period label (daily
+dates with a time of day that names the series: 1,000 series × ROWS/1,000 days); target (issue
+16): peak RSS under 1.5 GB for 4M rows. ``--case many-runs``: a back-fill file of RUNS one-row
+runs (one model, daily origins); target (issue 16): under 10 s for 8,000 runs.
 """
 
 from __future__ import annotations
@@ -83,11 +90,51 @@ def _run(ledger: Path, *args: str) -> tuple[float, int]:
     return seconds, int(child.stderr.strip().splitlines()[-1])
 
 
+def distinct_labels(folder: Path, rows: int) -> None:
+    """Actuals whose every row has a distinct period label (invented data)."""
+    path = folder / "distinct-labels.csv"
+    days = rows // 1000
+    start = np.datetime64("1990-01-01")
+    with open(path, "w") as fh:
+        fh.write("series,period,actual\n")
+        for d in range(days):
+            day = str(start + d)
+            fh.write("".join(f"s{k},{day} {k // 3600:02d}:{k // 60 % 60:02d}:{k % 60:02d},{(d * 7 + k) % 97}\n"
+                             for k in range(1000)))
+    ledger = folder / "labels.duckdb"
+    ledger.unlink(missing_ok=True)
+    seconds, rss = _run(ledger, "actuals", str(path), "--freq", "daily")
+    print(f"distinct labels: {days * 1000:,} rows, {days * 1000:,} distinct labels: backsight actuals {seconds:.1f} s, "
+          f"peak RSS {rss:,} MB (target: under 1,536 MB)", flush=True)
+
+
+def many_runs(folder: Path, runs: int) -> None:
+    """A back-fill file of ``runs`` one-row runs (invented data)."""
+    path = folder / "many-runs.csv"
+    start = np.datetime64("1990-01-01")
+    with open(path, "w") as fh:
+        fh.write("series,period,forecast,model,origin\n")
+        fh.write("".join(f"s{i % 50},{start + i + 1},{i}.5,m,{start + i}\n" for i in range(runs)))
+    ledger = folder / "runs.duckdb"
+    ledger.unlink(missing_ok=True)
+    seconds, rss = _run(ledger, "snapshot", str(path), "--freq", "daily")
+    print(f"many runs: {runs:,} one-row runs in one back-fill file: backsight snapshot {seconds:.1f} s "
+          f"({1000 * seconds / runs:.2f} ms per run; target: 8,000 runs in 10 s), peak RSS {rss:,} MB", flush=True)
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--gb", type=float, default=2.5, help="size of the forecast file (default 2.5)")
     parser.add_argument("--keep", type=Path, default=None, help="write the files in this folder and reuse them")
+    parser.add_argument("--case", choices=["big-file", "distinct-labels", "many-runs"], default="big-file")
+    parser.add_argument("--rows", type=int, default=4_000_000, help="rows of the distinct-labels case")
+    parser.add_argument("--runs", type=int, default=8_000, help="runs of the many-runs case")
     args = parser.parse_args()
+    if args.case != "big-file":
+        folder = args.keep or Path(tempfile.mkdtemp(prefix="bench-import-"))
+        folder.mkdir(parents=True, exist_ok=True)
+        distinct_labels(folder, args.rows) if args.case == "distinct-labels" else many_runs(folder, args.runs)
+        return
 
     folder = args.keep or Path(tempfile.mkdtemp(prefix="bench-import-"))
     folder.mkdir(parents=True, exist_ok=True)

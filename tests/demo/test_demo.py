@@ -89,6 +89,9 @@ def test_planted_problems_are_found(demo):
     assert len(_named(too_high)) >= 12                                  # the optimistic bias
     value = f[(f["kind"] == "value") & (f["model"] == "planner-override") & (f["series"] == "")]
     assert len(value) == 1 and value["evidence"].iloc[0].startswith("no value added over seasonal-naive")
+    quant = f[f["kind"] == "quantiles"]                                 # the challenger's thin-tailed quantiles
+    assert quant["model"].tolist() == ["challenger-damped"]
+    assert quant["check"].iloc[0] == "too narrow (over-confident)" and "PIT histogram not uniform" in quant["evidence"].iloc[0]
 
 
 def test_top_findings_name_the_planted_stories_and_stay_few(demo):
@@ -122,6 +125,8 @@ def test_nothing_unexplained(demo):
             ok = True                                                   # planted: too-narrow bands
         elif row.model == "planner-override":
             ok = True                                                   # planted: optimistic override
+        elif row.kind == "quantiles":
+            ok = row.model == "challenger-damped"                       # planted: over-confident tail quantiles
         elif row.series in planted_series:
             ok = True                                                   # every model meets the coast shift
         elif row.kind == "calibration" and row.series == "":

@@ -268,3 +268,14 @@ def test_manifest_out_of_order_is_refused(tmp_path):
     (history / "manifest.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
     with pytest.raises(LedgerError, match="step 2: arrived 2023-01-03T08:00:00 is not after step 1"):
         read_manifest(history)
+
+
+def test_challenger_quantiles_are_its_normal_quantiles_with_planted_thin_tails():
+    # q25/q50/q75 are its normal predictive quantiles: point + Phi^-1(tau) sd, with sd read back
+    # from its 80% bound (z = 1.2816); the tails sit at 1.0 and 1.15 sd (planted, README).
+    run = pd.read_csv(HISTORY / "runs" / "challenger-damped" / "2024-06.csv")
+    run = run[run["lower_95"] > 0]                                      # no flooring at 0
+    sd = (run["upper_80"] - run["forecast"]) / 1.2815515655446004
+    for col, z in (("q25", -0.6745), ("q50", 0.0), ("q75", 0.6745), ("q10", -1.0), ("q95", 1.15)):
+        np.testing.assert_allclose(run[col], run["forecast"] + z * sd, atol=0.1 + 0.0005 * sd.max())
+    assert len(run) > 100

@@ -285,8 +285,8 @@ def test_flags_frame_columns_and_bad_options(value_ledger):
     found = value_ledger.flags(kinds=["value", "drift"])
     assert tuple(found.columns) == FINDING_COLUMNS
     assert list(FINDING_COLUMNS[:8]) == ["kind", "series", "model", "horizon", "level", "since", "figure", "evidence"]
-    assert found["kind"].tolist() == sorted(found["kind"], key=["drift", "calibration", "value", "data"].index)
-    with pytest.raises(UnknownName, match="unknown kind bias; use drift, calibration, value, data"):
+    assert found["kind"].tolist() == sorted(found["kind"], key=["drift", "calibration", "quantiles", "value", "data"].index)
+    with pytest.raises(UnknownName, match="unknown kind bias; use drift, calibration, quantiles, value, data"):
         value_ledger.flags(kinds=["bias"])
     with pytest.raises(UnknownName, match="unknown threshold drift_limit; known thresholds: drift_k, drift_h"):
         value_ledger.flags(drift_limit=4)

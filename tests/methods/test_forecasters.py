@@ -324,7 +324,7 @@ def test_no_look_ahead_spy_sees_only_t_up_to_origin(monkeypatch):
     clean = _history(n=50, series=("A",))
     seen = []
 
-    def spy(y, *, method, h, m, levels):
+    def spy(y, *, method, h, m, levels, quantiles=()):
         seen.append((method, y.copy()))
         return {"forecast": np.zeros(h), **{f"{s}_{format_level(L)}": np.zeros(h) for L in levels for s in ("lower", "upper")}}
 

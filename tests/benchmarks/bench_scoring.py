@@ -66,6 +66,7 @@ def build_files(folder: Path, cells: int, models: int, horizons: int, seed: int 
             idx = targets - months[0]
             point = np.repeat(level, horizons) * (1 + 0.05 * rng.standard_normal(n_series * horizons))
             width = 0.15 * np.repeat(level, horizons)
+            wide = width * 1.96 / 1.2816  # the 95% bounds of the same normal as the 80% ones
             parts.append(pd.DataFrame({
                 "model": f"model-{mi}",
                 "origin": labels[origin - months[0]],
@@ -74,6 +75,8 @@ def build_files(folder: Path, cells: int, models: int, horizons: int, seed: int 
                 "forecast": point.round(2),
                 "lower_80": (point - width).round(2),
                 "upper_80": (point + width).round(2),
+                "lower_95": (point - wide).round(2),
+                "upper_95": (point + wide).round(2),
             }))
             for k in range(1, quantiles + 1):
                 tau = k / (quantiles + 1)

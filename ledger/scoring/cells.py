@@ -263,11 +263,6 @@ _LEVEL_AGG = """
         + (2 / (1 - b.level / 100)) * greatest(c.actual - b.upper, 0)) / c.q) AS msis
 """
 
-_PINBALL_AGG = """
-    avg(CASE WHEN c.actual >= qt.value THEN qt.tau * (c.actual - qt.value)
-             ELSE (1 - qt.tau) * (qt.value - c.actual) END) AS pinball
-"""
-
 _KEY_SQL = {"series": "c.series", "model": "c.model", "horizon": "c.horizon",
             "origin": "c.origin", "period": "c.period"}
 
@@ -344,11 +339,9 @@ def _aggregates(con, keys: list[str], quantile_detail: bool) -> tuple:
         # bounds alone: no pinball, no quantile detail, and WIS in one grouping of the bounds
         wis = con.execute(interval_wis_group_sql("_scored", select_keys, group)).df()
         return point, levels, pd.DataFrame(), wis, None
-    pinball = con.execute(
-        f"SELECT {select_keys + ',' if keys else ''} {_PINBALL_AGG} FROM _scored c "
-        f"JOIN quantiles qt ON qt.run_id = c.run_id AND qt.series = c.series AND qt.period_index = c.period_index "
-        f"{gb}").df()
+    # pinball comes with the WIS, from the same join of the cells to their quantile rows
     wis = con.execute(wis_group_sql("_scored", select_keys, group)).df()
+    pinball, wis = wis[keys + ["pinball"]], wis.drop(columns="pinball")
     detail = con.execute(quantile_detail_sql("_scored", select_keys, group)).df() if quantile_detail else None
     return point, levels, pinball, wis, detail
 

@@ -20,6 +20,7 @@ from .intake.ingest import read_actuals, read_forecasts
 from .integrity import Problem, verify
 from .periods import period_label
 from .intake.record import ActualsResult, SnapshotResult, write_actuals, write_runs
+from .scoring.events import EventsResult, events_in_force, write_events
 from .methods.recorded import run_backtest
 from .scoring import reads
 from .scoring.cells import Selection, interval_cells, score_cells, scores
@@ -113,32 +114,36 @@ class Ledger:
 
     def selection(self, *, as_of=None, models: Sequence[str] = (), series: Sequence[str] = (),
                   horizons: Sequence[int] = (), since: str | None = None,
-                  until: str | None = None, where: Sequence = ()) -> Selection:
+                  until: str | None = None, where: Sequence = (), include_excluded: bool = False) -> Selection:
         """The one definition of the filters every reading command takes, checked against the ledger.
 
         ``where``: "ATTR=VALUE" strings (or (attribute, value) pairs) that a cell's series must
         match. An unknown model, series, attribute (value) or horizon raises UnknownName with
-        the nearest known names (:mod:`ledger.scoring.selection`).
+        the nearest known names (:mod:`ledger.scoring.selection`). ``include_excluded`` puts back
+        the cells that excluding events leave out (:mod:`ledger.scoring.events`).
         """
         pairs = tuple(w if isinstance(w, tuple) else parse_where([w])[0] for w in where)
         sel = Selection(parse_as_of(as_of), tuple(models), tuple(series), tuple(int(h) for h in horizons),
-                        since, until, pairs)
+                        since, until, pairs, include_excluded)
         sel.params()  # a bad --since / --until is reported before any name
         return check_selection(self.store, sel)
 
     def scores(self, *, by: Sequence[str] = ("model", "horizon"), as_of=None,
                models: Sequence[str] = (), series: Sequence[str] = (), horizons: Sequence[int] = (),
                since: str | None = None, until: str | None = None, where: Sequence[str] = (),
-               weight: str | None = None, quantile_detail: bool = False) -> pd.DataFrame:
+               weight: str | None = None, quantile_detail: bool = False,
+               include_excluded: bool = False) -> pd.DataFrame:
         """Accuracy metrics per group of cells (columns as in the README's Definitions).
 
         ``by`` takes series, model, horizon, origin, period and any attribute name; ``where``
         takes "ATTR=VALUE" filters; ``weight`` ("volume" or a numeric attribute) adds the
         weighted columns of :mod:`ledger.scoring.weighted`; ``quantile_detail`` adds below_qNN
-        and pinball_qNN per quantile level.
+        and pinball_qNN per quantile level. Cells of excluding events are left out (counted in
+        ``n_excluded``) unless ``include_excluded``.
         """
         sel = self.selection(as_of=as_of, models=models, series=series, horizons=horizons,
-                             since=since, until=until, where=where)
+                             since=since, until=until, where=where,
+                             include_excluded=include_excluded)
         if weight is not None:
             return weighted_scores(self.store, sel, by, weight=weight, quantile_detail=quantile_detail)
         return scores(self.store, sel, by, quantile_detail=quantile_detail)
@@ -157,6 +162,14 @@ class Ledger:
     def record_attributes(self, data, *, name: str | None = None, total_of: str | None = None) -> AttributesResult:
         """Record series attributes (a changed value becomes a new version); see :mod:`ledger.scoring.attributes`."""
         return write_attributes(self.store, data, name=name, total_of=total_of)
+
+    def record_events(self, data, *, name: str | None = None) -> EventsResult:
+        """Record events (series, first, last, label, exclude); see :mod:`ledger.scoring.events`."""
+        return write_events(self.store, data, name=name)
+
+    def events(self, *, as_of=None) -> pd.DataFrame:
+        """The events in force at the as-of, one row per event."""
+        return events_in_force(self.store, parse_as_of(as_of))
 
     def attributes(self, *, as_of=None) -> pd.DataFrame:
         """One row per series with the attributes in force at the as-of."""
@@ -263,7 +276,8 @@ class Ledger:
 
     def flags(self, *, kinds: Sequence[str] = KINDS, severities: Sequence[str] = (), models: Sequence[str] = (),
               series: Sequence[str] = (), horizons: Sequence[int] = (), since: str | None = None,
-              until: str | None = None, where: Sequence = (), as_of=None, **thresholds) -> pd.DataFrame:
+              until: str | None = None, where: Sequence = (), as_of=None, include_excluded: bool = False,
+              **thresholds) -> pd.DataFrame:
         """Drift, calibration, value-added and data-quality findings, one row per finding.
 
         Columns: kind, series, model, horizon, level, since, figure, evidence, check, severity,
@@ -275,7 +289,7 @@ class Ledger:
         ``drift_h=5.5``, ``fdr=0.05``, ``benchmark="ref-snaive"``), each with its stated default.
         """
         sel = self.selection(as_of=as_of, models=models, series=series, horizons=horizons, since=since,
-                             until=until, where=where)
+                             until=until, where=where, include_excluded=include_excluded)
         frame = _flags().flags(self.store, sel, kinds=kinds, **thresholds)
         return keep_findings(self.store, sel, frame, severities)
 
@@ -310,6 +324,47 @@ class Ledger:
         sel = self.selection(as_of=as_of, series=series, horizons=horizons, since=since, until=until, where=where)
         return _standings().advise(self.store, sel, incumbent, challengers=challengers,
                                    window=window, horizons=horizons, alpha=alpha)
+
+    def review(self, inbox, *, include_excluded: bool = False, **thresholds):
+        """Record an inbox's new files, run the findings and store the review (one transaction).
+
+        Returns a :class:`ledger.cycle.review.ReviewResult`; a bad file raises ReviewRefused
+        listing every problem, with nothing written. ``thresholds`` as for :meth:`flags`.
+        """
+        from .cycle.review import review
+
+        return review(self.store, inbox, include_excluded=include_excluded, **thresholds)
+
+    def reviews(self) -> pd.DataFrame:
+        """Every stored review: number, as-of, state hash, inbox, files, runs and actuals recorded, findings."""
+        from .cycle.changes import review_list
+
+        return review_list(self.store)
+
+    def changes(self, *, since_review: int | None = None, mase_change: float | None = None, as_of=None):
+        """The latest review against review ``since_review`` (default the one before): a
+        :class:`ledger.cycle.changes.Changes` with findings new/resolved/persisting and models' MASE moves."""
+        from .cycle.changes import DEFAULT_MASE_CHANGE, changes
+
+        return changes(self.store, since_review=since_review,
+                       mase_change=DEFAULT_MASE_CHANGE if mase_change is None else mase_change,
+                       as_of=parse_as_of(as_of))
+
+    def stability(self, *, by: Sequence[str] = ("series", "model"), as_of=None, models: Sequence[str] = (),
+                  series: Sequence[str] = (), since: str | None = None, until: str | None = None) -> pd.DataFrame:
+        """Forecast stability per group: scaled revision, share toward the actual, nervousness
+        (definitions in :mod:`ledger.scoring.stability`); ``by`` takes series, model, horizon, attributes."""
+        from .scoring.stability import stability
+
+        sel = self.selection(as_of=as_of, models=models, series=series, since=since, until=until)
+        return stability(self.store, sel, by)
+
+    def forecast_paths(self, *, last: int = 4, as_of=None, models: Sequence[str] = (),
+                       series: Sequence[str] = ()) -> pd.DataFrame:
+        """The successive forecasts of each series × model's ``last`` newest target periods with two runs or more."""
+        from .scoring.stability import forecast_paths
+
+        return forecast_paths(self.store, self.selection(as_of=as_of, models=models, series=series), last=last)
 
     def set_incumbent(self, model: str) -> None:
         """Store ``model`` as the incumbent (ledger setting "incumbent"), used by :meth:`advise`."""

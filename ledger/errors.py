@@ -23,6 +23,7 @@ __all__ = [
     "LedgerBusy",
     "GapInHistory",
     "MethodNotApplicable",
+    "ReviewRefused",
     "PeriodOutOfRange",
     "describe_os_error",
 ]
@@ -136,3 +137,7 @@ def describe_os_error(exc: BaseException) -> str | None:
     if fix is None:
         return f"{where}: {os.strerror(code)}"
     return fix.format(path=where)
+
+
+class ReviewRefused(LedgerError):
+    """A file of a review's inbox is bad: the review wrote nothing; the message lists every problem."""

@@ -14,7 +14,7 @@ import pandas as pd
 
 from .hashing import chain_hash_sql, run_content_hash, run_rows, write_hash_sql
 
-__all__ = ["ACTUALS_DDL", "ATTRIBUTES_DDL", "ACTUAL_WRITES_DDL", "MIGRATIONS", "UNVERIFIED", "v1_run_hash"]
+__all__ = ["ACTUALS_DDL", "ATTRIBUTES_DDL", "ACTUAL_WRITES_DDL", "CYCLE_DDL", "MIGRATIONS", "UNVERIFIED", "v1_run_hash"]
 
 ATTRIBUTES_DDL = """
 -- A row per version of one attribute of one series. A changed value appends a row; the value
@@ -50,6 +50,62 @@ CREATE TABLE actuals (
     recorded_at  TIMESTAMP NOT NULL,
     source       VARCHAR,
     chain_hash   VARCHAR NOT NULL  -- this revision's hash, chained to the previous one's (hashing.py)
+);
+"""
+
+CYCLE_DDL = """
+-- A row per version of one event: a span of target periods [first_day, end_day) of the series
+-- that `target` names (a series key, '*' for all, or 'ATTR=VALUE' matched against the
+-- attributes in force). An event's identity is (target, first_day, end_day); a changed label or
+-- exclude flag appends a version, and the version in force at an as-of is the newest recorded
+-- at or before it. exclude = TRUE leaves the event's cells out of scores and findings.
+CREATE TABLE events (
+    target      VARCHAR NOT NULL,
+    first_day   DATE NOT NULL,
+    end_day     DATE NOT NULL,
+    first_label VARCHAR NOT NULL,
+    last_label  VARCHAR NOT NULL,
+    label       VARCHAR NOT NULL,
+    exclude     BOOLEAN NOT NULL,
+    recorded_at TIMESTAMP NOT NULL,
+    source      VARCHAR
+);
+
+-- A row per stored review (backsight review): what the ledger held (as_of, state_hash) and
+-- what the review recorded from its inbox.
+CREATE TABLE reviews (
+    review_id   INTEGER PRIMARY KEY,
+    as_of       TIMESTAMP NOT NULL,
+    state_hash  VARCHAR NOT NULL,
+    inbox       VARCHAR NOT NULL,
+    files       INTEGER NOT NULL,
+    runs_new    INTEGER NOT NULL,
+    actuals_new INTEGER NOT NULL
+);
+
+-- A row per finding of a review; finding_key is the finding's identity across re-runs
+-- (kind, model, series, level), not its wording.
+CREATE TABLE review_findings (
+    review_id   INTEGER NOT NULL,
+    position    INTEGER NOT NULL,   -- the finding's place in the review's list (kind, severity order)
+    finding_key VARCHAR NOT NULL,
+    kind        VARCHAR NOT NULL,
+    model       VARCHAR NOT NULL,
+    series      VARCHAR NOT NULL,
+    level       DOUBLE,
+    severity    VARCHAR NOT NULL,
+    since       VARCHAR NOT NULL,
+    figure      DOUBLE,
+    evidence    VARCHAR NOT NULL
+);
+
+-- A row per model and review: its recent MASE (last `periods` target periods) and cells used.
+CREATE TABLE review_models (
+    review_id INTEGER NOT NULL,
+    model     VARCHAR NOT NULL,
+    mase      DOUBLE,
+    n         BIGINT NOT NULL,
+    periods   INTEGER NOT NULL
 );
 """
 
@@ -120,4 +176,9 @@ def v1_run_hash(model: str, frequency: str, origin_index: int, part: pd.DataFram
     return digest.hexdigest()
 
 
-MIGRATIONS: dict[int, Callable] = {1: _to_attributes, 2: _to_injective_hashes}
+def _to_cycle(con) -> None:
+    """Version 4: events and stored reviews (issue 19)."""
+    con.execute(CYCLE_DDL)
+
+
+MIGRATIONS: dict[int, Callable] = {1: _to_attributes, 2: _to_injective_hashes, 3: _to_cycle}

@@ -183,7 +183,13 @@ def _index_start(index: int, freq: str) -> dt.date:
 
 
 def period_label(day: dt.date, freq: str) -> str:
-    """The canonical label of the period containing ``day``: 2026, 2026Q3, 2026-11, 2026-W05, 2026-11-30."""
+    """The canonical label of the period containing ``day``: 2026, 2026Q3, 2026-11, 2026-W05, 2026-11-30.
+
+    ``day`` may be a datetime (a pandas Timestamp from a query): its time of day is not part of a
+    period, so every message prints the same label (a daily origin 2021-01-02, never 2021-01-02T00:00:00).
+    """
+    if isinstance(day, dt.datetime):
+        day = day.date()
     start = period_start(day, freq)
     if freq == "yearly":
         return f"{start.year}"

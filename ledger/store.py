@@ -21,7 +21,7 @@ import pandas as pd
 
 from .version import __version__
 from .errors import LedgerBusy, LedgerError, NotALedger, SchemaTooNew, SchemaTooOld, describe_os_error
-from .migrations import ACTUAL_WRITES_DDL, ACTUALS_DDL, ATTRIBUTES_DDL, MIGRATIONS
+from .migrations import ACTUAL_WRITES_DDL, ACTUALS_DDL, ATTRIBUTES_DDL, CYCLE_DDL, MIGRATIONS
 
 __all__ = [
     "SCHEMA_VERSION",
@@ -41,7 +41,9 @@ __all__ = [
 #   3 — injective content hashes: runs re-hashed with a length-prefixed canonical form (the
 #       version-1 form joined names with a separator byte that a name could hold); actuals get
 #       chain_hash per revision and actual_writes a row per write (see hashing.py).
-SCHEMA_VERSION = 3
+#   4 — events (versioned, optionally excluding cells from scoring) and stored reviews:
+#       reviews, review_findings, review_models (issue 19).
+SCHEMA_VERSION = 4
 
 DDL = """
 -- Facts about the file itself: schema_version, created_at, writer_version, and settings
@@ -106,9 +108,10 @@ CREATE TABLE quantiles (
     tau          DOUBLE NOT NULL,
     value        DOUBLE NOT NULL
 );
-""" + ACTUALS_DDL + ATTRIBUTES_DDL + ACTUAL_WRITES_DDL
+""" + ACTUALS_DDL + ATTRIBUTES_DDL + ACTUAL_WRITES_DDL + CYCLE_DDL
 
-TABLES = ("meta", "series", "runs", "forecasts", "bounds", "quantiles", "actuals", "attributes", "actual_writes")
+TABLES = ("meta", "series", "runs", "forecasts", "bounds", "quantiles", "actuals", "attributes", "actual_writes",
+          "events", "reviews", "review_findings", "review_models")
 
 
 def utc_now() -> dt.datetime:
@@ -188,6 +191,7 @@ class Store:
         self.migrated: tuple[int, Path] | None = None  # (old version, backup copy) when migrated on open
         # Where write times come from; the demo replays history with the files' arrival times.
         self.clock = utc_now
+        self._depth = 0  # nesting of transaction() blocks; only the outermost commits
 
     @classmethod
     def open(cls, path: str | os.PathLike, *, create: bool = True, read_only: bool = False,
@@ -273,8 +277,20 @@ class Store:
 
     @contextlib.contextmanager
     def transaction(self) -> Iterator[duckdb.DuckDBPyConnection]:
-        """All or nothing: commit when the block ends, roll back on any exception."""
+        """All or nothing: commit when the block ends, roll back on any exception.
+
+        A block inside another joins it (a review writes many files in one transaction): only
+        the outermost block commits, and an exception that leaves it rolls everything back.
+        """
+        if self._depth:
+            self._depth += 1
+            try:
+                yield self.con
+            finally:
+                self._depth -= 1
+            return
         self.con.execute("BEGIN TRANSACTION")
+        self._depth = 1
         try:
             yield self.con
         except BaseException:
@@ -282,6 +298,8 @@ class Store:
             with contextlib.suppress(duckdb.Error):
                 self.con.execute("ROLLBACK")
             raise
+        finally:
+            self._depth = 0
         self.con.execute("COMMIT")
 
     def get_setting(self, key: str) -> str | None:
@@ -297,7 +315,7 @@ class Store:
         """Now, or just after the newest recorded time, so that as-of order is strict."""
         row = self.con.execute(
             "SELECT max(t) FROM (SELECT max(recorded_at) t FROM runs UNION ALL "
-            "SELECT max(recorded_at) FROM actuals)"
+            "SELECT max(recorded_at) FROM actuals UNION ALL SELECT max(recorded_at) FROM events)"
         ).fetchall()[0]
         now = self.clock()
         if row[0] is not None and row[0] >= now:
@@ -319,6 +337,12 @@ class Store:
             digest.update(h.encode())
         digest.update(b"\x00actuals\x00")
         _hash_frame(digest, acts)
+        events = self.con.execute(
+            "SELECT target, first_day, end_day, label, exclude FROM events WHERE recorded_at <= $as_of "
+            "ORDER BY ALL", {"as_of": as_of}).df()
+        if len(events):  # events change the scores; a ledger without any keeps its earlier hash
+            digest.update(b"\x00events\x00")
+            _hash_frame(digest, events.astype(str))
         return digest.hexdigest()
 
     def table_hash(self, table: str) -> str:

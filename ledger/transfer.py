@@ -192,7 +192,9 @@ def _flat_format(src: Path) -> tuple[str, dict[str, int] | None]:
         raise LedgerError(f"{src} holds more than one export: {shown}; move one of them to another folder "
                           "and import again")
     if not sets:
-        missing = [f"{t}.parquet" for t in TABLES if not (src / f"{t}.parquet").exists()]
+        # Name what is missing of the export that is there (the format with more of its files).
+        fmt = max(("parquet", "csv"), key=lambda f: sum((src / f"{t}.{f}").exists() for t in TABLES))
+        missing = [f"{t}.{fmt}" for t in TABLES if not (src / f"{t}.{fmt}").exists()]
         raise LedgerError(f"{src} does not hold a complete export (missing {', '.join(missing)})")
     fmt = next(iter(sets))
     if not (src / MANIFEST_NAME).is_file():

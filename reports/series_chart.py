@@ -15,6 +15,7 @@ from collections.abc import Mapping, Sequence
 import matplotlib
 import numpy as np
 from matplotlib.font_manager import FontProperties
+from matplotlib.collections import PolyCollection
 from matplotlib.patches import Polygon
 from matplotlib.ticker import Formatter, Locator, MaxNLocator, NullFormatter, NullLocator
 from matplotlib.transforms import ScaledTranslation
@@ -39,7 +40,8 @@ class Fan:
 def series_chart(chart_id: str, title: str, summary: str, *, x: Sequence[float], labels: Sequence[str],
                  actual: Sequence[float], forecasts: Mapping[str, Sequence[float]],
                  errors: Mapping[str, Sequence[float]], fan: Fan | None, styles: Mapping[str, dict],
-                 horizon: int, unit: str = "units of the series", season: int = 1) -> Chart:
+                 horizon: int, unit: str = "units of the series", season: int = 1,
+                 spans: Sequence[tuple[float, float]] = ()) -> Chart:
     """Top: actuals, each model's h-step forecasts and the latest run's fan. Bottom: errors.
 
     All arrays are aligned on ``x`` (one slot per period, NaN where there is no value), so a
@@ -52,7 +54,7 @@ def series_chart(chart_id: str, title: str, summary: str, *, x: Sequence[float],
            tuple(sorted(styles[fan.model].items(), key=str)) if fan is not None else ())
     canvas = _canvas(key, title, unit, horizon, list(forecasts), styles, fan.model if fan else None, levels)
     with matplotlib.rc_context(RC):
-        canvas.update(np.asarray(x, dtype=float), labels, actual, forecasts, errors, fan, season)
+        canvas.update(np.asarray(x, dtype=float), labels, actual, forecasts, errors, fan, season, spans)
         return render(canvas.fig, chart_id, title, summary)
 
 
@@ -165,6 +167,10 @@ class _SeriesCanvas:
                                       label=f"{short(fan_model)}, latest run")
             self.origin = top.axvline(0, color=BAND, linewidth=0.8, linestyle=(0, (1, 2)))
         self.actual, = top.plot([], [], color=INK, linewidth=1.9, label="actual")
+        # event spans: x in data, y over the axes' height; hidden (and so not written) when none
+        self.spans = top.add_collection(PolyCollection([], facecolor=BAND, alpha=0.2, linewidth=0, zorder=0.4,
+                                                       transform=top.get_xaxis_transform()), autolim=False)
+        self.spans.set_visible(False)
         self.lines, self.errors = {}, {}
         for model in models:
             st = styles[model]
@@ -198,8 +204,10 @@ class _SeriesCanvas:
             for artist in [*ax.lines, *ax.patches]:
                 artist.set_clip_on(False)
 
-    def update(self, xs, labels, actual, forecasts, errors, fan: Fan | None, season: int) -> None:
+    def update(self, xs, labels, actual, forecasts, errors, fan: Fan | None, season: int, spans=()) -> None:
         top_x, top_y, bottom_x, bottom_y = [], [], [], [np.zeros(1)]
+        self.spans.set_verts([[(a - 0.5, 0), (b + 0.5, 0), (b + 0.5, 1), (a - 0.5, 1)] for a, b in spans])
+        self.spans.set_visible(bool(len(spans)))
         self.actual.set_data(xs, actual)
         _extent(top_x, top_y, xs, actual)
         for model, line in self.lines.items():

@@ -76,6 +76,7 @@ class SeriesInput:
     metrics: list[SeriesMetric]
     findings: list             # FindingRow
     with_chart: bool = True
+    cycle: object = None       # reports.cycle_views.SeriesCycle: events and forecast paths, or None
 
 
 @dataclasses.dataclass(frozen=True)
@@ -183,7 +184,15 @@ def _chart(inp: SeriesInput, fan_model: str | None, fan_rows: Columns, levels: l
         "c-series", title, _chart_summary(inp, slots, actual, order, fan, levels),
         x=slots, labels=[label(i, freq) for i in slots], actual=actual,
         forecasts={m: forecasts[m] for m in order}, errors={m: errors[m] for m in order},
-        fan=fan, styles=inp.styles, horizon=h, season=inp.season_length)
+        fan=fan, styles=inp.styles, horizon=h, season=inp.season_length, spans=_event_spans(inp, slots))
+
+
+def _event_spans(inp: SeriesInput, slots: np.ndarray) -> list[tuple[float, float]]:
+    """The series' events (reports.cycle_views.SeriesCycle) clipped to the chart's periods."""
+    if inp.cycle is None or not len(slots):
+        return []
+    lo, hi = int(slots[0]), int(slots[-1])
+    return [(max(a, lo), min(b, hi)) for a, b, _, _ in inp.cycle.events if b >= lo and a <= hi]
 
 
 def _aligned(slots: np.ndarray, idx: np.ndarray, values: np.ndarray) -> np.ndarray:

@@ -28,6 +28,7 @@ from ledger.store import parse_as_of, utc_now
 from ledger.wording import format_level
 
 from . import charts
+from .cycle_views import CycleData, SeriesCycle, build_series_cycle, load_cycle
 from .data import LedgerData, check_roles, findings_job, load, quiet, report_models, series_count
 from .trends import ROLLING
 from .value_added import SEASONAL_NAIVE_NAMES, check_overrides
@@ -123,14 +124,15 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
         groups = load_groups(book, group_by, as_of=stamp, since=since, until=until) if group_by else None
         quantiles = load_quantile_data(book, as_of=stamp, since=since, until=until)
         ctx = build_context(core, title or "Forecast accuracy report")
-        inputs = series_inputs(core, ctx)
+        cycle = load_cycle(book, stamp, core.models, core.series, ctx.styles, _fan_preference(core))
+        inputs = series_inputs(core, ctx, cycle=cycle.series)
         nav = {"groups_page": GROUPS_PAGE if groups is not None else None}
         pages = [pool.submit(series_pages_chunk, inputs[i:i + _CHUNK], ctx, nav) for i in range(0, len(inputs), _CHUNK)]
         extra = 1 if groups is not None else 0
         tick = _ticker(progress, 4 + extra + len(core.models) + len(inputs))
         tick("computing findings", 0)
         data = dataclasses.replace(core, findings=found.result())
-        overview, rows = _write_fixed(data, ctx, out, tick, nav, quantiles)
+        overview, rows = _write_fixed(data, ctx, out, tick, nav, cycle, quantiles)
         if groups is not None:
             _write_groups(count_findings(book, groups, data.findings.flags, stamp), ctx, out, tick)
         _write_series(pages, data, ctx, out, tick)
@@ -141,11 +143,14 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
                         advice=overview.review.advice)
 
 
-def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict, quantiles: QuantileData | None = None):
+def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict, cycle: CycleData,
+                 quantiles: QuantileData | None = None):
     """Overview, findings, series index, methods and model pages (``nav``: optional navigation links;
+    ``cycle``: the changes block, events and stability charts of :mod:`reports.cycle_views`;
     ``quantiles``: the frames of the model pages' quantile sections)."""
     overview = build_overview(data, ctx)
-    write_page(out, "index.html", render_page("index.html", v=overview, ctx=ctx, page="index", **nav))
+    write_page(out, "index.html", render_page("index.html", v=overview, ctx=ctx, page="index",
+                                              changes=cycle.changes, **nav))
     tick("overview")
     rows = finding_rows(rank_flags(data.findings.flags), ctx)
     write_page(out, "findings.html", render_page("findings.html", rows=rows, ctx=ctx, page="findings", **nav))
@@ -153,12 +158,13 @@ def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict, qua
     write_page(out, "series.html", render_page("series_index.html", rows=build_series_index(data, ctx),
                                                ctx=ctx, page="series-index", **nav))
     tick("series index")
-    write_page(out, "methods.html", render_page("methods.html", ctx=ctx, page="methods", **method_constants(), **nav))
+    write_page(out, "methods.html", render_page("methods.html", ctx=ctx, page="methods", **method_constants(), events=cycle.events, **nav))
     tick("methods")
     for model in data.models:
         view = build_model(data, ctx, model)
         write_page(out, view.href, render_page("model.html", v=view, ctx=ctx, page=view.href,
-                                               quantiles=build_quantile_view(quantiles, model), **nav))
+                                               quantiles=build_quantile_view(quantiles, model),
+                                               stability=cycle.stability.get(model), **nav))
         tick(f"model {model}")
     return overview, rows
 
@@ -230,8 +236,10 @@ def _by_series(frame: pd.DataFrame, columns: list[str]) -> tuple[dict[str, Colum
     return {keys[a]: {c: v[a:b] for c, v in arrays.items()} for a, b in zip(starts, ends)}, empty
 
 
-def series_inputs(data: LedgerData, ctx: Context, *, with_chart: bool = True) -> list[SeriesInput]:
-    """One :class:`SeriesInput` per series, from one pass over each frame."""
+def series_inputs(data: LedgerData, ctx: Context, *, with_chart: bool = True,
+                  cycle: dict[str, SeriesCycle] | None = None) -> list[SeriesInput]:
+    """One :class:`SeriesInput` per series, from one pass over each frame (``cycle``: each series'
+    events and forecast paths, :func:`reports.cycle_views.load_cycle`)."""
     acts, _ = _by_series(data.actuals, ["period_index", "value"])
     cells, empty_cells = _by_series(data.cells, _CELL_COLUMNS)
     latest, empty_latest = _by_series(data.latest, [c for c in data.latest.columns if c != "series"])
@@ -256,7 +264,8 @@ def series_inputs(data: LedgerData, ctx: Context, *, with_chart: bool = True) ->
             actual_index=a["period_index"].astype("int64") if a is not None else _EMPTY_I,
             actual_value=a["value"].astype(float) if a is not None else _EMPTY_F,
             cells=cells.get(key, empty_cells), latest=latest.get(key, empty_latest),
-            metrics=metrics.get(key, []), findings=flags.get(key, []), with_chart=with_chart))
+            metrics=metrics.get(key, []), findings=flags.get(key, []), with_chart=with_chart,
+            cycle=(cycle or {}).get(key)))
     return out
 
 
@@ -284,8 +293,9 @@ def series_pages_chunk(inputs: list[SeriesInput], ctx: Context, nav: dict) -> li
     out = []
     for inp in inputs:
         view = build_series(inp)
+        extra = build_series_cycle(inp.cycle, inp.frequency, inp.styles) if inp.with_chart else None
         out.append((view.key, view.href, render_page("series.html", v=view, ctx=ctx, page=view.href,
-                                                     findings_slot=Markup(FINDINGS_SLOT), **nav)))
+                                                     findings_slot=Markup(FINDINGS_SLOT), cycle=extra, **nav)))
     return out
 
 

@@ -6,7 +6,7 @@ the imports is the order of ``backsight --help``.
 """
 
 from .common import app
-from . import records, admin, backtest, demo, findings, report  # noqa: E402,F401  (registers their commands)
+from . import records, admin, backtest, demo, findings, report, cycle  # noqa: E402,F401  (registers their commands)
 
 __all__ = ["app", "main"]
 

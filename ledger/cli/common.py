@@ -27,7 +27,7 @@ from ..version import __version__
 from ..api import DEFAULT_PATH, Ledger
 from ..errors import LedgerError, describe_os_error
 
-__all__ = ["app", "Format", "FormatOpt", "AsOfOpt", "FreqOpt", "open_ledger", "busy", "notice", "say", "emit", "split"]
+__all__ = ["app", "Format", "FormatOpt", "AsOfOpt", "FreqOpt", "IncludeExcludedOpt", "open_ledger", "busy", "notice", "say", "emit", "split"]
 
 EXIT_ERROR = 1
 
@@ -96,6 +96,7 @@ class Format(str, enum.Enum):
 
 FormatOpt = Annotated[Format, typer.Option("--format", metavar="FORMAT", help="table (for people), csv or json (full precision, stdout only).")]
 AsOfOpt = Annotated[str | None, typer.Option("--as-of", metavar="TIME", help="Score with what the ledger held at this time (ISO 8601; default now).")]
+IncludeExcludedOpt = Annotated[bool, typer.Option("--include-excluded", help="Put back the cells that events exclude from scoring.")]
 FreqOpt = Annotated[str | None, typer.Option("--freq", metavar="FREQ", help="yearly, quarterly, monthly, weekly or daily; needed when periods are bare dates of a new series.")]
 
 

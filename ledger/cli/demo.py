@@ -54,8 +54,8 @@ def summary_lines(result) -> list[str]:
     if top is not None and len(top):
         lines.append("Top findings:")
         for i, row in enumerate(top.itertuples(index=False), start=1):
-            where = " ".join(x for x in (row.model, row.series) if x) or "(all series)"
-            lines.append(f"  {i}. {row.kind} {where}: {row.evidence}")
+            where = "".join(f" {x}" for x in (row.model, row.series) if x)
+            lines.append(f"  {i}. {row.kind}{where}: {row.evidence}")
     ledger = f"--ledger {shlex.quote(str(r.ledger_path))}"
     lines += ["Try next:",
               f"  backsight {ledger} flags --severity act",

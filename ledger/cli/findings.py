@@ -17,6 +17,7 @@ from ..api import Ledger
 from .common import (
     AsOfOpt,
     Format,
+    IncludeExcludedOpt,
     FormatOpt,
     app,
     busy,
@@ -28,6 +29,7 @@ from .common import (
 from .filters import HorizonOpt, ModelOpt, SeriesOpt, SinceOpt, UntilOpt, WhereOpt, selection
 from .thresholds import with_thresholds
 from ..findings.summary import finding_counts
+from .cycle import FailOnOpt, check_fail_on, gate
 
 __all__ = ["flags", "compare", "standings", "advise"]
 
@@ -64,13 +66,19 @@ def flags(
     where: WhereOpt = None,
     by: Annotated[str | None, typer.Option("--by", metavar="ATTR", help="Count findings per value of this series attribute and kind.")] = None,
     long: Annotated[bool, typer.Option("--long", help="After the table, each finding's evidence as a sentence.")] = False,
+    include_excluded: IncludeExcludedOpt = False,
+    fail_on: FailOnOpt = None,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
     thresholds: dict | None = None,
 ) -> None:
     """Findings: drifting models, miscalibrated intervals, no value added, data problems."""
+    if fail_on is not None and by is not None:
+        raise typer.BadParameter("--fail-on needs the findings themselves; leave out --by", param_hint="--fail-on")
+    check_fail_on(fail_on)
     chosen = dict(selection(model=model, series=series, horizon=horizon, since=since, until=until, where=where),
-                  kinds=[k.value for k in kind or []], severities=[s.value for s in severity or []])
+                  kinds=[k.value for k in kind or []], severities=[s.value for s in severity or []],
+                  include_excluded=include_excluded)
     with open_ledger(ctx) as book, busy("Checking"):
         if by is not None:
             frame = book.flag_counts(by, as_of=as_of, **chosen, **thresholds)
@@ -81,18 +89,22 @@ def flags(
         return
     if fmt is not Format.table:
         emit(frame, fmt)
-        return
-    if frame.empty:
+    elif frame.empty:
         notice("no findings in the selection")
-        return
+    else:
+        _print_findings(frame, fmt, long)
+    gate(frame, fail_on)
+
+
+def _print_findings(frame, fmt: Format, long: bool) -> None:
     say(finding_counts(frame))
     table = frame[[c for c in _FLAG_TABLE if c in frame.columns]].copy()
     table.insert(0, "#", range(1, len(frame) + 1))
     emit(table, fmt, title="Findings (e = actual − forecast)")
     if long:
         for i, row in enumerate(frame.itertuples(index=False), start=1):
-            where_ = " ".join(x for x in (row.model, row.series) if x) or "(all series)"
-            say(f"{i}. {row.kind} {where_}: {row.evidence}")
+            where_ = "".join(f" {x}" for x in (row.model, row.series) if x)   # no empty name in the sentence
+            say(f"{i}. {row.kind}{where_}: {row.evidence}")
 
 
 @app.command()

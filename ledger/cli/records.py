@@ -9,6 +9,7 @@ import typer
 
 from .common import (
     AsOfOpt,
+    IncludeExcludedOpt,
     read_share,
     Format,
     FormatOpt,
@@ -21,6 +22,7 @@ from .common import (
     say,
 )
 from .columns import choose_columns
+from .engines import Engine, EngineOpt, LakeOpt, SparkMasterOpt, reading_ledger
 from .filters import HorizonOpt, ModelOpt, SeriesOpt, SinceOpt, UntilOpt, WhereOpt, selection
 from ..wording import plural
 from ..scoring.totals import INTERVAL_NOTE
@@ -79,14 +81,18 @@ def scores(
     weight: Annotated[str | None, typer.Option("--weight", metavar="ATTR", help="Add weighted MAPE, bias, MASE, RMSSE: 'volume' or a numeric attribute (× volume).")] = None,
     totals: Annotated[str | None, typer.Option("--totals", metavar="ATTR", help="Score each group's total (sum of members) instead of cells, per --by.")] = None,
     metrics: Annotated[str | None, typer.Option("--metrics", metavar="LIST", help="Columns to show: a comma list (e.g. rmse,smape,width_80) or 'all'. Default for the table: n, MAE, MAPE, MASE, bias %, the first coverage level; csv/json: all.")] = None,
+    include_excluded: IncludeExcludedOpt = False,
     quantile_detail: Annotated[bool, typer.Option("--quantile-detail", help="Add below_qNN (share of actuals below) and pinball_qNN per quantile level (csv and json show them; the table with --metrics).")] = False,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
+    engine: EngineOpt = Engine.duckdb,
+    lake: LakeOpt = None,
+    spark_master: SparkMasterOpt = None,
 ) -> None:
     """Accuracy per group: MAE, RMSE, MAPE, sMAPE, WAPE, MASE, RMSSE, bias, coverage, interval score, WIS."""
     keys = [k.strip().lower() for k in (by or ("model" if totals else "model,horizon")).split(",") if k.strip()]
     chosen = selection(model=model, series=series, horizon=horizon, since=since, until=until, where=where)
-    with open_ledger(ctx) as book, busy("Scoring"):
+    with reading_ledger(ctx, engine, lake, spark_master) as book, busy("Scoring"):
         if totals is not None:
             if chosen["series"]:
                 raise typer.BadParameter("a total has no series; use --where ATTR=VALUE to choose groups",
@@ -95,7 +101,8 @@ def scores(
             frame = book.totals(totals, by=keys, as_of=as_of, **chosen)
             keys = [totals] + [c for c in frame.columns[1:] if c in keys] + ["forecast_of"]
         else:
-            frame = book.scores(by=keys, as_of=as_of, weight=weight, quantile_detail=quantile_detail, **chosen)
+            frame = book.scores(by=keys, as_of=as_of, weight=weight, quantile_detail=quantile_detail,
+                                include_excluded=include_excluded, **chosen)
     if totals is not None:
         notice(f"totals by {totals}: {INTERVAL_NOTE}; target periods where a member lacks a forecast or an "
                "actual are left out (n_left_out)")

@@ -38,6 +38,13 @@ _QUOTE = re.compile(r"EOF inside string starting at row (\d+)")
 _NUL = "holds a NUL byte, so it is not a text CSV file (a workbook? export it as CSV)"
 
 
+# Files that are not text at all, by their first bytes (magic numbers), so that a compressed file
+# passed as CSV gets a sentence instead of binary bytes read as a column name.
+# (A workbook, a zip archive, is caught by its NUL bytes with a message of its own.)
+_PACKED = ((b"\x1f\x8b", "a gzip-compressed file"), (b"BZh", "a bzip2-compressed file"), (b"PAR1", "a Parquet file"))
+_UNPACK = {b"PAR1": "name it .parquet"}
+
+
 class _Text:
     """A file's text for pandas' parser, decoded and checked for NUL bytes block by block.
 
@@ -49,6 +56,10 @@ class _Text:
         self._file = open(path, "rb")
         self.source = source
         head = self._file.read(4)
+        for magic, what in _PACKED:
+            if head.startswith(magic):
+                self._file.close()
+                raise InputError(source, f"is {what}, not CSV text; {_UNPACK.get(magic, 'unpack it first and give the CSV inside')}")
         self.encoding, skip = "utf-8", 0
         for bom, encoding in _BOMS:
             if head.startswith(bom):
@@ -163,7 +174,7 @@ def _check_header(names: list[str], source: str) -> None:
     counts = Counter(n.strip().lstrip("\ufeff").strip().lower() for n in names)
     dupes = sorted(n for n, k in counts.items() if k > 1)
     if dupes:
-        shown = list_names([shorten(d) for d in dupes])
+        shown = list_names([shorten(d) if d else "(empty)" for d in dupes])
         raise InputError(source, f"the header names {shown} more than once (column names are case-insensitive)")
 
 

@@ -11,6 +11,7 @@ is checked there in SQL. Memory stays flat whatever the file's size.
 from __future__ import annotations
 
 import dataclasses
+import difflib
 import re
 
 import numpy as np
@@ -22,6 +23,7 @@ from .columns import bound_columns, is_level_column, misspelt_column, quantile_c
 from .keys import case_twins_warning, check_option, normalise_keys
 from ..errors import FrequencyError, InputError
 from ..periods import FREQUENCIES, check_frequency, parse_label
+from .problems import Problems, refuse
 from .sources import Chunk, open_table
 from .staging import Stage
 from ..store import Store
@@ -79,10 +81,12 @@ def _require(source: str, columns: list[str], required: tuple[str, ...]) -> None
     missing = [c for c in required if c not in columns]
     if missing:
         found = ", ".join(columns[:12]) + (" …" if len(columns) > 12 else "")
+        near = [f"{hit[0]} looks like {m}: rename it {m}" for m in missing
+                if (hit := difflib.get_close_matches(m, [c for c in columns if c not in required], n=1, cutoff=0.6))]
         raise InputError(
             source,
             f"missing required column {', '.join(missing)}; expected {', '.join(required)} "
-            f"(found {found})",
+            f"(found {found}){'; ' + '; '.join(near) if near else ''}",
         )
 
 
@@ -146,10 +150,10 @@ def _numbers(source: str, frame: pd.DataFrame, column: str, *, allow_blank: bool
     if not allow_blank:
         bad |= blank
     if bad.any():
-        i = int(np.argmax(bad))
-        shown = "" if text is None else text[i].as_py()
-        what = "is empty" if blank[i] else f"{shorten(shown or values[i])!r} is not a finite number{_number_hint(shown)}"
-        raise InputError(source, what, row=i + 1, column=column)
+        def what(i: int) -> str:
+            shown = "" if text is None else text[i].as_py()
+            return "is empty" if blank[i] else f"{shorten(shown or values[i])!r} is not a finite number{_number_hint(shown)}"
+        refuse(source, bad, column, what)
     return values
 
 
@@ -183,13 +187,10 @@ def _keys(source: str, frame: pd.DataFrame, column: str) -> pa.Array:
     _check_value_kinds(source, frame[column], column, number=False)
     text = normalise_keys(source, _as_text(frame[column]), column)
     empty = _mask(pc.equal(text, ""))
-    if empty.any():
-        raise InputError(source, "is empty", row=int(np.argmax(empty)) + 1, column=column)
+    refuse(source, empty, column, lambda i: "is empty")
     long = _mask(pc.greater(pc.utf8_length(text), MAX_KEY_LENGTH))
-    if long.any():
-        i = int(np.argmax(long))
-        raise InputError(source, f"{shorten(text[i].as_py())!r} is longer than {MAX_KEY_LENGTH} characters",
-                         row=i + 1, column=column)
+    refuse(source, long, column,
+           lambda i: f"{shorten(text[i].as_py())!r} is longer than {MAX_KEY_LENGTH} characters")
     return text
 
 
@@ -202,6 +203,7 @@ class _Labels:
     def __init__(self, column: str, stage: Stage):
         self.column = column
         self.stage = stage
+        self.seen = False         # a readable label was staged (none when every label was refused)
 
     def learn(self, source: str, text: pa.Array, offset: int) -> None:
         """Parse the distinct labels of one chunk (rows ``offset + 1`` …)."""
@@ -210,15 +212,21 @@ class _Labels:
         if not uniques:
             return
         first_pos = np.unique(codes, return_index=True)[1]  # codes number labels by first appearance
-        kinds, days = [], []
+        kinds, days, good, bad = [], [], [], Problems(source)
         for i, label in enumerate(uniques):
             try:
                 kind, day = parse_label(label)
             except ValueError as exc:  # row within the chunk: the caller shifts it
-                raise InputError(source, str(exc), row=int(first_pos[i]) + 1, column=self.column) from None
+                bad.add(InputError(source, str(exc), row=int(first_pos[i]) + 1, column=self.column))
+                continue
             kinds.append(kind)
             days.append(day)
-        self.stage.add_labels(self.column, uniques, kinds, days, offset + first_pos + 1)
+            good.append(i)
+        if good:
+            self.seen = True
+            self.stage.add_labels(self.column, [uniques[i] for i in good], kinds, days,
+                                  offset + first_pos[good] + 1)
+        bad.raise_if_any()
 
     def kinds(self) -> dict[str, int]:
         """Each label kind (frequency) found in the column, with the first row holding one."""
@@ -256,12 +264,15 @@ def _decide_frequency(source: str, columns: list[_Labels], freq: str | None, kno
 def _extra_columns(columns: list[str], known: set[str], source: str) -> list[str]:
     """Refuse columns that look like misspelt bounds or quantiles; warn about the rest."""
     extras = []
+    problems = Problems(source)
     for col in columns:
         if col in known or is_level_column(col):
             continue
         if fix := misspelt_column(col):
-            raise InputError(source, fix, column=col)
-        extras.append(col)
+            problems.add(InputError(source, fix, column=col))
+        else:
+            extras.append(col)
+    problems.raise_if_any()
     return extras
 
 
@@ -279,6 +290,18 @@ def _ignored(source: str, extras: list[str]) -> str:
     return f"{source}: ignored column{'s' if len(extras) > 1 else ''} {shown}"
 
 
+def _bounds_named(columns: list[str], source: str) -> dict[float, tuple[str, str]]:
+    """:func:`bound_columns`, naming a misspelt partner of a lone bound (lower80 beside upper_80)."""
+    try:
+        return bound_columns(columns, source)
+    except InputError as exc:
+        m = re.match(r"^has no matching (\S+) column$", exc.detail)
+        near = [c for c in columns if m and (fix := misspelt_column(c)) and fix.endswith(f"name it {m[1]}")]
+        if not near:
+            raise
+        raise InputError(source, f"{exc.detail}; {near[0]} looks like it: rename it {m[1]}", column=exc.column) from None
+
+
 def _model_origin(source, frame, model, origin) -> tuple[pa.Array, pa.Array]:
     n = len(frame)
     out = []
@@ -289,10 +312,8 @@ def _model_origin(source, frame, model, origin) -> tuple[pa.Array, pa.Array]:
             values = _keys(source, frame, column)
             if option is not None:
                 differ = _mask(pc.not_equal(values, option))
-                if differ.any():
-                    i = int(np.argmax(differ))
-                    raise InputError(source, f"{values[i].as_py()!r} differs from --{column} {option}; give one or the other",
-                                     row=i + 1, column=column)
+                refuse(source, differ, column, lambda i: f"{values[i].as_py()!r} differs from --{column} {option}; "
+                                                         "give one or the other")
         elif option is not None:
             values = pa.array(np.full(n, option, dtype=object), pa.string())
         else:
@@ -318,10 +339,10 @@ def read_forecasts(
     """
     table = open_table(data, name=name, progress=progress)
     source, columns = table.source, table.columns
-    _require(source, columns, ("series", "period", "forecast"))
-    bound_cols = bound_columns(columns, source)
-    quant_cols = quantile_columns(columns, source)
-    extras = _extra_columns(columns, {"series", "period", "forecast", "model", "origin"}, source)
+    problems = Problems(source)
+    bound_cols, quant_cols, extras = _header(source, columns, ("series", "period", "forecast"), problems, {
+        "bounds": lambda: _bounds_named(columns, source), "quantiles": lambda: quantile_columns(columns, source),
+        "extras": lambda: _extra_columns(columns, {"series", "period", "forecast", "model", "origin"}, source)})
     warnings = [_ignored(source, extras)] if extras else []
     levels, taus = list(bound_cols), list(quant_cols)
     numbers = {"point": "DOUBLE"} | {f"{side}_{i}": "DOUBLE" for i in range(len(levels)) for side in ("lo", "hi")}
@@ -332,18 +353,27 @@ def read_forecasts(
         periods, origins = _Labels("period", stage), _Labels("origin", stage)
         outside = _Outside(source)
         for chunk in table.chunks:
-            try:
-                staged = _forecast_chunk(source, chunk, model, origin, periods, origins, bound_cols, quant_cols)
-            except InputError as exc:
-                raise exc.shifted(chunk.offset) from None
+            staged = _forecast_chunk(source, chunk, model, origin, periods, origins, bound_cols, quant_cols, problems)
             outside.add(chunk.offset, staged, len(levels))
             stage.append(chunk.offset, staged)
-        frequency = _decide_frequency(source, [periods, origins], freq, stage.known_frequencies())
-        stage.check_recorded(source, frequency)
-        stage.resolve(frequency, ["period", "origin"])
-        stage.check_horizons(source, frequency, MAX_HORIZON)
-        stage.check_unique(source, ["model", "origin_index", "series", "period_index"], "period",
-                           "a second forecast for the same series, period, model and origin")
+        frequency = None
+        # With problems already found, the frequency's own problem may be their echo (no label
+        # left to read it from): it is then not reported, and the whole-file checks are skipped.
+        with (Problems(source) if problems else problems).guard():
+            frequency = _decide_frequency(source, [periods, origins], freq, stage.known_frequencies())
+        if frequency is not None and periods.seen:
+            option = f"--origin {origin}" if origin is not None and "origin" not in columns and \
+                not periods.kinds() else None
+            _recorded(stage, source, frequency, problems, option)
+            stage.resolve(frequency, ["period", "origin"])
+            with problems.guard():
+                stage.check_horizons(source, frequency, MAX_HORIZON)
+            with problems.guard():
+                stage.check_unique(source, ["model", "origin_index", "series", "period_index"], "period",
+                                   "a second forecast for the same series, period, model and origin")
+        if origin is not None and "origin" not in columns:
+            problems.name_option("origin", f"--origin {origin}")
+        problems.raise_if_any()
         warnings += _case_warnings(source, stage, ("series", "series"), ("model", "runs"))
     except BaseException:
         stage.close()
@@ -352,21 +382,77 @@ def read_forecasts(
                          warnings + outside.warnings([lower for lower, _ in bound_cols.values()]))
 
 
+def _header(source, columns, required, problems: Problems, checks: dict) -> tuple[dict, dict, list]:
+    """The bound, quantile and extra columns, every header problem collected; stop when a required column is missing."""
+    with problems.guard():
+        _require(source, columns, required)
+    if any(c not in columns for c in required):
+        problems.raise_if_any()
+    found = {"bounds": {}, "quantiles": {}, "extras": []}
+    for name, check in checks.items():
+        with problems.guard():
+            found[name] = check()
+    return found["bounds"], found["quantiles"], found["extras"]
+
+
+def _recorded(stage: Stage, source: str, frequency: str, problems: Problems, option: str | None = None) -> None:
+    """The series' recorded frequencies, as one more problem when others were found.
+
+    ``option``: the option (``--origin 2025-04``) that set the file's frequency, which is then
+    the problem's cause rather than the series column.
+    """
+    try:
+        stage.check_recorded(source, frequency)
+    except FrequencyError as exc:
+        m = re.match(r"^.* row (\d+) column (\w+): (.*)$", str(exc))
+        if option is not None and m:
+            why = m[3].replace(f", but this file is {frequency}", "")
+            problems.add(InputError(source, f"{option}: is a {frequency} label, but {why}"))
+        elif not problems:
+            raise
+        else:
+            problems.add(InputError(source, m[3], row=int(m[1]), column=m[2]) if m else InputError(source, str(exc)))
+
+
+def _text_or_blank(col: pd.Series) -> pa.Array:
+    """A refused column's text for the checks that still run, or blanks when it is not text at all."""
+    try:
+        return _as_text(col)
+    except (pa.ArrowTypeError, pa.ArrowInvalid, TypeError, ValueError, UnicodeDecodeError):  # already collected
+        return pa.array(np.full(len(col), "", dtype=object), pa.string())
+
+
+def _checked(problems: Problems, offset: int, check, fallback):
+    """``check()``, or ``fallback()`` after its problems are collected (so the other checks still run)."""
+    with problems.guard(offset):
+        return check()
+    return fallback()
+
+
 def _forecast_chunk(source, chunk: Chunk, model, origin, periods: _Labels, origins: _Labels,
-                    bound_cols, quant_cols) -> dict[str, np.ndarray]:
-    """One chunk's checked columns, rows numbered from 1 within the chunk."""
-    frame = chunk.frame
-    models, origin_text = _model_origin(source, frame, model, origin)
-    keys = _keys(source, frame, "series")
-    period_text = _keys(source, frame, "period")
-    periods.learn(source, period_text, chunk.offset)
-    origins.learn(source, origin_text, chunk.offset)
+                    bound_cols, quant_cols, problems: Problems) -> dict[str, np.ndarray]:
+    """One chunk's checked columns, rows numbered from 1 within the chunk; problems go to ``problems``."""
+    frame, offset, n = chunk.frame, chunk.offset, len(chunk.frame)
+    blank = lambda: pa.array(np.full(n, "", dtype=object), pa.string())
+    nan = lambda: np.full(n, np.nan)
+    models, origin_text = _checked(problems, offset, lambda: _model_origin(source, frame, model, origin),
+                                   lambda: (blank(), _text_or_blank(frame["origin"]) if "origin" in frame.columns
+                                            else pa.array(np.full(n, str(origin or ""), dtype=object), pa.string())))
+    keys = _checked(problems, offset, lambda: _keys(source, frame, "series"), lambda: _text_or_blank(frame["series"]))
+    period_text = _checked(problems, offset, lambda: _keys(source, frame, "period"), lambda: _text_or_blank(frame["period"]))
+    with problems.guard(offset):
+        periods.learn(source, period_text, offset)
+    with problems.guard(offset):
+        origins.learn(source, origin_text, offset)
     out = {"model": models, "origin": origin_text, "series": keys, "period": period_text,
-           "point": _numbers(source, frame, "forecast", allow_blank=False)}
+           "point": _checked(problems, offset, lambda: _numbers(source, frame, "forecast", allow_blank=False), nan)}
     for i, (lo, hi) in enumerate(bound_cols.values()):
-        out[f"lo_{i}"], out[f"hi_{i}"] = _bounds(source, frame, lo, hi)
-    quantiles = {tau: _numbers(source, frame, col, allow_blank=True) for tau, col in quant_cols.items()}
-    _check_quantile_order(source, quantiles, quant_cols)
+        out[f"lo_{i}"], out[f"hi_{i}"] = _checked(problems, offset, lambda: _bounds(source, frame, lo, hi),
+                                                  lambda: (nan(), nan()))
+    quantiles = {tau: _checked(problems, offset, lambda: _numbers(source, frame, col, allow_blank=True), nan)
+                 for tau, col in quant_cols.items()}
+    with problems.guard(offset):
+        _check_quantile_order(source, quantiles, quant_cols)
     for j, values in enumerate(quantiles.values()):
         out[f"q_{j}"] = values
     return out
@@ -376,26 +462,21 @@ def _bounds(source, frame, lower_col, upper_col) -> tuple[np.ndarray, np.ndarray
     lower = _numbers(source, frame, lower_col, allow_blank=True)
     upper = _numbers(source, frame, upper_col, allow_blank=True)
     half = np.isnan(lower) != np.isnan(upper)
-    if half.any():
-        i = int(np.argmax(half))
-        col, other = (upper_col, lower_col) if np.isnan(upper[i]) else (lower_col, upper_col)
-        raise InputError(source, f"is empty but {other} is given; give both bounds or neither", row=i + 1, column=col)
-    crossed = lower > upper
-    if crossed.any():
-        i = int(np.argmax(crossed))
-        raise InputError(source, f"lower bound {lower[i]:g} is above the upper bound {upper[i]:g}",
-                         row=i + 1, column=lower_col)
+    refuse(source, half & np.isnan(upper), upper_col,
+           lambda i: f"is empty but {lower_col} is given; give both bounds or neither")
+    refuse(source, half & np.isnan(lower), lower_col,
+           lambda i: f"is empty but {upper_col} is given; give both bounds or neither")
+    refuse(source, lower > upper, lower_col,
+           lambda i: f"lower bound {lower[i]:g} is above the upper bound {upper[i]:g}")
     return lower, upper
 
 
 def _check_quantile_order(source, quantiles: dict[float, np.ndarray], columns: dict[float, str]) -> None:
     taus = list(quantiles)
     for a, b in zip(taus, taus[1:]):
-        bad = quantiles[a] > quantiles[b]
-        if bad.any():
-            i = int(np.argmax(bad))
-            raise InputError(source, f"quantiles decrease: {columns[a]} = {quantiles[a][i]:g} is above "
-                             f"{columns[b]} = {quantiles[b][i]:g}", row=i + 1, column=columns[b])
+        refuse(source, quantiles[a] > quantiles[b], columns[b],
+               lambda i: f"quantiles decrease: {columns[a]} = {quantiles[a][i]:g} is above "
+                         f"{columns[b]} = {quantiles[b][i]:g}")
 
 
 class _Outside:
@@ -429,25 +510,34 @@ def read_actuals(store: Store, data, *, freq: str | None = None, name: str | Non
     """
     table = open_table(data, name=name, progress=progress)
     source, columns = table.source, table.columns
-    _require(source, columns, ("series", "period", "actual"))
+    problems = Problems(source)
+    _header(source, columns, ("series", "period", "actual"), problems, {})
     extras = [c for c in columns if c not in ("series", "period", "actual")]
     warnings = [_ignored(source, extras)] if extras else []
     stage = Stage(store.con, {"series": "VARCHAR", "period": "VARCHAR", "value": "DOUBLE"})
     try:
         periods = _Labels("period", stage)
         for chunk in table.chunks:
-            try:
-                keys = _keys(source, chunk.frame, "series")
-                text = _keys(source, chunk.frame, "period")
-                periods.learn(source, text, chunk.offset)
-                value = _numbers(source, chunk.frame, "actual", allow_blank=False)
-            except InputError as exc:
-                raise exc.shifted(chunk.offset) from None
-            stage.append(chunk.offset, {"series": keys, "period": text, "value": value})
-        frequency = _decide_frequency(source, [periods], freq, stage.known_frequencies())
-        stage.check_recorded(source, frequency)
-        stage.resolve(frequency, ["period"])
-        stage.check_unique(source, ["series", "period_index"], "period", "a second actual for the same series and period")
+            frame, offset = chunk.frame, chunk.offset
+            keys = _checked(problems, offset, lambda: _keys(source, frame, "series"), lambda: _text_or_blank(frame["series"]))
+            text = _checked(problems, offset, lambda: _keys(source, frame, "period"), lambda: _text_or_blank(frame["period"]))
+            with problems.guard(offset):
+                periods.learn(source, text, offset)
+            value = _checked(problems, offset, lambda: _numbers(source, frame, "actual", allow_blank=False),
+                             lambda: np.full(len(frame), np.nan))
+            stage.append(offset, {"series": keys, "period": text, "value": value})
+        frequency = None
+        # With problems already found, the frequency's own problem may be their echo (no label
+        # left to read it from): it is then not reported, and the whole-file checks are skipped.
+        with (Problems(source) if problems else problems).guard():
+            frequency = _decide_frequency(source, [periods], freq, stage.known_frequencies())
+        if frequency is not None and periods.seen:
+            _recorded(stage, source, frequency, problems)
+            stage.resolve(frequency, ["period"])
+            with problems.guard():
+                stage.check_unique(source, ["series", "period_index"], "period",
+                                   "a second actual for the same series and period")
+        problems.raise_if_any()
         warnings += _case_warnings(source, stage, ("series", "series"))
     except BaseException:
         stage.close()

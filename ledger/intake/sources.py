@@ -58,7 +58,8 @@ def open_table(data: str | os.PathLike | pd.DataFrame, *, name: str | None = Non
     counts = Counter(columns)
     dupes = sorted(c for c, k in counts.items() if k > 1)
     if dupes:
-        raise InputError(source, f"the header names {', '.join(dupes)} more than once (column names are case-insensitive)")
+        shown = ", ".join(d if d else "(empty)" for d in dupes)
+        raise InputError(source, f"the header names {shown} more than once (column names are case-insensitive)")
     if len(first) == 0:
         raise InputError(source, "the file has a header but no data rows")
     return Table(source, columns, _chunks(first, frames, columns))

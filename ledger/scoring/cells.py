@@ -31,6 +31,10 @@ actuals with t at or before the cell's origin (q2 likewise with squares). Pairs 
 period index, so a gap never pairs values that are not m periods apart. A cell whose series has
 no such pair yet, or q = 0, has no scale: its scaled metrics are left out and counted in
 ``n_unscaled``.
+
+Cells whose series and target period an excluding event covers (:mod:`ledger.scoring.events`)
+are left out unless the selection includes them (``include_excluded``); ``scores`` counts them
+in ``n_excluded``.
 """
 
 from __future__ import annotations
@@ -45,13 +49,14 @@ import pandas as pd
 from ..errors import LedgerError, UnknownName
 from ..periods import index_start, parse_label, period_index, period_label
 from .attributes import attributes_sql, check_attribute, known_attributes
+from .events import excluded_spans_sql
 from .interval_wis import interval_wis_group_sql
 from .quantile_sql import add_probabilistic_columns, quantile_detail_sql, wis_group_sql
 from .repeatable import one_thread
 from ..store import Store, latest_actuals_sql, live_runs_sql
 from ..wording import format_level
 
-__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "bounds_join", "cells_sql", "forecasts_sql", "period_filter", "score_cells", "interval_cells", "interval_misses", "scores", "POINT_COLUMNS"]
+__all__ = ["GroupKey", "GROUP_KEYS", "Selection", "bounds_join", "cells_sql", "scale_sql", "forecasts_sql", "period_filter", "score_cells", "interval_cells", "interval_misses", "scores", "POINT_COLUMNS"]
 
 GroupKey = Literal["series", "model", "horizon", "origin", "period"]
 GROUP_KEYS: tuple[str, ...] = get_args(GroupKey)
@@ -70,6 +75,7 @@ class Selection:
     since: str | None = None
     until: str | None = None
     where: Sequence[tuple[str, str]] = ()
+    include_excluded: bool = False
 
     def params(self) -> dict:
         out = {"as_of": self.as_of}
@@ -144,11 +150,34 @@ def _parts(sel: Selection) -> tuple[str, dict]:
         WHERE TRUE {where})""", params
 
 
-def cells_sql(sel: Selection) -> tuple[str, dict]:
+def cells_sql(sel: Selection, *, keep_excluded: bool = False) -> tuple[str, dict]:
     """SQL (and parameters) for every scorable cell in the selection, one row per cell.
 
     Columns: run_id, model, frequency, origin, origin_index, series, period, period_index,
-    horizon, point, actual, e, q, q2.
+    horizon, point, actual, e, q, q2, excluded (an excluding event covers the cell). Excluded
+    cells are left out unless ``sel.include_excluded`` or ``keep_excluded``.
+    """
+    prefix, params = scale_sql(sel)
+    sql = f"""
+    {prefix},
+    spans AS ({excluded_spans_sql()}),
+    scored AS (
+        SELECT fc.*, a.value AS actual, a.value - fc.point AS e, sc.q, sc.q2,
+               EXISTS (SELECT 1 FROM spans x WHERE x.series = fc.series AND fc.period >= x.first_day
+                       AND fc.period < x.end_day) AS excluded
+        FROM fc
+        JOIN act a ON a.series = fc.series AND a.period_index = fc.period_index
+        LEFT JOIN scale sc ON sc.series = fc.series AND sc.origin_index = fc.origin_index)
+    SELECT * FROM scored {"" if keep_excluded or sel.include_excluded else "WHERE NOT excluded"}
+    """
+    return sql, params
+
+
+def scale_sql(sel: Selection) -> tuple[str, dict]:
+    """The head of a query (``WITH act, live, fc, …, scale``) that later CTEs and a SELECT can follow.
+
+    act: the actuals in force; fc: the live forecasts of the selection; scale: (series,
+    origin_index, q, q2) for every series and origin in fc.
     """
     fc, params = _parts(sel)
     sql = f"""
@@ -181,12 +210,7 @@ def cells_sql(sel: Selection) -> tuple[str, dict]:
         SELECT series, origin_index,
                CASE WHEN nd > 0 AND sd > 0 THEN sd / nd END AS q,
                CASE WHEN nd > 0 AND sd2 > 0 THEN sd2 / nd END AS q2
-        FROM carried WHERE marker = 1)
-    SELECT fc.*, a.value AS actual, a.value - fc.point AS e, sc.q, sc.q2
-    FROM fc
-    JOIN act a ON a.series = fc.series AND a.period_index = fc.period_index
-    LEFT JOIN scale sc ON sc.series = fc.series AND sc.origin_index = fc.origin_index
-    """
+        FROM carried WHERE marker = 1)"""
     return sql, params
 
 
@@ -252,7 +276,7 @@ _POINT_AGG = """
 # n: the cells that carry level L's bounds (a model may send bounds for some series only), so
 # coverage_L and width_L state how many cells they are over (column n_L).
 _LEVEL_AGG = """
-    avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN 1.0 ELSE 0.0 END) AS coverage,
+    avg(CASE WHEN b.lower <= c.actual AND c.actual <= b.upper THEN CAST(1 AS DOUBLE) ELSE CAST(0 AS DOUBLE) END) AS coverage,
     count(*) AS n,
     avg(b.upper - b.lower) AS width,
     avg((b.upper - b.lower)
@@ -282,7 +306,7 @@ def _check_keys(store: Store, sel: Selection, by: Sequence[str]) -> list[str]:
 
 def _materialise(store: Store, sel: Selection, attrs: list[str], where: list[tuple[str, str]]) -> None:
     """The temp table _scored: the selected cells, with a column g__<name> per attribute used."""
-    sql, params = cells_sql(sel)
+    sql, params = cells_sql(sel, keep_excluded=True)
     joins, filters = [], []
     for i, name in enumerate(attrs):
         params[f"attr{i}"] = name
@@ -315,8 +339,12 @@ def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"
     con = store.con
     _materialise(store, sel, attrs, where)
     try:
+        excluded = _count_excluded(con, keys)
+        if not sel.include_excluded:
+            con.execute("DELETE FROM _scored WHERE excluded")
         with one_thread(con):  # the same sums, to the last bit, on every run
             point, levels, pinball, wis, detail = _aggregates(con, keys, quantile_detail)
+        point = _with_excluded(point, excluded if not sel.include_excluded else excluded.iloc[0:0], keys)
         freqs = [r[0] for r in con.execute("SELECT DISTINCT frequency FROM _scored").fetchall()]
     finally:
         con.execute("DROP TABLE IF EXISTS _scored")
@@ -352,10 +380,30 @@ def _has_quantiles(con) -> bool:
                        "(SELECT DISTINCT run_id FROM _scored))").fetchone()[0]
 
 
+def _count_excluded(con, keys: list[str]) -> pd.DataFrame:
+    """Excluded cells of _scored per group (before they are deleted from it)."""
+    key_sql = {k: _KEY_SQL.get(k, f"c.g__{k}") for k in keys}
+    select_keys = ", ".join(f"{key_sql[k]} AS {k}" for k in keys)
+    gb = f"GROUP BY {', '.join(key_sql.values())}" if keys else ""
+    return con.execute(f"SELECT {select_keys + ',' if keys else ''} count(*) AS n_excluded FROM _scored c "
+                       f"WHERE excluded {gb}").df()
+
+
+def _with_excluded(point: pd.DataFrame, excluded: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
+    """Add n_excluded; a group whose every cell is excluded still gets a row (n = 0)."""
+    if not keys:
+        point = point.assign(n_excluded=int(excluded["n_excluded"].iloc[0]) if len(excluded) else 0)
+        return point
+    out = point.merge(excluded, on=keys, how="outer") if len(excluded) else point.assign(n_excluded=0)
+    for c in ("n", "n_zero_actual", "n_unscaled", "n_excluded"):
+        out[c] = out[c].fillna(0)
+    return out
+
+
 def _assemble(point: pd.DataFrame, levels: pd.DataFrame, pinball: pd.DataFrame,
               keys: list[str], freqs: list[str], probabilistic=None) -> pd.DataFrame:
     if keys and len(point) == 0:
-        return point[keys + list(POINT_COLUMNS) + ["n_zero_actual", "n_unscaled"]]
+        return point[keys + list(POINT_COLUMNS) + ["n_zero_actual", "n_unscaled", "n_excluded"]]
     out = point.copy()
     for level in sorted(levels["level"].unique()) if len(levels) else []:
         part = levels[levels["level"] == level].drop(columns="level")
@@ -367,10 +415,10 @@ def _assemble(point: pd.DataFrame, levels: pd.DataFrame, pinball: pd.DataFrame,
         out = out.merge(pinball, on=keys, how="left") if keys else pd.concat([out, pinball], axis=1)
     if probabilistic is not None:
         out = add_probabilistic_columns(out, *probabilistic, keys)
-    tail = ["n_zero_actual", "n_unscaled"]
+    tail = ["n_zero_actual", "n_unscaled", "n_excluded"]
     ordered = keys + [c for c in out.columns if c not in keys and c not in tail] + tail
     out = out[ordered]
-    for c in ("n", "n_zero_actual", "n_unscaled"):
+    for c in ("n", "n_zero_actual", "n_unscaled", "n_excluded"):
         out[c] = out[c].astype("int64")
     if "horizon" in keys:
         out["horizon"] = out["horizon"].astype("int64")

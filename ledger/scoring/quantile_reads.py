@@ -6,6 +6,9 @@ functions only run it for a selection and hand back frames.
 
 from __future__ import annotations
 
+import contextlib
+from collections.abc import Iterator
+
 import pandas as pd
 
 from ..stats.quantiles import TAU_DIGITS
@@ -34,31 +37,32 @@ def quantile_cells(store: Store, sel: Selection) -> pd.DataFrame:
 def wis_cells(store: Store, sel: Selection) -> pd.DataFrame:
     """One row per scored cell with a central interval or quantiles: model, series, horizon,
     period_index, n_intervals, wis, wis_dispersion, wis_overprediction, wis_underprediction, crps_q."""
-    sql, params = cells_sql(sel)
-    con = store.con
-    con.execute(f"CREATE OR REPLACE TEMP TABLE _wis_cells AS SELECT row_number() OVER () AS cell_id, * "
-                f"FROM ({sql})", params)
-    try:
-        return con.execute(f"""
+    with _numbered_cells(store, sel) as cells:
+        return store.con.execute(f"""
             SELECT model, series, horizon, period_index, n_intervals, wis, wis_dispersion,
                    wis_overprediction, wis_underprediction, crps_q
-            FROM ({wis_cells_sql('_wis_cells')})
+            FROM ({wis_cells_sql(cells)})
             ORDER BY model, series, horizon, period_index""").df()
-    finally:
-        con.execute("DROP TABLE IF EXISTS _wis_cells")
 
 
 def wis_by_horizon(store: Store, sel: Selection) -> pd.DataFrame:
     """Per model and horizon: cells with a WIS (n_wis) and the means of wis and its three parts."""
-    sql, params = cells_sql(sel)
-    con = store.con
-    con.execute(f"CREATE OR REPLACE TEMP TABLE _wis_cells AS SELECT row_number() OVER () AS cell_id, * "
-                f"FROM ({sql})", params)
-    try:
-        return con.execute(f"""
+    with _numbered_cells(store, sel) as cells:
+        return store.con.execute(f"""
             SELECT model, horizon, count(wis) AS n_wis, avg(wis) AS wis, avg(wis_dispersion) AS wis_dispersion,
                    avg(wis_overprediction) AS wis_overprediction, avg(wis_underprediction) AS wis_underprediction
-            FROM ({wis_cells_sql('_wis_cells')}) WHERE wis IS NOT NULL
+            FROM ({wis_cells_sql(cells)}) WHERE wis IS NOT NULL
             GROUP BY model, horizon ORDER BY model, horizon""").df()
+
+
+@contextlib.contextmanager
+def _numbered_cells(store: Store, sel: Selection) -> Iterator[str]:
+    """The selection's cells in a temp table with the integer cell_id the WIS query joins on."""
+    sql, params = cells_sql(sel)
+    con = store.con
+    con.execute(f"CREATE OR REPLACE TEMP TABLE _wis_cells AS SELECT row_number() OVER "
+                f"(ORDER BY model, series, origin_index, period_index) AS cell_id, * FROM ({sql})", params)
+    try:
+        yield "_wis_cells"
     finally:
         con.execute("DROP TABLE IF EXISTS _wis_cells")

@@ -23,7 +23,13 @@ __all__ = ["one_thread"]
 
 @contextlib.contextmanager
 def one_thread(con: duckdb.DuckDBPyConnection) -> Iterator[None]:
-    """Run the enclosed queries on one DuckDB thread; the thread count is restored afterwards."""
+    """Run the enclosed queries on one DuckDB thread; the thread count is restored afterwards.
+
+    Any other engine (Spark over a lake) runs them as they are: see :mod:`ledger.scoring.dialect`.
+    """
+    if not isinstance(con, duckdb.DuckDBPyConnection):
+        yield
+        return
     (before,) = con.execute("SELECT current_setting('threads')").fetchone()
     con.execute("SET threads = 1")
     try:

@@ -35,11 +35,16 @@ def close_names(name: str, known: Iterable[str], n: int = 3) -> list[str]:
 def unknown_message(what: str, plural: str, unknown: Sequence[str], known: Sequence[str]) -> str:
     """"unknown model 'x'; did you mean 'a'? known models: a, b" (one line, lists shortened)."""
     listed = list_names(known, 20) if known else "none recorded yet"
-    near = [repr(c) for c in dict.fromkeys(c for u in unknown for c in close_names(u, known))]
+    near = [_shown(c) for c in dict.fromkeys(c for u in unknown for c in close_names(u, known))]
     guess = ""
     if near:
         guess = f"did you mean {near[0] if len(near) == 1 else ', '.join(near[:-1]) + ' or ' + near[-1]}? "
-    return f"unknown {what} {', '.join(map(repr, unknown))}; {guess}known {plural}: {listed}"
+    return f"unknown {what} {', '.join(map(_shown, unknown))}; {guess}known {plural}: {listed}"
+
+
+def _shown(name: str) -> str:
+    """A name quoted for a message; the empty name as (empty), never as nothing."""
+    return repr(name) if name else "(empty)"
 
 
 def check_selection(store: Store, sel: Selection) -> Selection:

@@ -157,7 +157,7 @@ def test_cli_round_trip(tmp_path, runner):
     lines = r.stdout.splitlines()
     assert lines[0] == ("model,horizon,n,mae,rmse,mape,smape,wape,mase,rmsse,bias,bias_pct,coverage_80,n_80,width_80,"
                         "interval_score_80,msis_80,wis,wis_dispersion,wis_overprediction,wis_underprediction,swis,"
-                        "crps_q,n_zero_actual,n_unscaled")
+                        "crps_q,n_zero_actual,n_unscaled,n_excluded")
     assert lines[1].startswith("m,1,2,1.5,1.5811388300841898,") and len(lines) == 2
     r = runner.invoke(app, ["--ledger", str(path), "scores", "--format", "json", "--by", "series"])
     assert r.exit_code == 0 and r.stdout.lstrip().startswith("[")

@@ -33,22 +33,25 @@ def filled(tmp_path):
 
 
 def downgrade(path, version: int) -> None:
-    """Rewrite a current ledger as Backsight wrote schema ``version`` (1 or 2)."""
+    """Rewrite a current ledger as Backsight wrote schema ``version`` (1, 2 or 3)."""
     con = duckdb.connect(str(path))
-    con.execute("DROP TABLE actual_writes")
-    con.execute("ALTER TABLE actuals DROP COLUMN chain_hash")
-    for run_id, model, freq, origin_index in con.execute(
-            "SELECT run_id, model, frequency, origin_index FROM runs").fetchall():
-        part, levels, taus = run_rows(con, run_id)
-        con.execute("UPDATE runs SET content_hash = ? WHERE run_id = ?",
-                    [v1_run_hash(model, freq, origin_index, part, levels, taus), run_id])
+    for table in ("events", "reviews", "review_findings", "review_models"):   # new in version 4
+        con.execute(f"DROP TABLE {table}")
+    if version <= 2:
+        con.execute("DROP TABLE actual_writes")
+        con.execute("ALTER TABLE actuals DROP COLUMN chain_hash")
+        for run_id, model, freq, origin_index in con.execute(
+                "SELECT run_id, model, frequency, origin_index FROM runs").fetchall():
+            part, levels, taus = run_rows(con, run_id)
+            con.execute("UPDATE runs SET content_hash = ? WHERE run_id = ?",
+                        [v1_run_hash(model, freq, origin_index, part, levels, taus), run_id])
     if version == 1:
         con.execute("DROP TABLE attributes")
     con.execute("UPDATE meta SET value = ? WHERE key = 'schema_version'", [str(version)])
     con.close()
 
 
-@pytest.mark.parametrize("version", [1, 2])
+@pytest.mark.parametrize("version", [1, 2, 3])
 def test_older_schema_is_migrated_after_a_backup(filled, runner, version):
     before = table_hashes(filled)
     downgrade(filled, version)

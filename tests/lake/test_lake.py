@@ -9,7 +9,7 @@ import pytest
 
 from ledger import Ledger
 from ledger.cli import app
-from ledger.lake import escape_partition_value, export_lake
+from ledger.lake import WHOLE_TABLES, escape_partition_value, export_lake
 from ledger.manifest import MANIFEST_NAME, file_checksum, read_manifest
 from ledger.store import SCHEMA_VERSION, TABLES, Store
 
@@ -59,7 +59,7 @@ def test_lake_layout_and_manifest(book_path, tmp_path, runner):
     assert "bounds/model=plain/origin_year=2026/origin_month=02/part-00001.parquet" in paths
     assert "quantiles/model=plain/origin_year=2026/origin_month=02/part-00001.parquet" in paths
     assert any(p.startswith("actuals/recorded_month=") for p in paths)
-    assert manifest.tables == {t: n for t, n in _counts(book_path).items() if n or t in ("meta", "series", "runs", "attributes", "actual_writes")}
+    assert manifest.tables == {t: n for t, n in _counts(book_path).items() if n or t in WHOLE_TABLES}
     for f in manifest.files:
         assert file_checksum(lake / f.path) == f.sha256
     with Store.open(book_path, read_only=True) as store:
@@ -87,7 +87,7 @@ def test_second_export_writes_only_what_is_new(book_path, tmp_path):
         second = book.export_lake(lake)
     assert (first.runs_added, second.runs_added, second.revisions_added) == (2, 1, 2)
     new_big = sorted(p.relative_to(lake).as_posix() for p in second.written
-                     if p.parts[len(lake.parts)] not in ("meta", "series", "runs", "attributes", "actual_writes"))
+                     if p.parts[len(lake.parts)] not in WHOLE_TABLES)
     assert new_big == ["actuals/recorded_month=" + new_big[0].split("=")[1].split("/")[0] + "/part-00002.parquet",
                        "bounds/model=plain/origin_year=2026/origin_month=02/part-00002.parquet",
                        "forecasts/model=plain/origin_year=2026/origin_month=02/part-00002.parquet",
@@ -95,7 +95,7 @@ def test_second_export_writes_only_what_is_new(book_path, tmp_path):
     assert not (lake / "runs" / "part-00001.parquet").exists()       # replaced whole, old file removed
     manifest = read_manifest(lake)
     assert manifest.exports == 2 and manifest.tables["runs"] == 3
-    assert manifest.tables == {t: n for t, n in _counts(book_path).items() if n or t in ("attributes",)}
+    assert manifest.tables == {t: n for t, n in _counts(book_path).items() if n or t in WHOLE_TABLES}
     new = tmp_path / "new.duckdb"
     with Ledger.open(new) as other:
         other.import_export(lake)

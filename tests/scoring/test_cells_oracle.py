@@ -120,6 +120,7 @@ def oracle(cells, by):
         row["rmsse"] = math.sqrt(np.mean([ei * ei / c["q2"] for c, ei in sc])) if sc else np.nan
         row["n_zero_actual"] = sum(1 for c in g if c["y"] == 0)
         row["n_unscaled"] = sum(1 for c in g if c["q"] is None)
+        row["n_excluded"] = 0   # no events in these ledgers (tests/scoring/test_events.py has them)
         for lv in (80, 95):
             hit = [c for c in g if not pd.isna(c["row"].get(f"lower_{lv}", np.nan))]
             row[f"n_{lv}"] = len(hit)      # cells carrying level lv's bounds
@@ -229,7 +230,7 @@ def test_column_order(ledger_and_truth):
         "coverage_80", "n_80", "width_80", "interval_score_80", "msis_80",
         "coverage_95", "n_95", "width_95", "interval_score_95", "msis_95", "pinball",
         "wis", "wis_dispersion", "wis_overprediction", "wis_underprediction", "swis", "crps_q",
-        "n_zero_actual", "n_unscaled"]
+        "n_zero_actual", "n_unscaled", "n_excluded"]
 
 
 def test_filters(ledger_and_truth):

@@ -26,6 +26,7 @@ from .common import (
     open_ledger,
     say,
 )
+from .engines import Engine, EngineOpt, LakeOpt, SparkMasterOpt, reading_ledger
 from .filters import HorizonOpt, ModelOpt, SeriesOpt, SinceOpt, UntilOpt, WhereOpt, selection
 from .thresholds import with_thresholds
 from ..findings.summary import finding_counts
@@ -70,6 +71,9 @@ def flags(
     fail_on: FailOnOpt = None,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
+    engine: EngineOpt = Engine.duckdb,
+    lake: LakeOpt = None,
+    spark_master: SparkMasterOpt = None,
     thresholds: dict | None = None,
 ) -> None:
     """Findings: drifting models, miscalibrated intervals, no value added, data problems."""
@@ -79,7 +83,7 @@ def flags(
     chosen = dict(selection(model=model, series=series, horizon=horizon, since=since, until=until, where=where),
                   kinds=[k.value for k in kind or []], severities=[s.value for s in severity or []],
                   include_excluded=include_excluded)
-    with open_ledger(ctx) as book, busy("Checking"):
+    with reading_ledger(ctx, engine, lake, spark_master) as book, busy("Checking"):
         if by is not None:
             frame = book.flag_counts(by, as_of=as_of, **chosen, **thresholds)
         else:

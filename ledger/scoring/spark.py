@@ -16,6 +16,7 @@ from __future__ import annotations
 import datetime as dt
 import os
 import shutil
+import sys
 import warnings
 from collections.abc import Sequence
 
@@ -70,6 +71,8 @@ def session(master: str | None = "local[2]", *, app_name: str = "backsight", con
         builder = builder.master(master)
         if master.startswith("local"):
             settings.update(LOCAL_SETTINGS)
+            # the grouped pandas UDFs of flags run in Python workers: this interpreter, with Backsight
+            os.environ.setdefault("PYSPARK_PYTHON", sys.executable)
     for key, value in {**settings, **(conf or {})}.items():
         builder = builder.config(key, value)
     spark = builder.getOrCreate()

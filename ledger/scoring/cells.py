@@ -17,6 +17,8 @@ DuckDB dialect, each with a plain equivalent elsewhere:
   syntax; another engine binds them its own way (``?``, ``:name``) or gets literals.
 - ``greatest(x, 0)`` in the interval score: not in the standard, but in most engines (Spark,
   PostgreSQL, MySQL); the standard form is ``CASE WHEN x > 0 THEN x ELSE 0 END``.
+- ``LIMIT 1`` (whether any selected run has quantiles): standard ``FETCH FIRST 1 ROW ONLY``;
+  DuckDB and Spark both take ``LIMIT``.
 - ``CREATE OR REPLACE TEMP TABLE _scored AS …`` and ``DROP TABLE IF EXISTS``: the grouped
   scores materialise the selected cells once per call (standard: ``CREATE LOCAL TEMPORARY
   TABLE … AS (…) WITH DATA``; on Spark a temporary view).
@@ -375,9 +377,9 @@ def _aggregates(con, keys: list[str], quantile_detail: bool) -> tuple:
 
 
 def _has_quantiles(con) -> bool:
-    """Whether any run of _scored has quantile rows (a semi-join: it stops at the first)."""
-    return con.execute("SELECT EXISTS (SELECT 1 FROM quantiles WHERE run_id IN "
-                       "(SELECT DISTINCT run_id FROM _scored))").fetchone()[0]
+    """Whether any run of _scored has quantile rows (a semi-join that stops at the first)."""
+    return len(con.execute("SELECT run_id FROM quantiles WHERE run_id IN (SELECT run_id FROM _scored) "
+                           "LIMIT 1").fetchall()) > 0
 
 
 def _count_excluded(con, keys: list[str]) -> pd.DataFrame:

@@ -2,11 +2,16 @@
 
     python tests/benchmarks/bench_scoring.py [CELLS] [--models 4] [--horizons 12] [--keep DIR]
     python tests/benchmarks/bench_scoring.py 1000000 --quantiles 9     # the quantile case
+    python tests/benchmarks/bench_scoring.py --reuse --keep DIR --before OLD_TREE  # again, old vs new
 
 Prints: snapshot rows/s from back-fill CSVs (one per model), in-process scoring time grouped by
 model×horizon and by series×model, the wall time of ``backsight scores`` in a fresh process
-(start-up included), and peak RSS. Targets (2 cores): 1M cells snapshotted in under 10 s;
-``backsight scores`` over 1M cells in under 3 s; 10M cells scored in under 20 s under 4 GB.
+(start-up included), and peak RSS; then ``backsight scores --by model,horizon`` side by side with
+a pandas script and a hand-written DuckDB query over the same CSVs (and with the code of an
+older source tree, ``--before``), interleaved, with the load average beside every figure.
+Targets (2 cores): 1M cells snapshotted in under 10 s; ``backsight scores --by model,horizon``
+over 1M cells with two interval levels in 1.2 s, start-up included; 10M cells scored in under
+20 s under 4 GB.
 With ``--quantiles K`` every forecast also carries K evenly spaced quantiles (K = 9: q10..q90)
 and the WIS query is timed on its own; target: 1M cells × 9 quantiles scored with WIS in 3 s.
 """

@@ -11,6 +11,7 @@ import contextlib
 import csv
 import enum
 import json
+import os
 import sys
 from pathlib import Path
 from typing import Annotated
@@ -41,6 +42,11 @@ class _Group(TyperGroup):
         except LedgerError as exc:
             # Messages quote names and values from the input: shown inert, never raw.
             typer.echo("\n".join(printable(line) for line in f"Error: {exc}".split("\n")), err=True)
+            raise typer.Exit(EXIT_ERROR) from None
+        except BrokenPipeError:
+            # The reader left (``backsight changes | head``): stop quietly, as the Python docs advise
+            # for SIGPIPE, without a message about a file the user never named.
+            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
             raise typer.Exit(EXIT_ERROR) from None
         except (OSError, duckdb.Error) as exc:     # no space, permission, …: one line, not a traceback
             message = describe_os_error(exc)

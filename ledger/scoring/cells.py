@@ -17,6 +17,8 @@ DuckDB dialect, each with a plain equivalent elsewhere:
   syntax; another engine binds them its own way (``?``, ``:name``) or gets literals.
 - ``greatest(x, 0)`` in the interval score: not in the standard, but in most engines (Spark,
   PostgreSQL, MySQL); the standard form is ``CASE WHEN x > 0 THEN x ELSE 0 END``.
+- ``LIMIT 1`` (whether any selected run has quantiles): standard ``FETCH FIRST 1 ROW ONLY``;
+  DuckDB and Spark both take ``LIMIT``.
 - ``CREATE OR REPLACE TEMP TABLE _scored AS …`` and ``DROP TABLE IF EXISTS``: the grouped
   scores materialise the selected cells once per call (standard: ``CREATE LOCAL TEMPORARY
   TABLE … AS (…) WITH DATA``; on Spark a temporary view).
@@ -50,6 +52,7 @@ from ..errors import LedgerError, UnknownName
 from ..periods import index_start, parse_label, period_index, period_label
 from .attributes import attributes_sql, check_attribute, known_attributes
 from .events import excluded_spans_sql
+from .interval_wis import interval_wis_group_sql
 from .quantile_sql import add_probabilistic_columns, quantile_detail_sql, wis_group_sql
 from .repeatable import one_thread
 from ..store import Store, latest_actuals_sql, live_runs_sql
@@ -286,11 +289,6 @@ _LEVEL_AGG = """
         + (2 / (1 - b.level / 100)) * greatest(c.actual - b.upper, 0)) / c.q) AS msis
 """
 
-_PINBALL_AGG = """
-    avg(CASE WHEN c.actual >= qt.value THEN qt.tau * (c.actual - qt.value)
-             ELSE (1 - qt.tau) * (qt.value - c.actual) END) AS pinball
-"""
-
 _KEY_SQL = {"series": "c.series", "model": "c.model", "horizon": "c.horizon",
             "origin": "c.origin", "period": "c.period"}
 
@@ -367,13 +365,21 @@ def _aggregates(con, keys: list[str], quantile_detail: bool) -> tuple:
         f"SELECT {select_keys + ',' if keys else ''} b.level, {_LEVEL_AGG} FROM _scored c "
         f"{bounds_join()} "
         f"GROUP BY {group + ',' if keys else ''} b.level").df()
-    pinball = con.execute(
-        f"SELECT {select_keys + ',' if keys else ''} {_PINBALL_AGG} FROM _scored c "
-        f"JOIN quantiles qt ON qt.run_id = c.run_id AND qt.series = c.series AND qt.period_index = c.period_index "
-        f"{gb}").df()
+    if not _has_quantiles(con):
+        # bounds alone: no pinball, no quantile detail, and WIS in one grouping of the bounds
+        wis = con.execute(interval_wis_group_sql("_scored", select_keys, group)).df()
+        return point, levels, pd.DataFrame(), wis, None
+    # pinball comes with the WIS, from the same join of the cells to their quantile rows
     wis = con.execute(wis_group_sql("_scored", select_keys, group)).df()
+    pinball, wis = wis[keys + ["pinball"]], wis.drop(columns="pinball")
     detail = con.execute(quantile_detail_sql("_scored", select_keys, group)).df() if quantile_detail else None
     return point, levels, pinball, wis, detail
+
+
+def _has_quantiles(con) -> bool:
+    """Whether any run of _scored has quantile rows (a semi-join that stops at the first)."""
+    return len(con.execute("SELECT run_id FROM quantiles WHERE run_id IN (SELECT run_id FROM _scored) "
+                           "LIMIT 1").fetchall()) > 0
 
 
 def _count_excluded(con, keys: list[str]) -> pd.DataFrame:

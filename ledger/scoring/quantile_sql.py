@@ -39,7 +39,7 @@ def wis_cells_sql(cells: str) -> str:
     return f"""
     WITH {_per_cell_ctes(cells)},
     parts AS (
-        SELECT c.*, p.k AS n_intervals, p.crps_q,
+        SELECT c.*, p.k AS n_intervals, p.crps_q, p.n_q, p.pinball_sum,
                CASE WHEN p.k > 0 THEN p.disp / (p.k + 0.5) END AS wis_dispersion,
                CASE WHEN p.k > 0 THEN (0.5 * greatest(coalesce(p.median, c.point) - c.actual, 0) + p.over_sum)
                                       / (p.k + 0.5) END AS wis_overprediction,
@@ -51,7 +51,8 @@ def wis_cells_sql(cells: str) -> str:
 
 def _per_cell_ctes(cells: str) -> str:
     """CTEs ending in ``per_cell``: cell_id, k (central intervals), median (q50 or NULL), disp,
-    over_sum, under_sum (the sums of (alpha/2)(u - l), (l - y)+ and (y - u)+) and crps_q.
+    over_sum, under_sum (the sums of (alpha/2)(u - l), (l - y)+ and (y - u)+), crps_q, and n_q
+    and pinball_sum (the cell's quantile rows and the sum of their pinball losses).
 
     Pairs are found per run: a level whose partner 1 - tau is among the run's levels pairs in
     every cell that has all the run's levels, so those cells need one grouping by cell. A cell
@@ -82,7 +83,8 @@ def _per_cell_ctes(cells: str) -> str:
                sum(CASE WHEN p.tau IS NOT NULL AND q.tau < 0.5 THEN greatest(q.v - q.y, 0) ELSE 0 END) AS over_sum,
                sum(CASE WHEN p.tau IS NOT NULL AND q.tau > 0.5 THEN greatest(q.y - q.v, 0) ELSE 0 END) AS under_sum,
                max(q.v) FILTER (WHERE q.tau = 0.5) AS median,
-               2 * avg(CASE WHEN q.y >= q.v THEN q.tau * (q.y - q.v) ELSE (1 - q.tau) * (q.v - q.y) END) AS crps_q
+               2 * avg(CASE WHEN q.y >= q.v THEN q.tau * (q.y - q.v) ELSE (1 - q.tau) * (q.v - q.y) END) AS crps_q,
+               sum(CASE WHEN q.y >= q.v THEN q.tau * (q.y - q.v) ELSE (1 - q.tau) * (q.v - q.y) END) AS pinball_sum
         FROM qrows q LEFT JOIN paired p ON p.run_id = q.run_id AND p.tau = q.tau
         GROUP BY q.cell_id),
     slow_cells AS (
@@ -101,7 +103,7 @@ def _per_cell_ctes(cells: str) -> str:
                sum(greatest(lower - y, 0)) AS over_sum, sum(greatest(y - upper, 0)) AS under_sum
         FROM slow_pairs GROUP BY cell_id),
     qint AS (
-        SELECT qc.cell_id, qc.median, qc.crps_q, s.cell_id IS NOT NULL AS slow,
+        SELECT qc.cell_id, qc.median, qc.crps_q, qc.n_rows AS n_q, qc.pinball_sum, s.cell_id IS NOT NULL AS slow,
                CASE WHEN s.cell_id IS NULL THEN qc.k ELSE coalesce(ss.k, 0) END AS k,
                CASE WHEN s.cell_id IS NULL THEN qc.disp ELSE coalesce(ss.disp, 0) END AS disp,
                CASE WHEN s.cell_id IS NULL THEN qc.over_sum ELSE coalesce(ss.over_sum, 0) END AS over_sum,
@@ -120,7 +122,7 @@ def _per_cell_ctes(cells: str) -> str:
                sum(greatest(lower - y, 0)) AS over_sum, sum(greatest(y - upper, 0)) AS under_sum
         FROM bkept GROUP BY cell_id),
     per_cell AS (
-        SELECT coalesce(qi.cell_id, bs.cell_id) AS cell_id, qi.median, qi.crps_q,
+        SELECT coalesce(qi.cell_id, bs.cell_id) AS cell_id, qi.median, qi.crps_q, qi.n_q, qi.pinball_sum,
                coalesce(qi.k, 0) + coalesce(bs.k, 0) AS k,
                coalesce(qi.disp, 0) + coalesce(bs.disp, 0) AS disp,
                coalesce(qi.over_sum, 0) + coalesce(bs.over_sum, 0) AS over_sum,
@@ -130,7 +132,8 @@ def _per_cell_ctes(cells: str) -> str:
 
 def wis_group_sql(cells: str, select_keys: str, group: str) -> str:
     """SQL: per group of ``cells`` (alias ``c`` in the key expressions), the means of the WIS
-    columns and swis.
+    columns and swis, and pinball (the mean pinball loss over the group's quantile rows, from the
+    same pass over them).
 
     ``select_keys``/``group``: the key expressions as in :func:`ledger.scoring.cells.scores`
     (empty strings for one group over all cells). swis = mean WIS/q over cells with a scale.
@@ -142,7 +145,8 @@ def wis_group_sql(cells: str, select_keys: str, group: str) -> str:
            avg(c.wis) AS wis, avg(c.wis_dispersion) AS wis_dispersion,
            avg(c.wis_overprediction) AS wis_overprediction,
            avg(c.wis_underprediction) AS wis_underprediction,
-           avg(c.wis / c.q) AS swis, avg(c.crps_q) AS crps_q
+           avg(c.wis / c.q) AS swis, avg(c.crps_q) AS crps_q,
+           sum(c.pinball_sum) / sum(c.n_q) AS pinball
     FROM ({wis_cells_sql(cells)}) c
     {gb}"""
 

@@ -2,11 +2,16 @@
 
     python tests/benchmarks/bench_scoring.py [CELLS] [--models 4] [--horizons 12] [--keep DIR]
     python tests/benchmarks/bench_scoring.py 1000000 --quantiles 9     # the quantile case
+    python tests/benchmarks/bench_scoring.py --reuse --keep DIR --before OLD_TREE  # again, old vs new
 
 Prints: snapshot rows/s from back-fill CSVs (one per model), in-process scoring time grouped by
 model×horizon and by series×model, the wall time of ``backsight scores`` in a fresh process
-(start-up included), and peak RSS. Targets (2 cores): 1M cells snapshotted in under 10 s;
-``backsight scores`` over 1M cells in under 3 s; 10M cells scored in under 20 s under 4 GB.
+(start-up included), and peak RSS; then ``backsight scores --by model,horizon`` side by side with
+a pandas script and a hand-written DuckDB query over the same CSVs (and with the code of an
+older source tree, ``--before``), interleaved, with the load average beside every figure.
+Targets (2 cores): 1M cells snapshotted in under 10 s; ``backsight scores --by model,horizon``
+over 1M cells with two interval levels in 1.2 s, start-up included; 10M cells scored in under
+20 s under 4 GB.
 With ``--quantiles K`` every forecast also carries K evenly spaced quantiles (K = 9: q10..q90)
 and the WIS query is timed on its own; target: 1M cells × 9 quantiles scored with WIS in 3 s.
 """
@@ -14,6 +19,7 @@ and the WIS query is timed on its own; target: 1M cells × 9 quantiles scored wi
 from __future__ import annotations
 
 import argparse
+import os
 import resource
 import subprocess
 import sys
@@ -34,6 +40,82 @@ try:
 finally:
     print(round(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024), file=sys.stderr)
 """
+
+
+# References for the CLI timing, each in a fresh process over the same CSV files: what a user
+# would write without Backsight (fewer metrics: no scale, no WIS; n, MAE, RMSE, bias, and the
+# coverage and width of each level).
+_PANDAS_REF = """
+import sys, glob
+import pandas as pd
+folder = sys.argv[1]
+act = pd.read_csv(folder + "/actuals.csv")
+fc = pd.concat([pd.read_csv(p) for p in sorted(glob.glob(folder + "/forecasts-*.csv"))], ignore_index=True)
+def month(s):
+    return s.str[:4].astype(int) * 12 + s.str[5:7].astype(int)
+fc["horizon"] = month(fc["period"]) - month(fc["origin"])
+c = fc.merge(act, on=["series", "period"])
+c["e"] = c["actual"] - c["forecast"]
+c["ae"], c["se"] = c["e"].abs(), c["e"] ** 2
+for L in (80, 95):
+    c[f"in_{L}"] = ((c[f"lower_{L}"] <= c["actual"]) & (c["actual"] <= c[f"upper_{L}"])).astype(float)
+    c[f"w_{L}"] = c[f"upper_{L}"] - c[f"lower_{L}"]
+g = c.groupby(["model", "horizon"]).agg(n=("e", "size"), mae=("ae", "mean"), mse=("se", "mean"), bias=("e", "mean"),
+    coverage_80=("in_80", "mean"), width_80=("w_80", "mean"), coverage_95=("in_95", "mean"), width_95=("w_95", "mean"))
+g["rmse"] = g.pop("mse") ** 0.5
+g.to_csv(sys.stdout)
+"""
+
+_DUCKDB_REF = r"""
+import sys, duckdb
+folder = sys.argv[1]
+con = duckdb.connect()
+month = "(CAST(left({0}, 4) AS INT) * 12 + CAST(right({0}, 2) AS INT))"
+sql = f'''
+SELECT f.model, {month.format('f.period')} - {month.format('f.origin')} AS horizon,
+       count(*) AS n, avg(abs(a.actual - f.forecast)) AS mae,
+       sqrt(avg((a.actual - f.forecast) ^ 2)) AS rmse, avg(a.actual - f.forecast) AS bias,
+       avg(CASE WHEN a.actual BETWEEN f.lower_80 AND f.upper_80 THEN 1.0 ELSE 0.0 END) AS coverage_80,
+       avg(f.upper_80 - f.lower_80) AS width_80,
+       avg(CASE WHEN a.actual BETWEEN f.lower_95 AND f.upper_95 THEN 1.0 ELSE 0.0 END) AS coverage_95,
+       avg(f.upper_95 - f.lower_95) AS width_95
+FROM read_csv('{folder}/forecasts-*.csv', types={{'period': 'VARCHAR', 'origin': 'VARCHAR'}}) f
+JOIN read_csv('{folder}/actuals.csv', types={{'period': 'VARCHAR'}}) a USING (series, period)
+GROUP BY ALL ORDER BY ALL'''
+con.sql(sql).write_csv("/dev/stdout")
+"""
+
+
+def _load() -> str:
+    return "load average " + " ".join(f"{x:.1f}" for x in os.getloadavg())
+
+
+def _run_child(code: str, args: list[str], src: Path | None = None) -> float:
+    """Wall time of a fresh Python process, start-up included."""
+    env = dict(os.environ)
+    if src is not None:
+        env["PYTHONPATH"] = str(src)
+    t = time.perf_counter()
+    subprocess.run([sys.executable, "-c", code, *args], check=True, stdout=subprocess.DEVNULL,
+                   stderr=subprocess.DEVNULL, env=env)
+    return time.perf_counter() - t
+
+
+def side_by_side(path: Path, folder: Path, before: Path | None, rounds: int) -> None:
+    """``backsight scores --by model,horizon`` beside the pandas and DuckDB references, interleaved
+    (and beside the code in ``before``, a source tree, when given), so all see the same load."""
+    cli = ["--ledger", str(path), "scores", "--by", "model,horizon", "--format", "csv"]
+    cases = [("backsight scores --by model,horizon", _CHILD, cli, None),
+             ("pandas script over the CSVs", _PANDAS_REF, [str(folder)], None),
+             ("hand-written DuckDB over the CSVs", _DUCKDB_REF, [str(folder)], None)]
+    if before is not None:
+        cases.insert(1, (f"backsight scores, code in {before}", _CHILD, cli, before))
+    times: dict[str, list[str]] = {name: [] for name, *_ in cases}
+    for _ in range(rounds):
+        for name, code, args, src in cases:
+            times[name].append(f"{_run_child(code, args, src):.2f} s ({_load()})")
+    for name, runs in times.items():
+        print(f"{name}: " + "; ".join(runs))
 
 
 def _peak_rss_mb(who=resource.RUSAGE_SELF) -> float:
@@ -66,6 +148,7 @@ def build_files(folder: Path, cells: int, models: int, horizons: int, seed: int 
             idx = targets - months[0]
             point = np.repeat(level, horizons) * (1 + 0.05 * rng.standard_normal(n_series * horizons))
             width = 0.15 * np.repeat(level, horizons)
+            wide = width * 1.96 / 1.2816  # the 95% bounds of the same normal as the 80% ones
             parts.append(pd.DataFrame({
                 "model": f"model-{mi}",
                 "origin": labels[origin - months[0]],
@@ -74,6 +157,8 @@ def build_files(folder: Path, cells: int, models: int, horizons: int, seed: int 
                 "forecast": point.round(2),
                 "lower_80": (point - width).round(2),
                 "upper_80": (point + width).round(2),
+                "lower_95": (point - wide).round(2),
+                "upper_95": (point + wide).round(2),
             }))
             for k in range(1, quantiles + 1):
                 tau = k / (quantiles + 1)
@@ -108,7 +193,7 @@ def _time_wis(book) -> None:
     t, cpu = time.perf_counter(), _cpu()
     frame = con.execute(wis_group_sql("_bench", "c.model AS model, c.horizon AS horizon", "c.model, c.horizon")).df()
     print(f"WIS by model×horizon: {len(frame):,} groups in {time.perf_counter() - t:.2f} s wall, "
-          f"{_cpu() - cpu:.2f} s CPU (cells table built first in {made:.2f} s)")
+          f"{_cpu() - cpu:.2f} s CPU (cells table built first in {made:.2f} s; {_load()})")
     con.execute("DROP TABLE _bench")
 
 
@@ -119,7 +204,16 @@ def main() -> None:
     parser.add_argument("--horizons", type=int, default=12)
     parser.add_argument("--keep", type=Path, default=None, help="build in this folder and keep it")
     parser.add_argument("--quantiles", type=int, default=0, help="evenly spaced quantiles per forecast (9: q10..q90)")
+    parser.add_argument("--reuse", action="store_true", help="reuse the ledger and files kept in --keep DIR")
+    parser.add_argument("--before", type=Path, default=None,
+                        help="a source tree (holding ledger/) to time beside this one in the side-by-side runs")
+    parser.add_argument("--rounds", type=int, default=3, help="rounds of the side-by-side runs")
     args = parser.parse_args()
+    if args.reuse:
+        if args.keep is None:
+            parser.error("--reuse needs --keep DIR")
+        reuse(args)
+        return
 
     from ledger import Ledger
 
@@ -155,6 +249,23 @@ def main() -> None:
     print(f"backsight scores (fresh process, start-up included): {time.perf_counter() - t:.2f} s, "
           f"peak RSS {child.stderr.strip().splitlines()[-1]} MB")
     print(f"ledger file: {path.stat().st_size / 1e6:,.0f} MB in {folder}")
+    side_by_side(path, folder, args.before, args.rounds)
+
+
+def reuse(args) -> None:
+    """Time scoring again over a ledger kept by an earlier run (no building, no snapshot)."""
+    from ledger import Ledger
+
+    path = args.keep / "bench.duckdb"
+    with Ledger.open(path, create=False, read_only=True) as book:
+        for by in (["model", "horizon"], ["series", "model"]):
+            t, cpu = time.perf_counter(), _cpu()
+            frame = book.scores(by=by)
+            print(f"scores by {'×'.join(by)}: {len(frame):,} groups in {time.perf_counter() - t:.2f} s wall, "
+                  f"{_cpu() - cpu:.2f} s CPU ({_load()})")
+        if args.quantiles:
+            _time_wis(book)
+    side_by_side(path, args.keep, args.before, args.rounds)
 
 
 if __name__ == "__main__":

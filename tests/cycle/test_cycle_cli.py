@@ -12,7 +12,7 @@ import pytest
 from ledger import Ledger
 from ledger.cli import app
 from ledger.cycle.gate import GATE_EXIT, GATE_LEVELS, at_or_above
-from tests.cycle.test_review import _month
+from tests.cycle.test_review import _month, _narrow_inbox
 from tests.helpers import table_hashes
 
 
@@ -36,21 +36,6 @@ def test_review_prints_what_it_recorded_and_writes_the_report(reviewed, tmp_path
     assert lines[1] == f"{len(found)} finding(s); report {tmp_path / 'rep' / 'index.html'}"
     html = (tmp_path / "rep" / "index.html").read_text(encoding="utf-8")
     assert stored["state_hash"][:12] in html
-
-
-def _narrow_inbox(inbox):
-    """An invented inbox whose one model's 80% intervals are far too narrow (±0.5 around 100 for
-    actuals of sd 10): its calibration finding is of the upper severity."""
-    rng = np.random.default_rng(5)
-    months = pd.period_range("2022-01", "2025-12", freq="M")
-    names = ["n1", "n2", "n3"]
-    y = {s: 100 + rng.normal(0, 10, len(months)) for s in names}
-    (inbox / "narrow").mkdir(parents=True)
-    pd.DataFrame([{"series": s, "period": str(m), "actual": round(float(y[s][i]), 2)}
-                  for s in names for i, m in enumerate(months)]).to_csv(inbox / "actuals.csv", index=False)
-    for o in range(24, len(months) - 1):
-        pd.DataFrame([{"series": s, "period": str(months[o + 1]), "forecast": 100.0, "lower_80": 99.5,
-                       "upper_80": 100.5} for s in names]).to_csv(inbox / "narrow" / f"{months[o]}.csv", index=False)
 
 
 def test_gate_exit_codes(tmp_path, runner):

@@ -5,6 +5,7 @@ reviews equal a hand-computed diff."""
 from __future__ import annotations
 
 import datetime as dt
+import shutil
 
 import numpy as np
 import pandas as pd
@@ -54,6 +55,21 @@ def _month(inbox, k: int) -> None:
     for model, bias in (("stat-a", 0.0), ("stat-b", 6.0)):
         (inbox / model).mkdir(exist_ok=True)
         _run(origin, bias, 100 + k).to_csv(inbox / model / f"{origin}.csv", index=False)
+
+
+def _narrow_inbox(inbox):
+    """An invented inbox whose one model's 80% intervals are far too narrow (±0.5 around 100 for
+    actuals of sd 10): its calibration finding is of the upper severity."""
+    rng = np.random.default_rng(5)
+    months = pd.period_range("2022-01", "2025-12", freq="M")
+    names = ["n1", "n2", "n3"]
+    y = {s: 100 + rng.normal(0, 10, len(months)) for s in names}
+    (inbox / "narrow").mkdir(parents=True)
+    pd.DataFrame([{"series": s, "period": str(m), "actual": round(float(y[s][i]), 2)}
+                  for s in names for i, m in enumerate(months)]).to_csv(inbox / "actuals.csv", index=False)
+    for o in range(24, len(months) - 1):
+        pd.DataFrame([{"series": s, "period": str(months[o + 1]), "forecast": 100.0, "lower_80": 99.5,
+                       "upper_80": 100.5} for s in names]).to_csv(inbox / "narrow" / f"{months[o]}.csv", index=False)
 
 
 @pytest.fixture
@@ -169,13 +185,15 @@ def test_changes_equal_a_hand_computed_diff(book):
 
 def test_changes_of_real_reviews_match_the_sets_of_keys(book, tmp_path):
     inbox = tmp_path / "inbox"
+    _narrow_inbox(inbox)
     keys = []
     for k in range(2):
-        _month(inbox, k)
+        if k == 1:   # a second model with the same too-narrow intervals: one new finding
+            shutil.copytree(inbox / "narrow", inbox / "narrow-copy")
         found = book.review(inbox).findings
         keys.append(set(found.loc[found["severity"] != "note", "key"]))
     got = book.changes().findings
     for status, want in (("new", keys[1] - keys[0]), ("resolved", keys[0] - keys[1]),
                          ("persisting", keys[0] & keys[1])):
         assert set(got.loc[got["status"] == status, "key"]) == want
-    assert len(keys[0] | keys[1]) > 0
+    assert (len(keys[1] - keys[0]), len(keys[0] & keys[1])) == (1, 1)

@@ -35,9 +35,10 @@ SETTINGS = {
     "spark.sql.timestampType": "TIMESTAMP_NTZ",
     "spark.sql.execution.arrow.pyspark.enabled": "true",
 }
-#: Settings for a local session: small data, few cores, no web UI.
+#: Settings for a local session: small data, few cores, no web UI; 3 GB of driver heap because the
+#: weighted scores over a lake ran out of the 1 GB default in a parity test.
 LOCAL_SETTINGS = {"spark.sql.shuffle.partitions": "2", "spark.ui.enabled": "false",
-                  "spark.ui.showConsoleProgress": "false", "spark.driver.memory": "1g",
+                  "spark.ui.showConsoleProgress": "false", "spark.driver.memory": "3g",
                   # a lake has a file per partition and export; listing them is no job for a cluster here
                   "spark.sql.sources.parallelPartitionDiscovery.threshold": "100000"}
 

@@ -23,7 +23,8 @@ from .intake.record import ActualsResult, SnapshotResult, write_actuals, write_r
 from .scoring.events import EventsResult, events_in_force, write_events
 from .methods.recorded import run_backtest
 from .scoring import reads
-from .scoring.cells import Selection, interval_cells, score_cells, scores
+from .scoring.cells import Selection, interval_cells, score_cells
+from .scoring.grouped import scores
 from .scoring.selection import check_selection
 from .findings.summary import keep_findings, standings_summary
 from .store import Store, parse_as_of

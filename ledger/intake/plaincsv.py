@@ -28,9 +28,9 @@ from pathlib import Path
 import duckdb
 import numpy as np
 
-from .csvread import _Text, _delimiter, _header_fields
+from .csvread import CsvText, delimiter, header_fields
 from ..errors import InputError
-from .keys import _PATTERN as _REFUSED
+from .keys import REFUSED_PATTERN
 from ..periods import parse_label
 
 __all__ = ["NotPlain", "PlainCsv", "MAX_COLUMNS"]
@@ -71,7 +71,7 @@ class PlainCsv:
         if path.suffix.lower() in (".parquet", ".pq") or not path.is_file():
             raise NotPlain("not a CSV file")
         try:
-            text = _Text(path, source)
+            text = CsvText(path, source)
         except InputError:
             raise NotPlain("the first block is refused") from None
         try:
@@ -81,9 +81,9 @@ class PlainCsv:
         # A quote in the header could span lines; a lone CR is refused; both go the exact way.
         if encoding != "utf-8" or '"' in header or "\r" in header.rstrip("\r") or "\x00" in header:
             raise NotPlain("header")
-        sep = _delimiter(header)
+        sep = delimiter(header)
         try:
-            names = _header_fields(header, sep, source)
+            names = header_fields(header, sep, source)
         except InputError:
             raise NotPlain("header") from None
         columns = [n.strip().lstrip("\ufeff").strip().lower() for n in names]
@@ -181,6 +181,6 @@ def _plain_key(k: str) -> str:
     """A key in plain form: present, at most 200 bytes, no white space at either end, no refused
     character, already NFC (an ASCII key is)."""
     return (f"{k} IS NOT NULL AND strlen({k}) BETWEEN 1 AND 200 "
-            f"AND NOT regexp_matches({k}, {_text(_EDGE_SPACE + '|' + _REFUSED)}) "
+            f"AND NOT regexp_matches({k}, {_text(_EDGE_SPACE + '|' + REFUSED_PATTERN)}) "
             f"AND (strlen({k}) = length({k}) OR nfc_normalize({k}) = {k})")
 

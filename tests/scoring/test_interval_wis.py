@@ -1,4 +1,4 @@
-"""The bounds-only WIS query (ledger.scoring.interval_wis) against the general one and the pure functions.
+"""The WIS of bounds-only runs (summed row by row in ledger.scoring.grouped) against the cell-by-cell query and the pure functions.
 
 A selection whose runs carry no quantiles takes the bounds-only path of ``scores``; the same
 cells scored beside a run with quantiles take the general path. Both must give the WIS of

@@ -12,6 +12,7 @@ import duckdb
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
 
 from ..errors import RunConflict
 from ..hashing import chain_hash_sql, run_content_hash, write_hash_sql
@@ -53,8 +54,8 @@ def _run_parts(frame: ForecastFrame):
     """Each run's rows in canonical order, one run at a time: (model, origin index, origin, part).
 
     Streams the ready table sorted by run; only one run is held in memory at a time. A part is
-    a dict of NumPy arrays (not a DataFrame: a back-fill of thousands of one-row runs would
-    spend most of its time building frames).
+    a dict of NumPy arrays, the series keys an Arrow array (their bytes go to the hash as they
+    are, with no Python string per row).
     """
     stage = frame.stage
     names = [f"{side}_{i}" for i in range(len(frame.levels)) for side in ("lo", "hi")]
@@ -62,8 +63,9 @@ def _run_parts(frame: ForecastFrame):
     select = ", ".join(["model", "origin_index", "origin", "series", "period_index", "point", *names])
     key, origin, pending = None, None, None
     for batch in stage.batches(select, "model, origin_index, series, period_index"):
-        cols = {c: batch[c].to_numpy() for c in ("model", "origin_index", "series", "period_index")}
-        cols |= {c: batch[c].to_numpy(dtype="float64", na_value=np.nan) for c in ["point", *names]}
+        cols = {c: batch.column(c).to_numpy(zero_copy_only=False) for c in ("model", "origin_index", "period_index")}
+        cols |= {c: batch.column(c).to_numpy(zero_copy_only=False).astype("float64") for c in ["point", *names]}
+        series, origins = batch.column("series"), batch.column("origin")
         model, o_index = cols["model"], cols["origin_index"]
         starts = np.flatnonzero(np.r_[True, (model[1:] != model[:-1]) | (o_index[1:] != o_index[:-1])])
         for a, b in zip(starts, np.r_[starts[1:], len(batch)]):
@@ -71,15 +73,19 @@ def _run_parts(frame: ForecastFrame):
                 yield str(key[0]), int(key[1]), origin, _joined(pending)
                 pending = None
             if pending is None:
-                key, origin, pending = (model[a], o_index[a]), batch["origin"].iat[a], {c: [] for c in cols}
+                key, origin, pending = (model[a], o_index[a]), origins[int(a)].as_py(), {c: [] for c in [*cols, "series"]}
             for c, values in cols.items():
                 pending[c].append(values[a:b])
+            pending["series"].append(series.slice(int(a), int(b - a)))
     if pending is not None:
         yield str(key[0]), int(key[1]), origin, _joined(pending)
 
 
-def _joined(pending: dict[str, list[np.ndarray]]) -> dict[str, np.ndarray]:
-    return {c: v[0] if len(v) == 1 else np.concatenate(v) for c, v in pending.items()}
+def _joined(pending: dict[str, list]) -> dict[str, object]:
+    out = {c: v[0] if len(v) == 1 else np.concatenate(v) for c, v in pending.items() if c != "series"}
+    parts = pending["series"]
+    out["series"] = parts[0] if len(parts) == 1 else pa.concat_arrays(parts)
+    return out
 
 
 def write_runs(store: Store, frame: ForecastFrame, *, note: str | None = None,

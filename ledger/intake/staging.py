@@ -17,7 +17,6 @@ from collections.abc import Iterator
 
 import duckdb
 import numpy as np
-import pandas as pd
 import pyarrow as pa
 
 from ..errors import InputError
@@ -179,8 +178,7 @@ class Stage:
     def series(self) -> list[str]:
         return [r[0] for r in self.con.execute(f"SELECT DISTINCT series FROM {self.ready} ORDER BY series").fetchall()]
 
-    def batches(self, select: str, order: str, vectors: int = 50) -> Iterator[pd.DataFrame]:
-        """The ready table in ``order``, as frames of ``vectors`` DuckDB vectors (2,048 rows each)."""
-        result = self.con.execute(f"SELECT {select} FROM {self.ready} ORDER BY {order}")
-        while len(batch := result.fetch_df_chunk(vectors)):
-            yield batch
+    def batches(self, select: str, order: str, rows: int = 102_400) -> Iterator[pa.RecordBatch]:
+        """The ready table in ``order``, as Arrow record batches of at most ``rows`` rows (no
+        pandas frame per batch: a back-fill of thousands of small runs would spend its time there)."""
+        yield from self.con.sql(f"SELECT {select} FROM {self.ready} ORDER BY {order}").to_arrow_reader(rows)

@@ -156,19 +156,19 @@ def _insert_runs(con, frame: ForecastFrame, rows: list[tuple], replaced: list[tu
 
 
 def _insert_cells(con, frame: ForecastFrame, new_ids: list[tuple[str, int, str]]) -> None:
-    """One INSERT per table for all new runs, straight from the staging table (set-based)."""
+    """One INSERT per table for all new runs, straight from the staging table (set-based), in
+    its order (model, origin, series, period)."""
     con.register("_new_ids", pd.DataFrame(new_ids, columns=["model", "origin_index", "run_id"]))
     try:
         ready = f"{frame.stage.ready} r JOIN _new_ids n ON n.model = r.model AND n.origin_index = r.origin_index"
-        order = "ORDER BY r.model, r.origin_index, r.series, r.period_index"
         con.execute(f"INSERT INTO forecasts SELECT n.run_id, r.series, r.period, r.period_index, "
-                    f"r.period_index - r.origin_index, r.point FROM {ready} {order}")
+                    f"r.period_index - r.origin_index, r.point FROM {ready}")
         for i, level in enumerate(frame.levels):
             con.execute(f"INSERT INTO bounds SELECT n.run_id, r.series, r.period_index, ?, r.lo_{i}, r.hi_{i} "
-                        f"FROM {ready} WHERE r.lo_{i} IS NOT NULL {order}", [level])
+                        f"FROM {ready} WHERE r.lo_{i} IS NOT NULL", [level])
         for j, tau in enumerate(frame.taus):
             con.execute(f"INSERT INTO quantiles SELECT n.run_id, r.series, r.period_index, ?, r.q_{j} "
-                        f"FROM {ready} WHERE r.q_{j} IS NOT NULL {order}", [tau])
+                        f"FROM {ready} WHERE r.q_{j} IS NOT NULL", [tau])
     finally:
         with contextlib.suppress(duckdb.Error):    # after a failed write the first error is the news
             con.unregister("_new_ids")

@@ -349,7 +349,7 @@ class Ledger:
 
         return changes(self.store, since_review=since_review,
                        mase_change=DEFAULT_MASE_CHANGE if mase_change is None else mase_change,
-                       as_of=parse_as_of(as_of))
+                       as_of=None if as_of is None else parse_as_of(as_of))
 
     def stability(self, *, by: Sequence[str] = ("series", "model"), as_of=None, models: Sequence[str] = (),
                   series: Sequence[str] = (), since: str | None = None, until: str | None = None,

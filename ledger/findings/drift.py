@@ -29,8 +29,8 @@ of |e|/q - |e - b|/q, b the mean error since the change; size, sum of |e|/q - th
 before the change, floored at 0. Figure: MASE since the change / MASE before it.
 
 Consolidation: when at least :data:`CONSOLIDATE_MIN` series of one model change in the same
-direction within :data:`CONSOLIDATE_SPAN` periods of each other, one model-level finding lists
-them (``series_list``); its impact is their sum.
+direction within :data:`CONSOLIDATE_SPAN` periods of the first of them, one model-level finding
+lists them (``series_list``), dated at their median date; its impact is their sum.
 """
 
 from __future__ import annotations
@@ -408,12 +408,15 @@ def _merged(group: list[Finding], head: str) -> Finding:
     impact = sum(f.impact for f in group)
     names = ", ".join(series)
     what = head if head.startswith("forecasts") else "errors grew"
-    text = (f"{what} on {len(series)} series from about {group[0].since}: {names}; the largest "
+    # The common change is dated at the members' median date (group is in date order): each
+    # member's date errs either way, and the earliest of several errs early.
+    since = group[(len(group) - 1) // 2].since
+    text = (f"{what} on {len(series)} series from about {since}: {names}; the largest "
             f"({lead.series}): {lead.evidence}")
     severity = "act" if any(f.severity == "act" for f in group) else "watch"
     action = f"{len(series)} series changed together, so look for a common cause; for {lead.series}: {lead.action}"
     return dataclasses.replace(lead, series="", evidence=text, severity=severity, impact=impact, action=action,
-                               series_list=names, since=group[0].since, n=sum(f.n for f in group),
+                               series_list=names, since=since, n=sum(f.n for f in group),
                                horizons=horizon_ranges(sorted({h for f in group for h in _hs(f.horizons)})))
 
 

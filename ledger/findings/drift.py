@@ -5,15 +5,19 @@ change at one time.
 Per series × model × horizon sequence (scored cells ordered by target period, at least
 ``min_cells`` of them) two tests of :mod:`ledger.stats.changepoint` run over every cell, with no
 reference window: the bias scan (mean error moving away from zero, the target of an unbiased
-forecast, so a model biased from its first run is found too) and the size test (a rise of
-sqrt(|e|/q)). Their long-run variance uses the autocorrelation pooled over the model's series at
-that horizon (at least :data:`POOL_MIN` sequences; fewer: each sequence's own), because
+forecast, so a model biased from its first run is found too; the GLS likelihood-ratio scan
+under AR(1) errors) and the size test (a rise of sqrt(|e|/q)). Both use the autocorrelation
+pooled over the model's series at that horizon (the scan whitens the errors with it, the size
+test widens its long-run variance) (at least :data:`POOL_MIN` sequences; fewer: each sequence's own), because
 multi-step errors overlap and one short record cannot estimate it well. A sequence's p-value is
 the Bonferroni minimum of its two tests; all sequences of one ``flags`` call form one family
 under Benjamini-Hochberg (``fdr``). The start of the change is the maximiser of the test that
 gave the smaller p-value. A Page (1954) CUSUM on the errors standardised by the in-control
-estimates (centre 0, the long-run spread; ``drift_k``, ``drift_h``) runs over the newest cells,
-from the start of the change on: ``raised`` is where a monthly monitor would have sounded.
+estimates (bias: the errors whitened with the pooled autocorrelation, centre 0, their
+innovation spread; size: sqrt(|e|/q) about its median before the change; ``drift_k``,
+``drift_h``) runs over the record: ``raised`` is where a monthly monitor would have sounded
+(its first alarm from the start of the change on), and the evidence also gives the start the
+CUSUM itself dates (its last zero before the alarm, not the alarm).
 
 The tracking signal and Trigg's signal are shown in the evidence, never used to raise a finding.
 Sign convention: e = actual - forecast, a positive mean error means forecasts too low.
@@ -25,8 +29,8 @@ of |e|/q - |e - b|/q, b the mean error since the change; size, sum of |e|/q - th
 before the change, floored at 0. Figure: MASE since the change / MASE before it.
 
 Consolidation: when at least :data:`CONSOLIDATE_MIN` series of one model change in the same
-direction within :data:`CONSOLIDATE_SPAN` periods of each other, one model-level finding lists
-them (``series_list``); its impact is their sum.
+direction within :data:`CONSOLIDATE_SPAN` periods of the first of them, one model-level finding
+lists them (``series_list``), dated at their median date; its impact is their sum.
 """
 
 from __future__ import annotations
@@ -36,9 +40,10 @@ import dataclasses
 import numpy as np
 import pandas as pd
 
-from ..stats.changepoint import MIN_SEGMENT, bias_scan, bonferroni_pair, residual_phi, size_shift
+from ..stats.changepoint import (MIN_SEGMENT, bias_scan, bonferroni_pair, cusum_onset, residual_phi, robust_spread,
+                                 size_shift, whiten)
 from ..stats.intervals import benjamini_hochberg
-from ..stats.signals import cusum, tracking_signal, trigg_signal, tracking_window
+from ..stats.signals import tracking_signal, trigg_signal, tracking_window
 from .base import Finding, FlagOptions, horizon_text
 from ..wording import label, pval, short_num as num, signed
 from ..stats.recalibration import corrected_mae
@@ -65,6 +70,7 @@ class _Seq:
     start: int = 0
     shift: float = 0.0
     lrv: float = np.nan
+    phi: float = 0.0
 
 
 #: One row per series × model × horizon sequence, from :func:`sequence_tests`.
@@ -204,7 +210,7 @@ def _test_all(seqs: list[_Seq], cols: dict) -> None:
             q.p = float(p[j])
             q.bias = bool(b[0][j] <= s[0][j])
             q.start = int(b[1][j] if q.bias else s[1][j])
-            q.shift, q.lrv = float(b[2][j]), float(b[3][j])
+            q.shift, q.lrv, q.phi = float(b[2][j]), float(b[3][j]), float(b[4][j])
 
 
 def _pooled(seqs: list[_Seq], phis: dict) -> dict[str, np.ndarray]:
@@ -221,15 +227,15 @@ def _pooled(seqs: list[_Seq], phis: dict) -> dict[str, np.ndarray]:
 
 
 def _both(test, x: np.ndarray, phi: np.ndarray) -> tuple[np.ndarray, ...]:
-    """(p, start, shift, lrv) of ``test`` on rows of x, pooled autocorrelation where given, own elsewhere."""
-    p, start, shift, lrv = (np.empty(x.shape[0]) for _ in range(4))
+    """(p, start, shift, lrv, phi) of ``test`` on rows of x, pooled autocorrelation where given, own elsewhere."""
+    p, start, shift, lrv, used = (np.empty(x.shape[0]) for _ in range(5))
     for given in (True, False):
         rows = np.flatnonzero(np.isfinite(phi) == given)
         if rows.size == 0:
             continue
         r = test(x[rows], phi=phi[rows]) if given else test(x[rows])
-        p[rows], start[rows], shift[rows], lrv[rows] = r.p_value, r.start, r.shift, r.lrv
-    return p, start.astype(int), shift, lrv
+        p[rows], start[rows], shift[rows], lrv[rows], used[rows] = r.p_value, r.start, r.shift, r.lrv, r.phi
+    return p, start.astype(int), shift, lrv, used
 
 
 @dataclasses.dataclass
@@ -238,6 +244,7 @@ class _Assessed:
     adjusted: float
     since: int  # period index where the change starts
     raised: int | None
+    onset: int | None  # period index where the CUSUM dates the change (its last zero before the alarm)
     mean_after: float
     mase_before: float
     mase_after: float
@@ -261,11 +268,38 @@ def _assess(q: _Seq, adjusted: float, cols: dict, recent_from: dict, options: Fl
         excess = max(0.0, float(np.sum(np.abs(e[recent][ok]) / qs[ok] - np.abs(e[recent][ok] - mean_after) / qs[ok])))
     else:
         excess = float(max(0.0, np.sum(s_recent - mase_before))) if np.isfinite(mase_before) else 0.0
-    z = e / np.sqrt(q.lrv) if q.lrv > 0 else np.zeros_like(e)
-    alarm = cusum(z[q.start:], k=options.drift_k, h=options.drift_h).alarm
-    return _Assessed(q, adjusted, int(periods[q.start]), None if alarm is None else int(periods[q.start + alarm]),
+    alarm, onset = _monitor(q, e, cols, options)
+    return _Assessed(q, adjusted, int(periods[q.start]), None if alarm is None else int(periods[alarm]),
+                     None if onset is None else int(periods[onset]),
                      mean_after, mase_before, float(np.nanmean(s[after])) if np.isfinite(s[after]).any() else np.nan,
                      excess, float(s_recent.sum()), int(after.sum()))
+
+
+def _monitor(q: _Seq, e: np.ndarray, cols: dict, options: FlagOptions) -> tuple[int | None, int | None]:
+    """(alarm, onset) cells of the CUSUM kept for the newest periods, in the direction of the change.
+
+    Bias: the errors whitened with the autocorrelation the test used and divided by their
+    innovation spread, sqrt(lrv) (1 - phi), so in control they are iid with mean 0 and sd 1
+    (the CUSUM's design) and the whitened step is (1 - phi) mu per cell. Size: sqrt(|e|/q)
+    standardised by its median and :func:`robust_spread` (MAD-fenced) over the cells before
+    the change (robust in-control estimates; at least 4 cells, else no monitor). The alarm is the first crossing of
+    ``drift_h`` from the scan's start on; the onset dates the change (:func:`cusum_onset`).
+    """
+    if q.bias:
+        spread = np.sqrt(q.lrv) * (1 - q.phi) if q.lrv > 0 else 0.0
+        if not spread > 0:
+            return None, None
+        z, upward = whiten(e, q.phi) / spread, q.shift > 0
+    else:
+        g = _size_values(cols, q.idx)
+        before = g[: q.start]
+        if before.size < 4:
+            return None, None
+        scale = robust_spread(before)
+        if not scale > 0:
+            return None, None
+        z, upward = (g - np.median(before)) / scale, True
+    return cusum_onset(z, k=options.drift_k, h=options.drift_h, upward=upward, from_cell=q.start)
 
 
 def _signal_options(q: _Seq, seasons: dict[str, int], options: FlagOptions) -> tuple[int, float]:
@@ -292,6 +326,9 @@ def _pair_finding(items: list[_Assessed], index: SeriesIndex, cols: dict, total:
         check = "deterioration"
     text = (f"{head}; {_mase_text(lead)}; change-point test adjusted {pval(lead.adjusted)}; tracking signal "
             f"{_one(tracking_signal(e, window=signal[0]))}, Trigg {signed(float(trigg_signal(e, alpha=signal[1])[-1]))}")
+    if lead.raised is not None:
+        text += (f"; a CUSUM monitor would have sounded in {label(lead.raised, freq)}, dating the change from "
+                 f"{label(lead.onset, freq)}")
     if len(hs) > 1:
         text += f"; flagged at {len(hs)} horizons in all ({horizon_ranges(hs)})"
     excess, affected = sum(a.excess for a in items), sum(a.affected for a in items)
@@ -371,12 +408,15 @@ def _merged(group: list[Finding], head: str) -> Finding:
     impact = sum(f.impact for f in group)
     names = ", ".join(series)
     what = head if head.startswith("forecasts") else "errors grew"
-    text = (f"{what} on {len(series)} series from about {group[0].since}: {names}; the largest "
+    # The common change is dated at the members' median date (group is in date order): each
+    # member's date errs either way, and the earliest of several errs early.
+    since = group[(len(group) - 1) // 2].since
+    text = (f"{what} on {len(series)} series from about {since}: {names}; the largest "
             f"({lead.series}): {lead.evidence}")
     severity = "act" if any(f.severity == "act" for f in group) else "watch"
     action = f"{len(series)} series changed together, so look for a common cause; for {lead.series}: {lead.action}"
     return dataclasses.replace(lead, series="", evidence=text, severity=severity, impact=impact, action=action,
-                               series_list=names, since=group[0].since, n=sum(f.n for f in group),
+                               series_list=names, since=since, n=sum(f.n for f in group),
                                horizons=horizon_ranges(sorted({h for f in group for h in _hs(f.horizons)})))
 
 

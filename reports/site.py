@@ -24,6 +24,7 @@ from markupsafe import Markup
 
 from ledger import Ledger, __version__
 from ledger.findings.base import FlagOptions
+from ledger.overrides import overrides_for
 from ledger.store import parse_as_of, utc_now
 from ledger.wording import format_level
 
@@ -103,7 +104,8 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
     findings per value of the attribute; an attribute not recorded at the as-of raises
     :class:`ledger.errors.UnknownName`. ``overrides`` ({override: base}, e.g.
     {"planner-override": "incumbent-hw"}) declares models that adjust another; the value each
-    such step adds is shown beside each model's value over the benchmark.
+    such step adds is shown beside each model's value over the benchmark. None (the default)
+    takes the relation recorded in the ledger (``backsight adjusts``); {} shows none.
     """
     stamp = parse_as_of(as_of)
     out = Path(out_dir)
@@ -116,7 +118,7 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
         # (the longest single job) run while this process reads the report's frames.
         models, chosen = report_models(book, stamp, since, until), incumbent or book.incumbent
         check_roles(models, chosen, benchmark, stamp)
-        overrides = dict(overrides or {})
+        overrides = overrides_for(book.store, stamp, overrides)     # None: as recorded in the ledger
         check_overrides(overrides, models)
         found = pool.submit(findings_job, path, stamp, models, horizon, chosen, benchmark, overrides)
         core = load(book, as_of=stamp, since=since, until=until, horizon=horizon, incumbent=incumbent,

@@ -36,13 +36,13 @@ def report(
     benchmark: Annotated[str | None, typer.Option("--benchmark", metavar="MODEL", help="Benchmark model for the value-added findings.")] = None,
     horizon: Annotated[int, typer.Option("--horizon", min=1, metavar="N", help="Horizon of the headline sentences, standings and series charts.")] = 1,
     group_by: Annotated[str | None, typer.Option("--group-by", metavar="ATTR", help="Add groups.html: accuracy (unweighted and volume-weighted), group totals, findings and series per value of this series attribute (e.g. region).")] = None,
-    adjusts: Annotated[list[str] | None, typer.Option("--adjusts", metavar="OVERRIDE=BASE", help="Declare that model OVERRIDE adjusts model BASE (e.g. planner-override=incumbent-hw), so the forecast value added of that step is shown; repeatable.")] = None,
+    adjusts: Annotated[list[str] | None, typer.Option("--adjusts", metavar="OVERRIDE=BASE", help="Declare that model OVERRIDE adjusts model BASE (e.g. planner-override=incumbent-hw), so the forecast value added of that step is shown; repeatable; replaces the relation recorded with backsight adjusts.")] = None,
 ) -> None:
     """Render the static HTML report (overview, findings, a page per model and per series, methods; with --group-by a groups page) into OUTDIR."""
     from reports import render_report
     from reports.value_added import parse_overrides
 
-    overrides = parse_overrides(adjusts or ())
+    overrides = parse_overrides(adjusts) if adjusts else None      # None: the relation recorded in the ledger
 
     console = Console(stderr=True, highlight=False)
     columns = (TextColumn("Rendering"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),

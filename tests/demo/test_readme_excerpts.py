@@ -2,17 +2,48 @@
 
 from __future__ import annotations
 
+import re
+
+import pytest
+
 from tools.readme_excerpts import EXCERPTS, README, blocks, excerpt, same
 
+SHOWN = blocks(README.read_text(encoding="utf-8"))
 
-def test_readme_excerpts_match_the_demo_ledger(demo_site):
+
+def test_every_excerpt_is_in_the_readme_once():
+    text = README.read_text(encoding="utf-8")
+    assert sorted(SHOWN) == sorted(EXCERPTS)
+    assert all(text.count(f"<!-- excerpt {name}:") == 1 for name in EXCERPTS)
+
+
+def test_every_shown_output_is_an_excerpt_or_marked_illustrative():
+    # A console block that shows output (a line that is neither a `$ ` command nor its indented
+    # continuation) is an excerpt, or the paragraph after it starts "(Illustrative".
+    text = README.read_text(encoding="utf-8")
+    loose = []
+    for m in re.finditer(r"(<!-- excerpt [\w-]+[^>]*-->\n)?```console\n(.*?)```\n", text, re.DOTALL):
+        lines = m.group(2).splitlines()
+        shows_output = any(not line.startswith(("$ ", "    ")) for line in lines)
+        following = text[m.end():].lstrip("\n").split("\n\n", 1)[0]
+        if shows_output and m.group(1) is None and not following.startswith("(Illustrative"):
+            loose.append(lines[0])
+    assert loose == []
+    assert _shows_output_unmarked("```console\n$ backsight verify\nledger: sound\n```\n")   # the check can fail
+
+
+def _shows_output_unmarked(text: str) -> bool:
+    m = re.search(r"(<!-- excerpt [\w-]+[^>]*-->\n)?```console\n(.*?)```\n", text, re.DOTALL)
+    return m is not None and m.group(1) is None and any(not line.startswith(("$ ", "    "))
+                                                         for line in m.group(2).splitlines())
+
+
+@pytest.mark.parametrize("name", sorted(EXCERPTS))
+def test_readme_excerpt_matches_the_demo_ledger(demo_site, name):
     _, result = demo_site            # built once per session (tests/conftest.py)
-    shown = blocks(README.read_text(encoding="utf-8"))
-    assert set(shown) == set(EXCERPTS)
-    for name in EXCERPTS:
-        fresh = excerpt(result.replay.ledger_path, name)
-        assert same(shown[name], fresh), (f"README excerpt {name!r} differs from the demo ledger's output; "
-                                          f"run python -m tools.readme_excerpts and review the diff:\n{fresh}")
+    fresh = excerpt(result.replay.ledger_path, name)
+    assert same(SHOWN[name], fresh), (f"README excerpt {name!r} differs from the demo ledger's output; "
+                                      f"run python -m tools.readme_excerpts and review the diff:\n{fresh}")
 
 
 def test_the_comparison_can_fail():

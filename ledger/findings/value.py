@@ -26,6 +26,8 @@ was above the benchmark's (its figure). Impact: sum over the recent common cells
 Overrides (:mod:`ledger.overrides`): a model that adjusts another (a planner's override of the
 incumbent) is also judged against the model it adjusts, its base, by the same rule at model level
 (check "no value added over its base"): the value each step of the forecasting process adds.
+An override that adds no value over either is one finding, the step's, with the benchmark's
+evidence appended.
 
 Default benchmark: a model named "ref-snaive" (the seasonal-naive reference that Backsight's
 backtests record), else the first model, alphabetically, whose name contains "snaive",
@@ -45,7 +47,7 @@ import pandas as pd
 from ..stats.intervals import benjamini_hochberg
 from ..stats.comparison import DMResult, dm_hln
 from .base import OVER_BASE, Finding, FlagOptions
-from ..wording import label, pval, short_num as num
+from ..wording import label, pval, severity_rank, short_num as num
 from .drift_actions import share
 from .standings import paired, period_differential
 
@@ -92,6 +94,25 @@ def value_findings(cells: pd.DataFrame, subjects: Sequence[str], known: Sequence
                                          f"{bench} on {len(series)} series: {names}")]
             series = []
         out += whole + series
+    return _one_per_override(out)
+
+
+def _one_per_override(found: list[Finding]) -> list[Finding]:
+    """An override that adds no value over its base nor over the benchmark is one problem: the
+    benchmark's finding goes into the step's evidence (impact the larger of the two, not their
+    sum, since both count the same excess errors; severity the more severe)."""
+    steps = {f.model: f for f in found if f.check == OVER_BASE and f.severity != "note"}
+    folded = {f.model: f for f in found if f.model in steps and f.series == "" and f.check == "no value added"}
+    out = []
+    for f in found:
+        if f.check == OVER_BASE and f.model in folded:
+            other = folded[f.model]
+            f = dataclasses.replace(f, evidence=f"{f.evidence}; and {other.evidence}",
+                                    impact=max(f.impact, other.impact),
+                                    severity=min(f.severity, other.severity, key=severity_rank))
+        elif f.model in folded and f is folded[f.model]:
+            continue
+        out.append(f)
     return out
 
 

@@ -139,9 +139,12 @@ def test_value_findings_use_the_recorded_relation_unless_an_option_is_given(copy
     assert row["evidence"].startswith("no value added over its base good in the last 12 evaluation periods (since ")
     assert "the base is significantly more accurate (DM-HLN p" in row["evidence"]
     assert row["action"].startswith("use good instead of bad: ") and row["key"] == "value|bad|||base"
-    # the benchmark finding about bad is still there, with its own key
-    assert set(recorded.loc[(recorded["model"] == "bad") & (recorded["series"] == ""), "key"]) == {
-        "value|bad|||", "value|bad|||base"}
+    # bad adds no value over the benchmark either: one problem, one finding (the step's), and
+    # without the relation the benchmark's finding stands alone under its own key
+    assert recorded.loc[(recorded["model"] == "bad") & (recorded["series"] == ""), "key"].tolist() == ["value|bad|||base"]
+    assert "; and no value added over ref-snaive in the last 12 evaluation periods" in row["evidence"]
+    assert none.loc[(none["model"] == "bad") & (none["series"] == ""), "key"].tolist() == ["value|bad|||"]
+    assert row["impact"] >= none.loc[(none["model"] == "bad") & (none["series"] == ""), "impact"].iloc[0]
     assert not (replaced["check"] == OVER_BASE).any()        # good adjusting bad adds value: no finding
     assert not (empty["check"] == OVER_BASE).any() and not (before["check"] == OVER_BASE).any()
     with Ledger.open(copy, read_only=True, create=False) as book, pytest.raises(UnknownName, match="unknown model 'nope'"):

@@ -24,7 +24,8 @@ from .scoring.events import EventsResult, events_in_force, write_events
 from .overrides import OverridesResult, overrides_in_force, record_overrides
 from .methods.recorded import run_backtest
 from .scoring import reads
-from .scoring.cells import Selection, interval_cells, score_cells, scores
+from .scoring.cells import Selection, interval_cells, score_cells
+from .scoring.grouped import scores
 from .scoring.selection import check_selection
 from .findings.summary import keep_findings, standings_summary
 from .store import Store, parse_as_of
@@ -360,12 +361,15 @@ class Ledger:
                        as_of=parse_as_of(as_of))
 
     def stability(self, *, by: Sequence[str] = ("series", "model"), as_of=None, models: Sequence[str] = (),
-                  series: Sequence[str] = (), since: str | None = None, until: str | None = None) -> pd.DataFrame:
+                  series: Sequence[str] = (), since: str | None = None, until: str | None = None,
+                  include_excluded: bool = False) -> pd.DataFrame:
         """Forecast stability per group: scaled revision, share toward the actual, nervousness
-        (definitions in :mod:`ledger.scoring.stability`); ``by`` takes series, model, horizon, attributes."""
+        (definitions in :mod:`ledger.scoring.stability`); ``by`` takes series, model, horizon, attributes.
+        Target periods that excluding events cover are left out (``n_excluded``) unless ``include_excluded``."""
         from .scoring.stability import stability
 
-        sel = self.selection(as_of=as_of, models=models, series=series, since=since, until=until)
+        sel = self.selection(as_of=as_of, models=models, series=series, since=since, until=until,
+                             include_excluded=include_excluded)
         return stability(self.store, sel, by)
 
     def forecast_paths(self, *, last: int = 4, as_of=None, models: Sequence[str] = (),

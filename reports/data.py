@@ -28,6 +28,7 @@ from .value_added import check_overrides, default_benchmark, fva_steps
 
 __all__ = [
     "check_roles",
+    "default_horizon",
     "Findings",
     "LedgerData",
     "Window",
@@ -58,6 +59,7 @@ class LedgerData:
     since: str | None
     until: str | None
     horizon: int
+    include_excluded: bool        # cells of excluding events scored too (--include-excluded)
     incumbent: str | None
     benchmark: str | None
     models: list[str]
@@ -88,21 +90,25 @@ class Window:
     last: str | None
 
 
-def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | None, horizon: int,
+def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | None, horizon: int | None,
          incumbent: str | None, benchmark: str | None, with_findings: bool = True,
-         models: list[str] | None = None, overrides: dict[str, str] | None = None) -> LedgerData:
+         models: list[str] | None = None, overrides: dict[str, str] | None = None,
+         include_excluded: bool = False) -> LedgerData:
     """Read every frame the report needs, at ``as_of`` (findings only ``with_findings``).
 
     ``models``: what :func:`report_models` returned for the same as-of and periods, if the
-    caller has it (finding them reads every scored cell once more).
+    caller has it (finding them reads every scored cell once more). ``horizon`` None: the
+    ledger's first horizon (:func:`default_horizon`). ``include_excluded``: cells of excluding
+    events are scored too, as ``scores --include-excluded`` scores them.
     """
-    sel = book.selection(as_of=as_of, since=since, until=until)
+    horizon = default_horizon(book, as_of) if horizon is None else horizon
+    sel = book.selection(as_of=as_of, since=since, until=until, include_excluded=include_excluded)
     models = _models(book, sel) if models is None else models
     incumbent = incumbent or book.incumbent
     check_roles(models, incumbent, benchmark, as_of)
     overrides = overrides_for(book.store, as_of, overrides)     # None: as recorded in the ledger
     check_overrides(overrides, models)
-    q = dict(as_of=as_of, since=since, until=until)
+    q = dict(as_of=as_of, since=since, until=until, include_excluded=include_excluded)
     runs = book.live_runs(as_of=as_of)
     # a ledger with no forecast yet has no horizon to select (the selection check would refuse
     # --horizon); every frame is empty then either way
@@ -112,7 +118,7 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
     head_q = dict(q, since=window.first or since)
     return LedgerData(
         as_of=as_of, state_hash=book.report_state_hash(as_of=as_of), since=since, until=until,
-        horizon=horizon, incumbent=incumbent, benchmark=benchmark, models=models, overrides=overrides,
+        horizon=horizon, include_excluded=include_excluded, incumbent=incumbent, benchmark=benchmark, models=models, overrides=overrides,
         series=book.series_table(as_of=as_of), runs=runs,
         by_model_h=book.scores(by=["model", "horizon"], **q),
         by_model_period=by_model_period,
@@ -123,7 +129,8 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
         cells=book.cells(horizons=hs, **q),
         actuals=book.actual_history(as_of=as_of), latest=book.latest_forecasts(as_of=as_of),
         pending=book.pending_cells(**q),
-        findings=_findings(book, models, as_of, horizon, incumbent, benchmark, overrides) if with_findings else None,
+        findings=(_findings(book, models, as_of, horizon, incumbent, benchmark, overrides, include_excluded)
+                  if with_findings else None),
     )
 
 
@@ -135,13 +142,21 @@ def check_roles(models: list[str], incumbent: str | None, benchmark: str | None,
                               f"models: {', '.join(models) or 'none'}")
 
 
-def report_models(book: Ledger, as_of: dt.datetime, since: str | None, until: str | None) -> list[str]:
+def report_models(book: Ledger, as_of: dt.datetime, since: str | None, until: str | None,
+                  include_excluded: bool = False) -> list[str]:
     """The models with a scored cell in the report's selection (those ``load`` reports on)."""
-    return _models(book, book.selection(as_of=as_of, since=since, until=until))
+    return _models(book, book.selection(as_of=as_of, since=since, until=until, include_excluded=include_excluded))
+
+
+def default_horizon(book: Ledger, as_of: dt.datetime) -> int:
+    """The headline horizon when none is asked for: the smallest horizon of the newest live runs
+    (1 for most ledgers; 3 for one whose forecasts start three periods out), 1 with no run."""
+    latest = book.latest_forecasts(as_of=as_of)
+    return int(latest["horizon"].min()) if len(latest) else 1
 
 
 def _models(book: Ledger, sel: Selection) -> list[str]:
-    return book.scored_models(as_of=sel.as_of, since=sel.since, until=sel.until)
+    return book.scored_models(as_of=sel.as_of, since=sel.since, until=sel.until, include_excluded=sel.include_excluded)
 
 
 _UNITS = {"yearly": "years", "quarterly": "quarters", "monthly": "months", "weekly": "weeks", "daily": "days"}
@@ -161,7 +176,8 @@ def _interval_counts(book: Ledger, sel: Selection, head: Selection | None) -> di
     """n cells with bounds and misses (actual outside): per model, horizon and level over ``sel``
     (``intervals``), and per model and level over ``head`` (``headline_intervals``: one horizon
     from the window's first period on, a subset of ``sel``), from one read of the cells."""
-    frame = book.interval_counts(head, as_of=sel.as_of, since=sel.since, until=sel.until)
+    frame = book.interval_counts(head, as_of=sel.as_of, since=sel.since, until=sel.until,
+                                 include_excluded=sel.include_excluded)
     totals = frame.groupby(["model", "horizon", "level"], as_index=False, sort=True)[["n", "misses"]].sum()
     heads = frame[frame["in_head"]].groupby(["model", "level"], as_index=False, sort=True)[["n", "misses"]].sum()
     return {"intervals": totals, "headline_intervals": heads}
@@ -172,10 +188,11 @@ def series_count(book: Ledger, as_of: dt.datetime) -> int:
 
 
 def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, benchmark,
-              overrides: dict[str, str]) -> Findings:
+              overrides: dict[str, str], include_excluded: bool = False) -> Findings:
     """The same frames as ``Ledger.flags``, ``compare``, ``standings`` and ``advise`` at ``as_of``
-    (no model, horizon or period filter), from one read of the scored cells shared by all."""
-    store, sel = book.store, book.selection(as_of=as_of)
+    (no model, horizon or period filter; excluded cells left out unless ``include_excluded``),
+    from one read of the scored cells shared by all."""
+    store, sel = book.store, book.selection(as_of=as_of, include_excluded=include_excluded)
     cells = score_cells(store, sel)
     # the value findings judge the same override steps as the value-added section
     adjusts = ",".join(f"{o}={b}" for o, b in overrides.items())
@@ -201,7 +218,7 @@ def quiet(book: Ledger) -> Ledger:
 
 
 def findings_job(path: str, as_of: dt.datetime, models: list[str], horizon: int, incumbent: str | None,
-                 benchmark: str | None, overrides: dict[str, str]) -> Findings:
+                 benchmark: str | None, overrides: dict[str, str], include_excluded: bool = False) -> Findings:
     """All findings of a report in one worker, sharing one read of the scored cells."""
     with _open(path) as book:
-        return _findings(book, models, as_of, horizon, incumbent, benchmark, overrides)
+        return _findings(book, models, as_of, horizon, incumbent, benchmark, overrides, include_excluded)

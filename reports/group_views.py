@@ -136,15 +136,17 @@ def check_group_by(book: Ledger, attribute: str, as_of: dt.datetime) -> str:
 
 
 def load_groups(book: Ledger, attribute: str, *, as_of: dt.datetime, since: str | None,
-                until: str | None) -> GroupData:
-    """Scores, totals and members of each group (findings are counted later, by :func:`count_findings`)."""
+                until: str | None, include_excluded: bool = False) -> GroupData:
+    """Scores, totals and members of each group (findings are counted later, by :func:`count_findings`).
+    ``include_excluded`` reaches the scores; group totals always leave excluded cells out
+    (``Ledger.totals`` has no such option)."""
     attribute = check_group_by(book, attribute, as_of)
     q = dict(as_of=as_of, since=since, until=until)
     attrs = book.attributes(as_of=as_of)
     members = pd.DataFrame({"series": attrs["series"].astype(str),
                             "group": [_label(v) for v in attrs[attribute]]})
     return GroupData(attribute=attribute,
-                     scores=book.scores(by=[attribute, "model"], weight="volume", **q),
+                     scores=book.scores(by=[attribute, "model"], weight="volume", include_excluded=include_excluded, **q),
                      totals=book.totals(attribute, **q), members=members, findings=None)
 
 

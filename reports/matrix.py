@@ -21,7 +21,7 @@ from ledger.findings.base import FlagOptions
 from .coverage import CoverageCell, coverage_cell
 from .text import is_small
 
-__all__ = ["CoverageMark", "Matrix", "MatrixCell", "MatrixRow", "build_matrix", "horizon_columns", "mark", "pooled_mase"]
+__all__ = ["CoverageMark", "Matrix", "MatrixCell", "MatrixRow", "PartialNote", "build_matrix", "horizon_columns", "mark", "pooled_mase"]
 
 #: Horizon buckets of the matrix: the findings' own (ledger.findings.base.FlagOptions.buckets).
 BUCKETS: tuple[int, ...] = FlagOptions().buckets
@@ -34,8 +34,11 @@ class CoverageMark:
     level: float
     text: str        # "80% ok", "80% narrow?" (watch), "80% narrow!" (out of tolerance)
     zone: str        # css class: zone-ok, zone-watch, zone-out, zone-none
-    title: str       # the long form, for the tooltip and the CSV
+    title: str       # the long form, for the tooltip
     partial: bool    # coverage over fewer cells than the MASE (some cells have no bounds)
+    observed: float  # % of actuals inside (NaN without cells)
+    cells: int       # n_L: cells with this level's bounds
+    of: int          # n: the cells the MASE is over
 
 
 @dataclasses.dataclass(frozen=True)
@@ -55,11 +58,22 @@ class MatrixRow:
 
 
 @dataclasses.dataclass(frozen=True)
+class PartialNote:
+    """A model whose coverage at a level is over fewer than all its scored cells (all columns)."""
+
+    model: str
+    level: float
+    cells: int
+    of: int
+
+
+@dataclasses.dataclass(frozen=True)
 class Matrix:
     columns: list[str]
     rows: list[MatrixRow]
     levels: list[float]
     best_marked: bool
+    partial: list[PartialNote]
 
 
 def horizon_columns(horizons: Sequence[int]) -> list[tuple[str, list[int]]]:
@@ -80,18 +94,22 @@ def horizon_columns(horizons: Sequence[int]) -> list[tuple[str, list[int]]]:
 _WORD = {"too narrow": "narrow", "too wide": "wide"}
 
 
-def mark(cell: CoverageCell, partial: bool) -> CoverageMark:
-    """The matrix's short coverage mark: level, direction, and ? for watch or ! for out of tolerance."""
+def mark(cell: CoverageCell, of: int) -> CoverageMark:
+    """The matrix's short coverage mark: level, direction, and ? for watch or ! for out of tolerance;
+    ``of`` is the number of cells the MASE is over (the mark is partial when fewer have bounds)."""
     head = f"{cell.level:g}%"
+    partial = 0 < cell.n < of
+    facts = dict(partial=partial, observed=cell.observed, cells=cell.n, of=of)
     if cell.n == 0:
-        return CoverageMark(cell.level, f"{head} –", "zone-none", f"{head} interval: no cells with bounds", partial)
+        return CoverageMark(cell.level, f"{head} –", "zone-none", f"{head} interval: no cells with bounds", **facts)
     word = _WORD.get(cell.direction)
-    detail = f"{head} interval held {cell.observed:.1f}% of {cell.n:,} actuals ({cell.misses:,} missed)"
+    over = f", over {cell.n:,} of {of:,} cells" if partial else ""
+    detail = f"{head} interval held {cell.observed:.1f}% of {cell.n:,} actuals ({cell.misses:,} missed){over}"
     if word is None:
-        return CoverageMark(cell.level, f"{head} ok", "zone-ok", f"{detail}: as stated", partial)
+        return CoverageMark(cell.level, f"{head} ok", "zone-ok", f"{detail}: as stated", **facts)
     out = cell.zone == "out of tolerance"
     return CoverageMark(cell.level, f"{head} {word}{'!' if out else '?'}", "zone-out" if out else "zone-watch",
-                        f"{detail}: too {word}, {cell.zone}", partial)
+                        f"{detail}: too {word}, {cell.zone}", **facts)
 
 
 def build_matrix(by_model_h: pd.DataFrame, intervals: pd.DataFrame, levels: Sequence[float],
@@ -108,7 +126,17 @@ def build_matrix(by_model_h: pd.DataFrame, intervals: pd.DataFrame, levels: Sequ
     rows = [MatrixRow(m, model_href.get(m, ""),
                       [MatrixCell(c[0], c[1], marked and best[j] == m, is_small(c[1]), c[2]) for j, c in enumerate(v)])
             for m, v in values.items()]
-    return Matrix([label for label, _ in cols], rows, list(levels), marked)
+    return Matrix([label for label, _ in cols], rows, list(levels), marked, _partial(rows, levels))
+
+
+def _partial(rows: list[MatrixRow], levels) -> list[PartialNote]:
+    out = []
+    for r in rows:
+        for i, level in enumerate(levels):
+            cells, of = sum(c.marks[i].cells for c in r.cells), sum(c.n for c in r.cells)
+            if 0 < cells < of:
+                out.append(PartialNote(r.model, float(level), cells, of))
+    return out
 
 
 def pooled_mase(part: pd.DataFrame) -> float:
@@ -126,7 +154,7 @@ def _cell(part: pd.DataFrame, counts: pd.DataFrame, levels) -> tuple[float, int,
     for level in levels:
         hit = counts[counts["level"] == level]
         k, misses = int(hit["n"].sum()), int(hit["misses"].sum())
-        marks.append(mark(coverage_cell(level, k, misses), partial=0 < k < n))
+        marks.append(mark(coverage_cell(level, k, misses), n))
     return mase, n, marks
 
 

@@ -68,9 +68,10 @@ class QuantileView:
     wis_text: str
 
 
-def load_quantile_data(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | None) -> QuantileData:
+def load_quantile_data(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | None,
+                       include_excluded: bool = False) -> QuantileData:
     """The report's quantile frames, for the same selection as its scores."""
-    q = dict(as_of=as_of, since=since, until=until)
+    q = dict(as_of=as_of, since=since, until=until, include_excluded=include_excluded)
     return QuantileData(cells=book.quantile_cells(**q), wis=book.wis_by_horizon(**q))
 
 

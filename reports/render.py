@@ -51,6 +51,11 @@ def _data(value, text: str) -> markupsafe.Markup | str:
     return markupsafe.Markup('<data value="{}">{}</data>').format(f"{float(value):.12g}", text)
 
 
+def _csv_value(x) -> str:
+    """A figure for a ``<data data-col>`` (a CSV-only column): 12 significant digits, blank when missing."""
+    return f"{float(x):.12g}" if _finite(x) else ""
+
+
 def _num(x, digits: int = 3):
     return _data(x, num(x, digits))
 
@@ -79,7 +84,7 @@ def environment() -> jinja2.Environment:
         lstrip_blocks=True,
         keep_trailing_newline=True,
     )
-    env.filters.update(num=_num, pct=_pct, bias=bias_words, share=_share, pvalue=_pvalue)
+    env.filters.update(num=_num, pct=_pct, csv_value=_csv_value, bias=bias_words, share=_share, pvalue=_pvalue)
     env.globals.update(csp=CSP, css=_css, small_sample=SMALL_SAMPLE)
     return env
 

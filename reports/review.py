@@ -231,7 +231,7 @@ def _text(v) -> str:
 
 def _figures(data: LedgerData, counts: dict, flags: pd.DataFrame) -> list[HeadFigure]:
     figs = [HeadFigure("Forecasts scored", f"{counts['cells_scored']:,}",
-                       f"{counts['cells_pending']:,} still await their actuals")]
+                       f"{counts['cells_pending']:,} still await their actuals" + _excluded_note(data, counts))]
     w, head = data.window, data.headline
     span = f"last {plural(w.length, w.unit.rstrip('s'), w.unit)}" if w.first else ""
     if len(head) and w.first and head["mase"].notna().any():
@@ -248,6 +248,14 @@ def _figures(data: LedgerData, counts: dict, flags: pd.DataFrame) -> list[HeadFi
     return figs[:5]
 
 
+def _excluded_note(data: LedgerData, counts: dict) -> str:
+    """What the events did to the count: cells left out (and how to put them back), or put back."""
+    if data.include_excluded:
+        return "; cells of excluding events included (--include-excluded)"
+    n = counts.get("cells_excluded", 0)
+    return f"; {n:,} left out by events (--include-excluded scores them)" if n else ""
+
+
 def _coverage_figure(data: LedgerData, model: str, span: str) -> list[HeadFigure]:
     counts = data.headline_intervals[data.headline_intervals["model"] == model]
     if counts.empty:
@@ -257,5 +265,8 @@ def _coverage_figure(data: LedgerData, model: str, span: str) -> list[HeadFigure
     cell = coverage_cell(level, n, misses)
     words = coverage_words(cell.observed, level, cell.direction, cell.zone).split(" — ", 1)[-1]
     small = ", small sample" if is_small(n) else ""
+    scored = data.headline.loc[data.headline["model"] == model, "n"]
+    of = int(scored.iloc[0]) if len(scored) else n
+    over = f" of {of:,} scored cells (the others have no bounds)" if n < of else ""
     return [HeadFigure(f"{level:g}% intervals held, {model}", pct(cell.observed, 0),
-                       f"{words}; {span}, n = {n:,}{small}")]
+                       f"{words}; {span}, n = {n:,}{over}{small}")]

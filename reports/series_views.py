@@ -44,6 +44,7 @@ class SeriesMetric:
     bias_pct: float
     bias_text: str
     coverage: dict[str, float]   # level label -> observed coverage in %
+    cells: dict[str, int]        # level label -> n_L, the cells with that level's bounds
     n_unscaled: int
     small: bool
 
@@ -260,6 +261,7 @@ def metrics_for(frame: pd.DataFrame, model_href: dict[str, str], levels: Sequenc
         out.append(SeriesMetric(
             model=str(r["model"]), href=model_href.get(r["model"], ""), n=int(r["n"]), mape=f("mape"),
             mase=f("mase"), wape=f("wape"), bias_pct=f("bias_pct"), bias_text=bias_words(f("bias_pct")),
-            coverage={lv: 100 * f(f"coverage_{lv}") for lv in levels}, n_unscaled=int(r["n_unscaled"]),
+            coverage={lv: 100 * f(f"coverage_{lv}") for lv in levels},
+            cells={lv: int(r[f"n_{lv}"]) if not pd.isna(r.get(f"n_{lv}")) else 0 for lv in levels}, n_unscaled=int(r["n_unscaled"]),
             small=is_small(int(r["n"]))))
     return out

@@ -30,7 +30,7 @@ from ledger.wording import format_level
 
 from . import charts
 from .cycle_views import CycleData, SeriesCycle, build_series_cycle, load_cycle
-from .data import LedgerData, check_roles, findings_job, load, quiet, report_models, series_count
+from .data import LedgerData, check_roles, default_horizon, findings_job, load, quiet, report_models, series_count
 from .trends import ROLLING
 from .value_added import SEASONAL_NAIVE_NAMES, check_overrides
 from .group_views import GROUPS_PAGE, GroupData, build_groups, check_group_by, count_findings, load_groups
@@ -88,15 +88,18 @@ class ReportResult:
 
 def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None, until: str | None = None,
                   title: str | None = None, incumbent: str | None = None, benchmark: str | None = None,
-                  horizon: int = 1, progress: Progress | None = None, workers: int | None = None,
-                  group_by: str | None = None, overrides: Mapping[str, str] | None = None) -> ReportResult:
+                  horizon: int | None = None, progress: Progress | None = None, workers: int | None = None,
+                  group_by: str | None = None, overrides: Mapping[str, str] | None = None,
+                  include_excluded: bool = False) -> ReportResult:
     """Write the report site for the ledger at ``ledger_path`` into ``out_dir``; return what was written.
 
     ``as_of`` (default now) fixes what the ledger held; the same ledger and as-of give the same
     numbers. ``since``/``until`` bound the target periods of the accuracy tables and charts.
     ``incumbent`` (default: the ledger's stored incumbent) enables replacement advice;
     ``benchmark`` names the value-added reference. ``horizon`` is the horizon of the headline
-    sentences, standings and series charts. ``workers`` (default: up to four CPUs when there
+    sentences, standings and series charts (default: the smallest horizon of the ledger's
+    newest runs, so that a ledger whose forecasts start at horizon 3 renders as it is;
+    a horizon no run has raises :class:`ledger.errors.UnknownName`). ``workers`` (default: up to four CPUs when there
     are many series; 0 = all in this process) runs the findings and the series charts in
     worker processes, each with its own read-only connection to the ledger.
     ``progress(done, total, what)`` is called after each page or chunk of series pages.
@@ -106,6 +109,8 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
     {"planner-override": "incumbent-hw"}) declares models that adjust another; the value each
     such step adds is shown beside each model's value over the benchmark. None (the default)
     takes the relation recorded in the ledger (``backsight adjusts``); {} shows none.
+    ``include_excluded`` scores the cells of excluding events too, as ``scores
+    --include-excluded`` does; by default they are left out and counted on the first screen.
     """
     stamp = parse_as_of(as_of)
     out = Path(out_dir)
@@ -116,15 +121,21 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
         group_by = check_group_by(book, group_by, stamp) if group_by is not None else None
         # Started first, on the models and incumbent load() will find, so that the findings
         # (the longest single job) run while this process reads the report's frames.
-        models, chosen = report_models(book, stamp, since, until), incumbent or book.incumbent
+        if horizon is None:
+            horizon = default_horizon(book, stamp)
+        elif len(book.live_runs(as_of=stamp)):
+            book.selection(as_of=stamp, horizons=[horizon])   # a horizon no run has: one plain error
+        models, chosen = report_models(book, stamp, since, until, include_excluded), incumbent or book.incumbent
         check_roles(models, chosen, benchmark, stamp)
         overrides = overrides_for(book.store, stamp, overrides)     # None: as recorded in the ledger
         check_overrides(overrides, models)
-        found = pool.submit(findings_job, path, stamp, models, horizon, chosen, benchmark, overrides)
+        found = pool.submit(findings_job, path, stamp, models, horizon, chosen, benchmark, overrides, include_excluded)
         core = load(book, as_of=stamp, since=since, until=until, horizon=horizon, incumbent=incumbent,
-                    benchmark=benchmark, with_findings=False, models=models, overrides=overrides)
-        groups = load_groups(book, group_by, as_of=stamp, since=since, until=until) if group_by else None
-        quantiles = load_quantile_data(book, as_of=stamp, since=since, until=until)
+                    benchmark=benchmark, with_findings=False, models=models, overrides=overrides,
+                    include_excluded=include_excluded)
+        groups = (load_groups(book, group_by, as_of=stamp, since=since, until=until, include_excluded=include_excluded)
+                  if group_by else None)
+        quantiles = load_quantile_data(book, as_of=stamp, since=since, until=until, include_excluded=include_excluded)
         ctx = build_context(core, title or "Forecast accuracy report")
         cycle = load_cycle(book, stamp, core.models, core.series, ctx.styles, _fan_preference(core))
         inputs = series_inputs(core, ctx, cycle=cycle.series)

@@ -3,7 +3,10 @@
 The CSV is read back from the rendered table itself, so it has the same rows and columns as
 what the reader sees: the header row from ``<th>`` cells, one line per body row, and for a
 cell that shows a number the full-precision value that the template's number filters put in a
-``<data value="…">`` element (:mod:`reports.render`). Rows that span the whole table ("No
+``<data value="…">`` element (:mod:`reports.render`). A figure the page shows only in a mark
+or a tooltip (such as the number of cells a coverage was computed over) travels as an empty
+``<data data-col="NAME" value="…">``: it becomes a column NAME of its own, after the table's
+columns, so the CSV carries it without widening the table on screen. Rows that span the whole table ("No
 findings.") are messages, not data, and are left out. Text cells that a spreadsheet would run
 as a formula (a leading =, +, −, @, tab or carriage return) get a leading apostrophe, the
 defence OWASP describes for "CSV injection" (OWASP Foundation, CSV Injection, from memory).
@@ -47,17 +50,23 @@ class _Cells(html.parser.HTMLParser):
         self._row: list[str] | None = None
         self._cell: list[str] | None = None
         self._value: str | None = None
+        self._extra: dict[str, str] = {}
+        self.extras: list[dict[str, str]] = []     # per row: the data-col values of its cells
         self._spans = False
         self._caption = 0
 
     def handle_starttag(self, tag, attrs):
         if tag == "tr":
-            self._row, self._spans = [], False
+            self._row, self._spans, self._extra = [], False, {}
         elif tag in ("td", "th") and self._row is not None:
             self._cell, self._value = [], None
             self._spans = self._spans or any(k == "colspan" for k, _ in attrs)
-        elif tag == "data" and self._cell is not None and self._value is None:
-            self._value = dict(attrs).get("value")
+        elif tag == "data" and self._cell is not None:
+            found = dict(attrs)
+            if found.get("data-col"):
+                self._extra[found["data-col"]] = found.get("value") or ""
+            elif self._value is None:
+                self._value = found.get("value")
         elif tag == "caption":
             self._caption += 1
 
@@ -69,6 +78,7 @@ class _Cells(html.parser.HTMLParser):
         elif tag == "tr" and self._row is not None:
             if not self._spans:
                 self.rows.append(self._row)
+                self.extras.append(self._extra)
             self._row = None
         elif tag == "caption":
             self._caption -= 1
@@ -78,16 +88,22 @@ class _Cells(html.parser.HTMLParser):
             self._cell.append(data)
 
 
-def _rows(table_html: str) -> list[list[str]]:
+def _rows(table_html: str) -> tuple[list[list[str]], list[list[str]]]:
+    """(the table's rows as shown, the CSV's rows): the CSV's add the data-col columns, named in
+    order of first appearance, after the shown ones."""
     parser = _Cells()
     parser.feed(table_html)
     parser.close()
-    return parser.rows
+    names = list(dict.fromkeys(k for extra in parser.extras for k in extra))
+    if not names or not parser.rows:
+        return parser.rows, parser.rows
+    head, *body = zip(parser.rows, parser.extras)
+    return parser.rows, [head[0] + names] + [row + [extra.get(k, "") for k in names] for row, extra in body]
 
 
 def table_csv(table_html: str) -> str:
     """The CSV text of one rendered ``<table>`` (header row first)."""
-    return _csv(_rows(table_html))
+    return _csv(_rows(table_html)[1])
 
 
 def _csv(rows: list[list[str]]) -> str:
@@ -130,12 +146,12 @@ def attach_csv(page: str, text: str) -> tuple[str, dict[str, str]]:
     for i, match in enumerate(_TABLE.finditer(text), start=1):
         name = f"{stem}-{i}.csv"
         table = match.group(0)
-        rows = _rows(table)
+        shown, rows = _rows(table)
         files[name] = _csv(rows)
         end = match.end()
         wrap = _WRAP_END.match(text, end)
         out.append(text[last:match.start()])
-        out.append(label_cells(table, rows[0]) if rows else table)
+        out.append(label_cells(table, shown[0]) if shown else table)
         if wrap:
             out.append(text[end:wrap.end()])
             end = wrap.end()

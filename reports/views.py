@@ -273,7 +273,8 @@ def build_overview(data: LedgerData, ctx: Context) -> Overview:
     all_periods = _scored_period_range(data)
     counts = {"series": len(data.series), "models": len(data.models), "runs": len(data.runs),
               "cells_scored": int(data.by_model_h["n"].sum()) if len(data.by_model_h) else 0,
-              "cells_pending": data.pending}
+              "cells_pending": data.pending,
+              "cells_excluded": int(data.by_model_h["n_excluded"].sum()) if "n_excluded" in data.by_model_h else 0}
     flag_rows = finding_rows(rank_flags(data.findings.flags), ctx)
     chart_list, notes = _overview_charts(data, ctx)
     trends, trend_notes = trend_charts(data.by_model_period, data.findings.standings, data.findings.flags,
@@ -353,7 +354,11 @@ def _coverage_clause(data: LedgerData, model: str) -> str:
     level = 80.0 if (counts["level"] == 80).any() else float(counts["level"].iloc[0])
     cell = coverage_cell(level, int(counts.loc[counts["level"] == level, "n"].sum()),
                          int(counts.loc[counts["level"] == level, "misses"].sum()))
-    return f"; its {format_level(level)}% intervals {coverage_words(cell.observed, level, cell.direction, cell.zone)} ({sample_note(cell.n)})"
+    scored = data.headline.loc[data.headline["model"] == model, "n"]
+    of = int(scored.iloc[0]) if len(scored) else cell.n
+    over = f", over {cell.n:,} of {of:,} scored cells" if cell.n < of else ""
+    return (f"; its {format_level(level)}% intervals {coverage_words(cell.observed, level, cell.direction, cell.zone)} "
+            f"({sample_note(cell.n)}{over})")
 
 
 def _advice_rows(data: LedgerData) -> list[AdviceRow]:

@@ -139,12 +139,13 @@ def stability(
     since: SinceOpt = None,
     until: UntilOpt = None,
     as_of: AsOfOpt = None,
+    include_excluded: IncludeExcludedOpt = False,
     fmt: FormatOpt = Format.table,
 ) -> None:
     """How much forecasts of the same target period change from run to run: scaled revision, share toward the actual, nervousness."""
     with open_ledger(ctx) as book, busy("Measuring"):
         frame = book.stability(by=by.split(","), as_of=as_of, models=model or (), series=series or (),
-                               since=since, until=until)
+                               since=since, until=until, include_excluded=include_excluded)
     if fmt is Format.table and frame.empty:
         notice("no target period has two runs yet: nothing to compare")
         return

@@ -27,7 +27,7 @@ from .common import (
     say,
 )
 from .engines import Engine, EngineOpt, LakeOpt, SparkMasterOpt, reading_ledger
-from .filters import HorizonOpt, ModelOpt, SeriesOpt, SinceOpt, UntilOpt, WhereOpt, selection
+from .filters import with_selection
 from .thresholds import with_thresholds
 from ..findings.summary import finding_counts
 from .cycle import FailOnOpt, check_fail_on, gate
@@ -55,16 +55,12 @@ _FLAG_TABLE = ["kind", "severity", "series", "model", "horizons", "level", "sinc
 
 @app.command()
 @with_thresholds
+@with_selection()
 def flags(
     ctx: typer.Context,
     kind: Annotated[list[Kind] | None, typer.Option("--kind", metavar="KIND", help="Only findings of this kind: drift, calibration, value or data (repeatable).")] = None,
     severity: Annotated[list[SeverityOpt] | None, typer.Option("--severity", metavar="SEVERITY", help="Only findings of this severity: act, watch or note (repeatable).")] = None,
-    model: ModelOpt = None,
-    series: SeriesOpt = None,
-    horizon: HorizonOpt = None,
-    since: SinceOpt = None,
-    until: UntilOpt = None,
-    where: WhereOpt = None,
+    chosen: dict | None = None,
     by: Annotated[str | None, typer.Option("--by", metavar="ATTR", help="Count findings per value of this series attribute and kind.")] = None,
     long: Annotated[bool, typer.Option("--long", help="After the table, each finding's evidence as a sentence.")] = False,
     include_excluded: IncludeExcludedOpt = False,
@@ -80,8 +76,7 @@ def flags(
     if fail_on is not None and by is not None:
         raise typer.BadParameter("--fail-on needs the findings themselves; leave out --by", param_hint="--fail-on")
     check_fail_on(fail_on)
-    chosen = dict(selection(model=model, series=series, horizon=horizon, since=since, until=until, where=where),
-                  kinds=[k.value for k in kind or []], severities=[s.value for s in severity or []],
+    chosen = dict(chosen, kinds=[k.value for k in kind or []], severities=[s.value for s in severity or []],
                   include_excluded=include_excluded)
     with reading_ledger(ctx, engine, lake, spark_master) as book, busy("Checking"):
         if by is not None:
@@ -112,21 +107,17 @@ def _print_findings(frame, fmt: Format, long: bool) -> None:
 
 
 @app.command()
+@with_selection(models=False)
 def compare(
     ctx: typer.Context,
     a: Annotated[str, typer.Argument(metavar="MODEL_A", help="Model a: the incumbent or reference.")],
     b: Annotated[str, typer.Argument(metavar="MODEL_B", help="Model b: the challenger.")],
-    horizon: HorizonOpt = None,
-    series: SeriesOpt = None,
-    since: SinceOpt = None,
-    until: UntilOpt = None,
-    where: WhereOpt = None,
+    chosen: dict | None = None,
     as_of: AsOfOpt = None,
     alpha: AlphaOpt = 0.05,
     fmt: FormatOpt = Format.table,
 ) -> None:
     """Compare two models per horizon on common cells: MAE, MASE, relative MAE, win share, DM-HLN."""
-    chosen = selection(series=series, horizon=horizon, since=since, until=until, where=where, with_models=False)
     with open_ledger(ctx) as book, busy("Comparing"):
         frame = book.compare(a, b, as_of=as_of, alpha=alpha, **chosen)
     verdict = frame.attrs.get("verdict", "")
@@ -139,21 +130,16 @@ def compare(
 
 
 @app.command()
+@with_selection()
 def standings(
     ctx: typer.Context,
-    horizon: HorizonOpt = None,
-    model: ModelOpt = None,
-    series: SeriesOpt = None,
-    since: SinceOpt = None,
-    until: UntilOpt = None,
-    where: WhereOpt = None,
+    chosen: dict | None = None,
     periods: Annotated[bool, typer.Option("--periods", help="The per-period table (each period's MASE, rank, share of series won) instead of the per-model summary.")] = False,
     recent: Annotated[int, typer.Option("--recent", metavar="N", min=1, help="Evaluation periods behind the summary's recent MASE.")] = 12,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
 ) -> None:
     """Who ranks first how often: a per-model summary, or per evaluation period with --periods."""
-    chosen = selection(model=model, series=series, horizon=horizon, since=since, until=until, where=where)
     with open_ledger(ctx) as book, busy("Ranking"):
         frame = book.standings(as_of=as_of, **chosen) if periods else \
             book.standings_summary(recent=recent, as_of=as_of, **chosen)
@@ -167,18 +153,19 @@ def standings(
                            "periods (rank 1 = lowest MASE; --periods for each period)")
 
 
+# advise's --horizon says what a horizon means to the advice
+_AdviseHorizonOpt = Annotated[list[int] | None, typer.Option("--horizon", metavar="N", help="A horizon that matters (repeatable; default all).")]
+
+
 @app.command()
+@with_selection(models=False, horizon=_AdviseHorizonOpt)
 def advise(
     ctx: typer.Context,
     incumbent: Annotated[str | None, typer.Option("--incumbent", metavar="MODEL", help="The model in use (default: the stored incumbent).")] = None,
     save: Annotated[bool, typer.Option("--save", help="Store --incumbent in the ledger for later calls.")] = False,
     challenger: Annotated[list[str] | None, typer.Option("--challenger", metavar="MODEL", help="Only this challenger (repeatable; default all).")] = None,
     window: Annotated[int, typer.Option("--window", metavar="N", help="Evaluation periods in the recent window.")] = 12,
-    horizon: Annotated[list[int] | None, typer.Option("--horizon", metavar="N", help="A horizon that matters (repeatable; default all).")] = None,
-    series: SeriesOpt = None,
-    since: SinceOpt = None,
-    until: UntilOpt = None,
-    where: WhereOpt = None,
+    chosen: dict | None = None,
     alpha: AlphaOpt = 0.05,
     as_of: AsOfOpt = None,
     fmt: FormatOpt = Format.table,
@@ -190,7 +177,6 @@ def advise(
         with Ledger.open(ctx.obj["ledger"], create=False) as book:
             book.set_incumbent(incumbent)
         notice(f"incumbent set to {incumbent}")
-    chosen = selection(series=series, horizon=horizon, since=since, until=until, where=where, with_models=False)
     with open_ledger(ctx) as book, busy("Advising"):
         frame = book.advise(incumbent, challengers=challenger or (), window=window, alpha=alpha, as_of=as_of,
                             **chosen)

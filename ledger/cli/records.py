@@ -24,7 +24,7 @@ from .common import (
 )
 from .columns import choose_columns
 from .engines import Engine, EngineOpt, LakeOpt, SparkMasterOpt, reading_ledger
-from .filters import HorizonOpt, ModelOpt, SeriesOpt, SinceOpt, UntilOpt, WhereOpt, selection
+from .filters import ModelOpt, selection, with_selection
 from ..overrides import parse_overrides
 from ..wording import plural
 from ..scoring.totals import INTERVAL_NOTE
@@ -71,15 +71,11 @@ def actuals(
 
 
 @app.command()
+@with_selection()
 def scores(
     ctx: typer.Context,
     by: Annotated[str | None, typer.Option("--by", metavar="KEYS", help="Comma list of series, model, horizon, origin, period, or attribute names (default model,horizon; with --totals: model).")] = None,
-    model: ModelOpt = None,
-    series: SeriesOpt = None,
-    horizon: HorizonOpt = None,
-    since: SinceOpt = None,
-    until: UntilOpt = None,
-    where: WhereOpt = None,
+    chosen: dict | None = None,
     weight: Annotated[str | None, typer.Option("--weight", metavar="ATTR", help="Add weighted MAPE, bias, MASE, RMSSE: 'volume' or a numeric attribute (× volume).")] = None,
     totals: Annotated[str | None, typer.Option("--totals", metavar="ATTR", help="Score each group's total (sum of members) instead of cells, per --by.")] = None,
     metrics: Annotated[str | None, typer.Option("--metrics", metavar="LIST", help="Columns to show: a comma list (e.g. rmse,smape,width_80) or 'all'. Default for the table: n, MAE, MAPE, MASE, bias %, the first coverage level; csv/json: all.")] = None,
@@ -93,7 +89,6 @@ def scores(
 ) -> None:
     """Accuracy per group: MAE, RMSE, MAPE, sMAPE, WAPE, MASE, RMSSE, bias, coverage, interval score, WIS."""
     keys = [k.strip().lower() for k in (by or ("model" if totals else "model,horizon")).split(",") if k.strip()]
-    chosen = selection(model=model, series=series, horizon=horizon, since=since, until=until, where=where)
     with reading_ledger(ctx, engine, lake, spark_master) as book, busy("Scoring"):
         if totals is not None:
             if chosen["series"]:

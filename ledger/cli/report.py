@@ -19,7 +19,7 @@ from rich.progress import (
     TimeElapsedColumn,
 )
 
-from .common import AsOfOpt, app, say
+from .common import AsOfOpt, IncludeExcludedOpt, app, say
 
 __all__ = ["report"]
 
@@ -34,8 +34,9 @@ def report(
     title: Annotated[str | None, typer.Option("--title", metavar="TEXT", help="Title of the report.")] = None,
     incumbent: Annotated[str | None, typer.Option("--incumbent", metavar="MODEL", help="The model in use; enables replacement advice (default: the ledger's stored incumbent).")] = None,
     benchmark: Annotated[str | None, typer.Option("--benchmark", metavar="MODEL", help="Benchmark model for the value-added findings.")] = None,
-    horizon: Annotated[int, typer.Option("--horizon", min=1, metavar="N", help="Horizon of the headline sentences, standings and series charts.")] = 1,
+    horizon: Annotated[int | None, typer.Option("--horizon", min=1, metavar="N", help="Horizon of the headline sentences, standings and series charts (default: the smallest horizon of the newest runs, usually 1).")] = None,
     group_by: Annotated[str | None, typer.Option("--group-by", metavar="ATTR", help="Add groups.html: accuracy (unweighted and volume-weighted), group totals, findings and series per value of this series attribute (e.g. region).")] = None,
+    include_excluded: IncludeExcludedOpt = False,
     adjusts: Annotated[list[str] | None, typer.Option("--adjusts", metavar="OVERRIDE=BASE", help="Declare that model OVERRIDE adjusts model BASE (e.g. planner-override=incumbent-hw), so the forecast value added of that step is shown; repeatable; replaces the relation recorded with backsight adjusts.")] = None,
 ) -> None:
     """Render the static HTML report (overview, findings, a page per model and per series, methods; with --group-by a groups page) into OUTDIR."""
@@ -55,5 +56,5 @@ def report(
 
         result = render_report(ctx.obj["ledger"], out_dir, as_of=as_of, since=since, until=until, title=title,
                                incumbent=incumbent, benchmark=benchmark, horizon=horizon, progress=progress,
-                               group_by=group_by, overrides=overrides)
+                               group_by=group_by, overrides=overrides, include_excluded=include_excluded)
     say(str(result.index))

@@ -5,15 +5,19 @@ change at one time.
 Per series × model × horizon sequence (scored cells ordered by target period, at least
 ``min_cells`` of them) two tests of :mod:`ledger.stats.changepoint` run over every cell, with no
 reference window: the bias scan (mean error moving away from zero, the target of an unbiased
-forecast, so a model biased from its first run is found too) and the size test (a rise of
-sqrt(|e|/q)). Their long-run variance uses the autocorrelation pooled over the model's series at
-that horizon (at least :data:`POOL_MIN` sequences; fewer: each sequence's own), because
+forecast, so a model biased from its first run is found too; the GLS likelihood-ratio scan
+under AR(1) errors) and the size test (a rise of sqrt(|e|/q)). Both use the autocorrelation
+pooled over the model's series at that horizon (the scan whitens the errors with it, the size
+test widens its long-run variance) (at least :data:`POOL_MIN` sequences; fewer: each sequence's own), because
 multi-step errors overlap and one short record cannot estimate it well. A sequence's p-value is
 the Bonferroni minimum of its two tests; all sequences of one ``flags`` call form one family
 under Benjamini-Hochberg (``fdr``). The start of the change is the maximiser of the test that
 gave the smaller p-value. A Page (1954) CUSUM on the errors standardised by the in-control
-estimates (centre 0, the long-run spread; ``drift_k``, ``drift_h``) runs over the newest cells,
-from the start of the change on: ``raised`` is where a monthly monitor would have sounded.
+estimates (bias: the errors whitened with the pooled autocorrelation, centre 0, their
+innovation spread; size: sqrt(|e|/q) about its median before the change; ``drift_k``,
+``drift_h``) runs over the record: ``raised`` is where a monthly monitor would have sounded
+(its first alarm from the start of the change on), and the evidence also gives the start the
+CUSUM itself dates (its last zero before the alarm, not the alarm).
 
 The tracking signal and Trigg's signal are shown in the evidence, never used to raise a finding.
 Sign convention: e = actual - forecast, a positive mean error means forecasts too low.
@@ -36,15 +40,16 @@ import dataclasses
 import numpy as np
 import pandas as pd
 
-from ..stats.changepoint import MIN_SEGMENT, bias_scan, bonferroni_pair, residual_phi, size_shift
+from ..stats.changepoint import (MIN_SEGMENT, bias_scan, bonferroni_pair, cusum_onset, residual_phi, robust_spread,
+                                 size_shift, whiten)
 from ..stats.intervals import benjamini_hochberg
-from ..stats.signals import cusum, tracking_signal, trigg_signal, tracking_window
+from ..stats.signals import tracking_signal, trigg_signal, tracking_window
 from .base import Finding, FlagOptions, horizon_text
 from ..wording import label, pval, short_num as num, signed
 from ..stats.recalibration import corrected_mae
 from .drift_actions import SeriesIndex, best_other, share
 
-__all__ = ["drift_findings", "horizon_ranges", "POOL_MIN", "ACT_SHARE", "CONSOLIDATE_MIN", "CONSOLIDATE_SPAN"]
+__all__ = ["drift_findings", "sequence_tests", "SEQUENCE_COLUMNS", "horizon_ranges", "POOL_MIN", "ACT_SHARE", "CONSOLIDATE_MIN", "CONSOLIDATE_SPAN"]
 
 POOL_MIN = 5
 ACT_SHARE = 0.10
@@ -65,33 +70,80 @@ class _Seq:
     start: int = 0
     shift: float = 0.0
     lrv: float = np.nan
+    phi: float = 0.0
+
+
+#: One row per series × model × horizon sequence, from :func:`sequence_tests`.
+SEQUENCE_COLUMNS = ("model", "series", "horizon", "n", "judged", "p", "bias", "start", "shift", "lrv")
+
+
+def sequence_tests(cells: pd.DataFrame, options: FlagOptions) -> pd.DataFrame:
+    """The two change-point tests of every series × model × horizon sequence in ``cells``.
+
+    ``cells`` (columns model, series, horizon, period_index, e, q; any order) must hold whole
+    model × horizon groups: the autocorrelation is pooled over a model × horizon, so the tests of
+    one group depend on that group's cells alone. They run group by group here, so the result
+    is the same bit for bit whether all cells come at once (DuckDB) or one group at a time
+    (Spark's grouped pandas UDFs, :meth:`ledger.scoring.spark.SparkLake.apply_in_groups`).
+    Columns :data:`SEQUENCE_COLUMNS`, sorted by model, series, horizon; ``judged`` is False (and
+    the results NaN) for a sequence shorter than the tests need.
+    """
+    ordered = cells.sort_values(["model", "series", "horizon", "period_index"], kind="stable").reset_index(drop=True)
+    cols = _columns(ordered)
+    need = max(options.min_cells, 2 * MIN_SEGMENT + 2)
+    seqs, pairs = [], {}
+    for (model, series, horizon), idx in ordered.groupby(["model", "series", "horizon"], sort=True).indices.items():
+        q = _Seq(str(model), str(series), int(horizon), idx, p=np.nan, start=-1, shift=np.nan)
+        seqs.append(q)
+        if idx.size >= need:
+            pairs.setdefault((q.model, q.horizon), []).append(q)
+    for members in pairs.values():
+        _test_all(members, cols)
+    judged = [q.idx.size >= need for q in seqs]
+    return pd.DataFrame({
+        "model": pd.Series([q.model for q in seqs], dtype=object),
+        "series": pd.Series([q.series for q in seqs], dtype=object),
+        "horizon": np.array([q.horizon for q in seqs], dtype=np.int64),
+        "n": np.array([q.idx.size for q in seqs], dtype=np.int64),
+        "judged": np.array(judged, dtype=bool),
+        "p": np.array([q.p for q in seqs], dtype=float),
+        "bias": np.array([q.bias for q in seqs], dtype=bool),
+        "start": np.array([q.start for q in seqs], dtype=np.int64),
+        "shift": np.array([q.shift for q in seqs], dtype=float),
+        "lrv": np.array([q.lrv for q in seqs], dtype=float),
+    }, columns=list(SEQUENCE_COLUMNS))
 
 
 def drift_findings(cells: pd.DataFrame, seasons: dict[str, int], options: FlagOptions, *,
-                   subjects=None, recent_from: dict[str, int] | None = None, total: float = np.nan) -> list[Finding]:
+                   subjects=None, recent_from: dict[str, int] | None = None, total: float = np.nan,
+                   tested: pd.DataFrame | None = None) -> list[Finding]:
     """Drift findings for the models in ``subjects`` (None: every model in ``cells``).
 
     ``cells``: scored cells of every model (``Ledger.cells``), so that a finding can name a model
     that was more accurate since the change. ``recent_from``: first period index of the recent
     window per frequency (default: the last ``options.recent`` periods of each frequency).
     ``total``: the ledger's sum of |e|/q over the recent window, the denominator of impact.
+    ``tested``: :func:`sequence_tests` of the subjects' cells when computed elsewhere (on Spark's
+    executors); None computes it here.
     """
     ordered = cells.sort_values(["model", "series", "horizon", "period_index"], kind="stable").reset_index(drop=True)
     cols = _columns(ordered)
     recent_from = recent_from or _recent_from(ordered, options.recent)
     wanted = set(ordered["model"]) if subjects is None else set(subjects)
-    seqs, short = [], {}
+    if tested is None:
+        tested = sequence_tests(ordered[ordered["model"].isin(wanted)], options)
+    tested = tested[tested["model"].isin(wanted)].sort_values(["model", "series", "horizon"], kind="stable")
     groups = ordered.groupby(["model", "series", "horizon"], sort=True).indices
-    for (model, series, horizon), idx in groups.items():
-        if model not in wanted:
-            continue
-        counts = short.setdefault(str(model), [0, 0])
+    seqs, short = [], {}
+    for row in tested.itertuples(index=False):
+        counts = short.setdefault(str(row.model), [0, 0])
         counts[1] += 1
-        if idx.size < max(options.min_cells, 2 * MIN_SEGMENT + 2):
+        if not row.judged:
             counts[0] += 1
             continue
-        seqs.append(_Seq(str(model), str(series), int(horizon), idx))
-    _test_all(seqs, cols)
+        seqs.append(_Seq(str(row.model), str(row.series), int(row.horizon), groups[(row.model, row.series, row.horizon)],
+                         p=float(row.p), bias=bool(row.bias), start=int(row.start), shift=float(row.shift),
+                         lrv=float(row.lrv)))
     if seqs:
         adjusted = benjamini_hochberg(np.array([q.p for q in seqs]))
         flagged = [(q, a) for q, a in zip(seqs, adjusted) if a <= options.fdr]
@@ -158,7 +210,7 @@ def _test_all(seqs: list[_Seq], cols: dict) -> None:
             q.p = float(p[j])
             q.bias = bool(b[0][j] <= s[0][j])
             q.start = int(b[1][j] if q.bias else s[1][j])
-            q.shift, q.lrv = float(b[2][j]), float(b[3][j])
+            q.shift, q.lrv, q.phi = float(b[2][j]), float(b[3][j]), float(b[4][j])
 
 
 def _pooled(seqs: list[_Seq], phis: dict) -> dict[str, np.ndarray]:
@@ -175,15 +227,15 @@ def _pooled(seqs: list[_Seq], phis: dict) -> dict[str, np.ndarray]:
 
 
 def _both(test, x: np.ndarray, phi: np.ndarray) -> tuple[np.ndarray, ...]:
-    """(p, start, shift, lrv) of ``test`` on rows of x, pooled autocorrelation where given, own elsewhere."""
-    p, start, shift, lrv = (np.empty(x.shape[0]) for _ in range(4))
+    """(p, start, shift, lrv, phi) of ``test`` on rows of x, pooled autocorrelation where given, own elsewhere."""
+    p, start, shift, lrv, used = (np.empty(x.shape[0]) for _ in range(5))
     for given in (True, False):
         rows = np.flatnonzero(np.isfinite(phi) == given)
         if rows.size == 0:
             continue
         r = test(x[rows], phi=phi[rows]) if given else test(x[rows])
-        p[rows], start[rows], shift[rows], lrv[rows] = r.p_value, r.start, r.shift, r.lrv
-    return p, start.astype(int), shift, lrv
+        p[rows], start[rows], shift[rows], lrv[rows], used[rows] = r.p_value, r.start, r.shift, r.lrv, r.phi
+    return p, start.astype(int), shift, lrv, used
 
 
 @dataclasses.dataclass
@@ -192,6 +244,7 @@ class _Assessed:
     adjusted: float
     since: int  # period index where the change starts
     raised: int | None
+    onset: int | None  # period index where the CUSUM dates the change (its last zero before the alarm)
     mean_after: float
     mase_before: float
     mase_after: float
@@ -215,11 +268,38 @@ def _assess(q: _Seq, adjusted: float, cols: dict, recent_from: dict, options: Fl
         excess = max(0.0, float(np.sum(np.abs(e[recent][ok]) / qs[ok] - np.abs(e[recent][ok] - mean_after) / qs[ok])))
     else:
         excess = float(max(0.0, np.sum(s_recent - mase_before))) if np.isfinite(mase_before) else 0.0
-    z = e / np.sqrt(q.lrv) if q.lrv > 0 else np.zeros_like(e)
-    alarm = cusum(z[q.start:], k=options.drift_k, h=options.drift_h).alarm
-    return _Assessed(q, adjusted, int(periods[q.start]), None if alarm is None else int(periods[q.start + alarm]),
+    alarm, onset = _monitor(q, e, cols, options)
+    return _Assessed(q, adjusted, int(periods[q.start]), None if alarm is None else int(periods[alarm]),
+                     None if onset is None else int(periods[onset]),
                      mean_after, mase_before, float(np.nanmean(s[after])) if np.isfinite(s[after]).any() else np.nan,
                      excess, float(s_recent.sum()), int(after.sum()))
+
+
+def _monitor(q: _Seq, e: np.ndarray, cols: dict, options: FlagOptions) -> tuple[int | None, int | None]:
+    """(alarm, onset) cells of the CUSUM kept for the newest periods, in the direction of the change.
+
+    Bias: the errors whitened with the autocorrelation the test used and divided by their
+    innovation spread, sqrt(lrv) (1 - phi), so in control they are iid with mean 0 and sd 1
+    (the CUSUM's design) and the whitened step is (1 - phi) mu per cell. Size: sqrt(|e|/q)
+    standardised by its median and :func:`robust_spread` (MAD-fenced) over the cells before
+    the change (robust in-control estimates; at least 4 cells, else no monitor). The alarm is the first crossing of
+    ``drift_h`` from the scan's start on; the onset dates the change (:func:`cusum_onset`).
+    """
+    if q.bias:
+        spread = np.sqrt(q.lrv) * (1 - q.phi) if q.lrv > 0 else 0.0
+        if not spread > 0:
+            return None, None
+        z, upward = whiten(e, q.phi) / spread, q.shift > 0
+    else:
+        g = _size_values(cols, q.idx)
+        before = g[: q.start]
+        if before.size < 4:
+            return None, None
+        scale = robust_spread(before)
+        if not scale > 0:
+            return None, None
+        z, upward = (g - np.median(before)) / scale, True
+    return cusum_onset(z, k=options.drift_k, h=options.drift_h, upward=upward, from_cell=q.start)
 
 
 def _signal_options(q: _Seq, seasons: dict[str, int], options: FlagOptions) -> tuple[int, float]:
@@ -246,6 +326,9 @@ def _pair_finding(items: list[_Assessed], index: SeriesIndex, cols: dict, total:
         check = "deterioration"
     text = (f"{head}; {_mase_text(lead)}; change-point test adjusted {pval(lead.adjusted)}; tracking signal "
             f"{_one(tracking_signal(e, window=signal[0]))}, Trigg {signed(float(trigg_signal(e, alpha=signal[1])[-1]))}")
+    if lead.raised is not None:
+        text += (f"; a CUSUM monitor would have sounded in {label(lead.raised, freq)}, dating the change from "
+                 f"{label(lead.onset, freq)}")
     if len(hs) > 1:
         text += f"; flagged at {len(hs)} horizons in all ({horizon_ranges(hs)})"
     excess, affected = sum(a.excess for a in items), sum(a.affected for a in items)

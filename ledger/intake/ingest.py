@@ -383,11 +383,10 @@ def read_forecasts(
 
 
 def _header(source, columns, required, problems: Problems, checks: dict) -> tuple[dict, dict, list]:
-    """The bound, quantile and extra columns, every header problem collected; stop when a required column is missing."""
+    """The bound, quantile and extra columns, every header problem collected (a missing required
+    column too: the checks of the columns that are there still run)."""
     with problems.guard():
         _require(source, columns, required)
-    if any(c not in columns for c in required):
-        problems.raise_if_any()
     found = {"bounds": {}, "quantiles": {}, "extras": []}
     for name, check in checks.items():
         with problems.guard():
@@ -396,22 +395,18 @@ def _header(source, columns, required, problems: Problems, checks: dict) -> tupl
 
 
 def _recorded(stage: Stage, source: str, frequency: str, problems: Problems, option: str | None = None) -> None:
-    """The series' recorded frequencies, as one more problem when others were found.
+    """Every series recorded with another frequency, at its first row in the file.
 
     ``option``: the option (``--origin 2025-04``) that set the file's frequency, which is then
     the problem's cause rather than the series column.
     """
-    try:
-        stage.check_recorded(source, frequency)
-    except FrequencyError as exc:
-        m = re.match(r"^.* row (\d+) column (\w+): (.*)$", str(exc))
-        if option is not None and m:
-            why = m[3].replace(f", but this file is {frequency}", "")
-            problems.add(InputError(source, f"{option}: is a {frequency} label, but {why}"))
-        elif not problems:
-            raise
-        else:
-            problems.add(InputError(source, m[3], row=int(m[1]), column=m[2]) if m else InputError(source, str(exc)))
+    found, total = stage.recorded_conflicts(frequency)
+    rule = "a series keeps the frequency it was first recorded with"
+    problems.extend([InputError(source, f"{option}: is a {frequency} label, but series {key!r} is recorded as "
+                                        f"{recorded}; {rule}") if option else
+                     InputError(source, f"series {key!r} is recorded as {recorded}, but this file is {frequency}; "
+                                        f"{rule}", row=row, column="series")
+                     for row, key, recorded in found], total)
 
 
 def _text_or_blank(col: pd.Series) -> pa.Array:
@@ -429,6 +424,19 @@ def _checked(problems: Problems, offset: int, check, fallback):
     return fallback()
 
 
+def _key_columns(source, frame: pd.DataFrame, problems: Problems, offset: int, *columns: str) -> list[pa.Array]:
+    """Each key column checked (its problems collected), or blanks for one the file lacks (its
+    absence is the header's problem, so nothing more is said of it)."""
+    out = []
+    for column in columns:
+        if column not in frame.columns:
+            out.append(pa.array(np.full(len(frame), "", dtype=object), pa.string()))
+            continue
+        out.append(_checked(problems, offset, lambda: _keys(source, frame, column),
+                            lambda: _text_or_blank(frame[column])))
+    return out
+
+
 def _forecast_chunk(source, chunk: Chunk, model, origin, periods: _Labels, origins: _Labels,
                     bound_cols, quant_cols, problems: Problems) -> dict[str, np.ndarray]:
     """One chunk's checked columns, rows numbered from 1 within the chunk; problems go to ``problems``."""
@@ -438,14 +446,14 @@ def _forecast_chunk(source, chunk: Chunk, model, origin, periods: _Labels, origi
     models, origin_text = _checked(problems, offset, lambda: _model_origin(source, frame, model, origin),
                                    lambda: (blank(), _text_or_blank(frame["origin"]) if "origin" in frame.columns
                                             else pa.array(np.full(n, str(origin or ""), dtype=object), pa.string())))
-    keys = _checked(problems, offset, lambda: _keys(source, frame, "series"), lambda: _text_or_blank(frame["series"]))
-    period_text = _checked(problems, offset, lambda: _keys(source, frame, "period"), lambda: _text_or_blank(frame["period"]))
+    keys, period_text = _key_columns(source, frame, problems, offset, "series", "period")
     with problems.guard(offset):
         periods.learn(source, period_text, offset)
     with problems.guard(offset):
         origins.learn(source, origin_text, offset)
-    out = {"model": models, "origin": origin_text, "series": keys, "period": period_text,
-           "point": _checked(problems, offset, lambda: _numbers(source, frame, "forecast", allow_blank=False), nan)}
+    point = nan() if "forecast" not in frame.columns else \
+        _checked(problems, offset, lambda: _numbers(source, frame, "forecast", allow_blank=False), nan)
+    out = {"model": models, "origin": origin_text, "series": keys, "period": period_text, "point": point}
     for i, (lo, hi) in enumerate(bound_cols.values()):
         out[f"lo_{i}"], out[f"hi_{i}"] = _checked(problems, offset, lambda: _bounds(source, frame, lo, hi),
                                                   lambda: (nan(), nan()))
@@ -519,12 +527,12 @@ def read_actuals(store: Store, data, *, freq: str | None = None, name: str | Non
         periods = _Labels("period", stage)
         for chunk in table.chunks:
             frame, offset = chunk.frame, chunk.offset
-            keys = _checked(problems, offset, lambda: _keys(source, frame, "series"), lambda: _text_or_blank(frame["series"]))
-            text = _checked(problems, offset, lambda: _keys(source, frame, "period"), lambda: _text_or_blank(frame["period"]))
+            keys, text = _key_columns(source, frame, problems, offset, "series", "period")
             with problems.guard(offset):
                 periods.learn(source, text, offset)
-            value = _checked(problems, offset, lambda: _numbers(source, frame, "actual", allow_blank=False),
-                             lambda: np.full(len(frame), np.nan))
+            nan = lambda: np.full(len(frame), np.nan)
+            value = nan() if "actual" not in frame.columns else \
+                _checked(problems, offset, lambda: _numbers(source, frame, "actual", allow_blank=False), nan)
             stage.append(offset, {"series": keys, "period": text, "value": value})
         frequency = None
         # With problems already found, the frequency's own problem may be their echo (no label

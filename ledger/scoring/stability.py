@@ -23,6 +23,12 @@ Per group (series × model by default):
   back, well below it moves in one direction by steps (smoothed, slow to adjust). Over
   ``n_pairs`` pairs; the 0.5 reference is exact for independent revisions with a median of 0.
 
+Events (:mod:`ledger.scoring.events`) act as in the scores: a target period that an excluding
+event in force covers (for its series) is left out with all its revisions, counted in
+``n_excluded`` (revisions left out), unless the selection includes excluded cells
+(``include_excluded``; then ``n_excluded`` is 0). Exclusion is a property of the target, so the
+same for every run of it: leaving a target out never joins two revisions across a gap.
+
 Set-based SQL with standard window functions (lag over each target's runs), like the scores.
 """
 
@@ -37,27 +43,34 @@ from ..errors import UnknownName
 from ..store import Store
 from .attributes import attributes_sql, known_attributes
 from .cells import Selection, scale_sql
+from .events import excluded_spans_sql
 
 __all__ = ["StabilityKey", "STABILITY_KEYS", "STABILITY_COLUMNS", "revisions_sql", "stability", "forecast_paths"]
 
 StabilityKey = Literal["series", "model", "horizon"]
 STABILITY_KEYS: tuple[str, ...] = get_args(StabilityKey)
 STABILITY_COLUMNS = ("n_targets", "n_revisions", "revision", "toward", "nervousness", "n_toward", "n_pairs",
-                     "n_unscaled")
+                     "n_unscaled", "n_excluded")
+_COUNTS = ("n_targets", "n_revisions", "n_toward", "n_pairs", "n_unscaled", "n_excluded")
 
 
 def revisions_sql(sel: Selection) -> tuple[str, dict]:
-    """One row per revision: model, frequency, series, period_index, origin_index, horizon, point,
-    prev_point, prev2_point (NULL for the second run of a target), q, actual (NULL when not in yet)."""
+    """One row per revision: model, frequency, series, period, period_index, origin_index, horizon, point,
+    prev_point, prev2_point (NULL for the second run of a target), q, actual (NULL when not in yet),
+    excluded (an excluding event covers the target; such rows are kept, for counting: the
+    aggregates of :func:`stability` leave them out unless ``sel.include_excluded``)."""
     prefix, params = scale_sql(sel)
     sql = f"""
     {prefix},
+    spans AS ({excluded_spans_sql()}),
     runs_of_target AS (
-        SELECT model, frequency, series, period_index, origin_index, horizon, point,
+        SELECT model, frequency, series, period, period_index, origin_index, horizon, point,
                lag(point) OVER w AS prev_point, lag(point, 2) OVER w AS prev2_point
         FROM fc
         WINDOW w AS (PARTITION BY model, frequency, series, period_index ORDER BY origin_index))
-    SELECT r.*, sc.q, a.value AS actual
+    SELECT r.*, sc.q, a.value AS actual,
+           EXISTS (SELECT 1 FROM spans x WHERE x.series = r.series AND r.period >= x.first_day
+                   AND r.period < x.end_day) AS excluded
     FROM runs_of_target r
     LEFT JOIN scale sc ON sc.series = r.series AND sc.origin_index = r.origin_index
     LEFT JOIN act a ON a.series = r.series AND a.period_index = r.period_index
@@ -65,18 +78,21 @@ def revisions_sql(sel: Selection) -> tuple[str, dict]:
     return sql, params
 
 
+# The figures of one group, over its revisions in use (r.used) only; n_excluded counts the rest.
 _AGG = """
-    count(DISTINCT r.series || '|' || CAST(r.period_index AS VARCHAR)) AS n_targets,
-    count(*) AS n_revisions,
-    avg(abs(r.point - r.prev_point) / r.q) AS revision,
+    count(DISTINCT r.series || '|' || CAST(r.period_index AS VARCHAR)) FILTER (WHERE r.used) AS n_targets,
+    count(*) FILTER (WHERE r.used) AS n_revisions,
+    avg(abs(r.point - r.prev_point) / r.q) FILTER (WHERE r.used) AS revision,
     avg(CASE WHEN r.actual IS NOT NULL AND r.point <> r.prev_point THEN
-             CASE WHEN abs(r.actual - r.point) < abs(r.actual - r.prev_point) THEN 1.0 ELSE 0.0 END END) AS toward,
+             CASE WHEN abs(r.actual - r.point) < abs(r.actual - r.prev_point) THEN 1.0 ELSE 0.0 END END)
+        FILTER (WHERE r.used) AS toward,
     avg(CASE WHEN (r.point - r.prev_point) * (r.prev_point - r.prev2_point) <> 0 THEN
              CASE WHEN (r.point - r.prev_point) * (r.prev_point - r.prev2_point) < 0 THEN 1.0 ELSE 0.0 END END)
-        AS nervousness,
-    count(*) FILTER (WHERE r.actual IS NOT NULL AND r.point <> r.prev_point) AS n_toward,
-    count(*) FILTER (WHERE (r.point - r.prev_point) * (r.prev_point - r.prev2_point) <> 0) AS n_pairs,
-    count(*) FILTER (WHERE r.q IS NULL) AS n_unscaled
+        FILTER (WHERE r.used) AS nervousness,
+    count(*) FILTER (WHERE r.used AND r.actual IS NOT NULL AND r.point <> r.prev_point) AS n_toward,
+    count(*) FILTER (WHERE r.used AND (r.point - r.prev_point) * (r.prev_point - r.prev2_point) <> 0) AS n_pairs,
+    count(*) FILTER (WHERE r.used AND r.q IS NULL) AS n_unscaled,
+    count(*) FILTER (WHERE NOT r.used) AS n_excluded
 """
 
 
@@ -93,7 +109,10 @@ def _keys(store: Store, sel: Selection, by: Sequence[str]) -> list[str]:
 
 
 def stability(store: Store, sel: Selection, by: Sequence[str] = ("series", "model")) -> pd.DataFrame:
-    """Revision size, share toward the actual and nervousness per group; columns: the keys, then STABILITY_COLUMNS."""
+    """Revision size, share toward the actual and nervousness per group; columns: the keys, then STABILITY_COLUMNS.
+
+    A group whose every revision is excluded still gets a row (n_revisions 0, figures NaN), as
+    in the scores."""
     keys = _keys(store, sel, by)
     sql, params = revisions_sql(sel)
     joins, cols = [], {}
@@ -106,8 +125,11 @@ def stability(store: Store, sel: Selection, by: Sequence[str] = ("series", "mode
             cols[k] = f"a{i}.value"
     select = "".join(f"{c} AS {k}, " for k, c in cols.items())
     group = f"GROUP BY {', '.join(cols.values())} ORDER BY {', '.join(cols.values())}" if keys else ""
-    frame = store.con.execute(f"SELECT {select}{_AGG} FROM ({sql}) r {' '.join(joins)} {group}", params).df()
-    for c in ("n_targets", "n_revisions", "n_toward", "n_pairs", "n_unscaled"):
+    used = "TRUE" if sel.include_excluded else "NOT excluded"
+    frame = store.con.execute(f"SELECT {select}{_AGG} "
+                              f"FROM (SELECT *, {used} AS used FROM ({sql}) v) r {' '.join(joins)} {group}",
+                              params).df()
+    for c in _COUNTS:
         frame[c] = frame[c].astype("int64")
     if "horizon" in keys:
         frame["horizon"] = frame["horizon"].astype("int64")

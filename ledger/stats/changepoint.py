@@ -7,10 +7,22 @@ thousands of them are tested at once.
 Two tests, each over the whole record (no reference window, so no blind spot at the start):
 
 * :func:`bias_scan` -- a shift of the mean error away from zero, the target of an unbiased
-  forecast, starting at an unknown cell k (k = 0: biased from the first cell). Statistic
-  max_k |sum_{t>=k} e_t| / sqrt((n - k) * lrv), the Gaussian likelihood-ratio scan for "mean 0
-  before k, mean mu from k on" (Csorgo & Horvath 1997, "Limit Theorems in Change-Point
-  Analysis", ch. 1, for the LR form; from memory). The maximising k dates the change.
+  forecast, starting at an unknown cell k (k = 0: biased from the first cell). It is the
+  likelihood-ratio (GLS) scan under AR(1) errors: the errors are whitened with the
+  autocorrelation phi (e_t - phi e_{t-1}), which turns a level step of size mu into a spike of
+  mu at its start and (1 - phi) mu after it, and at each k the step is fitted by GLS; the
+  statistic is the largest GLS z over k, max_k |x~_k'w| / (sqrt(x~_k'x~_k) s_w). At phi = 0 it
+  is the plain Gaussian scan max_k |sum_{t>=k} e_t| / sqrt((n - k) s^2) (Csorgo & Horvath 1997,
+  "Limit Theorems in Change-Point Analysis", ch. 1; from memory). The change is dated at the k
+  whose +-2-cell window holds the most posterior probability of the start (:func:`_dated`), the
+  Bayes date for "within +-2 periods"; it is the maximising k most of the time. Sources: Kim (1996) "Change-point
+  detection for correlated observations", *Statistica Sinica* 6, 275-287 (the likelihood-ratio
+  test for a change in mean under AR(p) errors, p-values approximated, not closed form; read
+  from its abstract); Robbins, Gallagher, Lund & Aue (2011) "Mean shift testing in correlated
+  data", *J. Time Series Analysis* 32 (prewhitening before a mean-shift test; from memory);
+  Bai (1994) "Least squares estimation of a shift in linear processes", *J. Time Series
+  Analysis* 15 (serial correlation widens the dating error of a fitted shift; read from the
+  abstract of its working paper).
 * :func:`size_shift` -- an increase in error size: the one-sided CUSUM of deviations of
   g_t = sqrt(|e_t| / q_t), max_k -(S_k - k/n S_n) / sqrt(n * lrv), whose limit under no change
   is the supremum of a Brownian bridge, P(sup B > x) = exp(-2 x^2) (Csorgo & Horvath 1997,
@@ -19,18 +31,21 @@ Two tests, each over the whole record (no reference window, so no blind spot at 
   CUSUM (from memory).
 
 In-control estimates are robust and taken about the fitted change, so a shift does not inflate
-its own yardstick: residuals are the errors minus the fitted segment means, their spread is
-1.4826 x MAD (floored at half the classical standard deviation, so discrete errors with a
-zero MAD keep a spread), and the long-run variance widens that spread for autocorrelation with
-an AR(1) plug-in (:func:`long_run_variance`; Andrews 1991), because multi-step errors from
-consecutive origins overlap and wander.
+its own yardstick: residuals are the (whitened, for the scan) values minus the fitted step,
+their spread is the standard deviation winsorised at median +- 2.5 x 1.4826 MAD
+(:func:`robust_spread`), and the autocorrelation is the lag-1 autocorrelation of the residuals
+about the plain fitted step, bias-corrected and clipped to [0, 0.8] (:func:`corrected_phi`),
+pooled by the caller over a model's series (one short record cannot estimate it well), because
+multi-step errors from consecutive origins overlap and wander. The size test widens its spread
+for that autocorrelation with an AR(1) long-run variance (:func:`long_run_variance`; Andrews 1991).
 
 p-values: the statistics are studentised with estimated spreads, so their small-sample null
-is simulated once per record length (iid N(0, 1) errors through the same estimators, fixed seed,
-:data:`NULL_DRAWS` draws) and cached; beyond the simulated range the tail is extrapolated with
+is simulated once per record length (fixed seed, :data:`NULL_DRAWS` draws) and cached; beyond the simulated range the tail is extrapolated with
 the shape of the limit (normal tail for the scan, exp(-2x^2) for the bridge) matched at the
-0.5% point. Under iid normal errors the p-values are exact up to simulation error; under
-AR(1) errors they rest on the long-run variance (measured in tests/benchmarks/bench_findings.py).
+0.5% point. The null is simulated at the autocorrelations of :data:`PHI_GRID` (AR(1) errors
+through the same estimators) and a row's p-value interpolated between the two grid nulls around
+its autocorrelation, so under Gaussian AR(1) errors the p-values are exact up to simulation
+and interpolation error (measured in tests/benchmarks/bench_findings.py).
 
 Sign convention: e = actual - forecast; a positive shift means forecasts too low.
 """
@@ -44,6 +59,7 @@ import numpy as np
 from scipy import stats
 
 from ..errors import InputError
+from .signals import cusum_path
 
 __all__ = [
     "NULL_DRAWS",
@@ -56,6 +72,8 @@ __all__ = [
     "bias_scan",
     "size_shift",
     "bonferroni_pair",
+    "whiten",
+    "cusum_onset",
     "corrected_phi",
     "residual_phi",
     "PHI_GRID",
@@ -80,7 +98,7 @@ class ScanResult:
     """Per-row outcome of :func:`bias_scan` or :func:`size_shift` (arrays of one entry per row).
 
     ``statistic`` the studentised maximum; ``start`` the 0-based cell where the change begins
-    (the maximiser); ``p_value`` from the simulated null; ``shift`` the mean of the row from
+    (scan: the window mode of :func:`_dated`; size test: the maximiser); ``p_value`` from the simulated null; ``shift`` the mean of the row from
     ``start`` on minus the reference (0 for the scan, the mean before ``start`` for the size
     test); ``lrv`` the long-run variance used; ``phi`` the autocorrelation behind it.
     """
@@ -206,6 +224,63 @@ def _scan_fit(e: np.ndarray, min_segment: int) -> tuple[np.ndarray, ...]:
     return score[rows, start], start, shift, e - fitted
 
 
+def _gls_fit(e: np.ndarray, phi: np.ndarray, min_segment: int) -> tuple[np.ndarray, ...]:
+    """(max GLS score, start, shift, whitened residuals) of the bias scan under AR(1) errors.
+
+    Prais-Winsten whitening with the given phi per row, w_0 = sqrt(1 - phi^2) e_0 and
+    w_t = e_t - phi e_{t-1}, turns the errors into iid innovations and a step of size mu from
+    cell k into a regressor x~ that is 0 before k, 1 at k (sqrt(1 - phi^2) when k = 0) and
+    1 - phi after. The score at k is |x~'w| / sqrt(x~'x~), the GLS z of the step up to the
+    innovation spread; at phi = 0 it is the plain scan |sum_{t>=k} e_t| / sqrt(n - k).
+    """
+    n = e.shape[1]
+    phi = np.asarray(phi, dtype=float)[:, None]
+    head = np.sqrt(1 - phi * phi)
+    w = whiten(e, phi[:, 0])
+    ks = np.arange(n - min_segment + 1)
+    after = np.concatenate([np.cumsum(w[:, ::-1], axis=1)[:, ::-1][:, 1:], np.zeros((e.shape[0], 1))], axis=1)
+    lead = np.where(ks[None, :] == 0, head, 1.0)  # weight of the cell where the step begins
+    num = lead * w[:, ks] + (1 - phi) * after[:, ks]
+    den = lead * lead + (n - ks - 1)[None, :] * (1 - phi) ** 2
+    score = np.abs(num) / np.sqrt(den)
+    best = score.argmax(axis=1)
+    rows = np.arange(e.shape[0])
+    resid = w - (num[rows, best] / den[rows, best])[:, None] * _step(n, best, phi, head)
+    start = _dated(num, den, robust_spread(resid) ** 2)
+    shift = num[rows, start] / den[rows, start]
+    return score[rows, best], start, shift, resid
+
+
+def _step(n: int, start: np.ndarray, phi: np.ndarray, head: np.ndarray) -> np.ndarray:
+    """The whitened step regressor x~ per row: 0 before start, 1 at it (head at cell 0), 1 - phi after."""
+    t = np.arange(n)[None, :]
+    s0 = start[:, None]
+    return np.where(t < s0, 0.0, np.where(t == s0, np.where(s0 == 0, head, 1.0), 1 - phi))
+
+
+#: Dating tolerance the start is chosen for, in cells either side (the issue's "within +-2 periods").
+DATE_WINDOW = 2
+
+
+def _dated(num: np.ndarray, den: np.ndarray, s2: np.ndarray) -> np.ndarray:
+    """Per row, the start k whose window k +- DATE_WINDOW holds the most posterior probability.
+
+    Posterior of the start under a flat prior on k and on the step size, the innovation
+    variance s2 taken as known: p(k) proportional to exp(N_k^2 / (2 D_k s2)) / sqrt(D_k), N_k =
+    x~_k'w, D_k = x~_k'x~_k (Smith 1975, "A Bayesian approach to inference about a change-point
+    in a sequence of random variables", *Biometrika* 62; from memory). The window mode is the
+    Bayes date for the loss "wrong by more than DATE_WINDOW cells"; it dates no worse than the
+    maximum-likelihood k on that loss, measured in tests/benchmarks/bench_findings.py.
+    """
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ll = np.where(s2[:, None] > 0, num * num / (2 * den * s2[:, None]), 0.0) - 0.5 * np.log(den)
+    post = np.exp(ll - ll.max(axis=1, keepdims=True))
+    padded = np.pad(post, ((0, 0), (DATE_WINDOW, DATE_WINDOW)))
+    width = post.shape[1]
+    window = sum(padded[:, j:j + width] for j in range(2 * DATE_WINDOW + 1))
+    return window.argmax(axis=1)
+
+
 def _size_fit(g: np.ndarray, min_segment: int) -> tuple[np.ndarray, ...]:
     """(max score / sqrt(n), start, shift, residuals) of the size test."""
     n = g.shape[1]
@@ -224,13 +299,23 @@ def _size_fit(g: np.ndarray, min_segment: int) -> tuple[np.ndarray, ...]:
     return score[rows, at] / np.sqrt(n), start, mean_after - mean_before, g - fitted
 
 
-def _studentise(score: np.ndarray, resid: np.ndarray, phi: np.ndarray | None) -> tuple[np.ndarray, ...]:
-    """(statistic, lrv, phi used): score / sqrt(lrv), lrv = spread^2 (1 + phi) / (1 - phi)."""
-    phi = corrected_phi(resid) if phi is None else np.clip(np.asarray(phi, dtype=float), 0.0, _PHI_MAX)
-    lrv = robust_spread(resid) ** 2 * (1 + phi) / (1 - phi)
+def _studentise(test: str, score: np.ndarray, resid: np.ndarray, phi: np.ndarray) -> tuple[np.ndarray, ...]:
+    """(statistic, lrv): score / spread.
+
+    Scan: resid are whitened innovations, so the statistic is score / their spread and
+    lrv = spread^2 / (1 - phi)^2, the long-run variance of an AR(1) with that innovation
+    spread. Size test: score / sqrt(lrv), lrv = spread^2 (1 + phi) / (1 - phi) (Andrews 1991).
+    """
+    spread = robust_spread(resid)
+    if test == "scan":
+        lrv = spread ** 2 / (1 - phi) ** 2
+        scale = spread
+    else:
+        lrv = spread ** 2 * (1 + phi) / (1 - phi)
+        scale = np.sqrt(lrv)
     with np.errstate(divide="ignore", invalid="ignore"):
-        stat = np.where(lrv > 0, score / np.sqrt(lrv), 0.0)
-    return stat, lrv, phi
+        stat = np.where(scale > 0, score / scale, 0.0)
+    return stat, lrv
 
 
 #: Autocorrelations at which the null is simulated (AR(1) errors with marginal sd 1).
@@ -247,8 +332,9 @@ def _ar1(rng: np.random.Generator, draws: int, n: int, phi: float) -> np.ndarray
     return x
 
 
-def _fit(test: str, x: np.ndarray, min_segment: int):
-    return _scan_fit(x, min_segment) if test == "scan" else _size_fit(x, min_segment)
+def _fit(test: str, x: np.ndarray, min_segment: int, phi: np.ndarray):
+    """Fit of ``test`` on rows of x; the scan weights its cells by the autocorrelation phi (per row)."""
+    return _size_fit(x, min_segment) if test == "size" else _gls_fit(x, phi, min_segment)
 
 
 @functools.lru_cache(maxsize=512)
@@ -264,10 +350,11 @@ def _null(test: str, n: int, min_segment: int, pooled: bool) -> tuple[np.ndarray
     tables, index = [], []
     for phi in PHI_GRID:
         z = _ar1(rng, NULL_DRAWS, n, phi)
-        score, _, _, resid = _fit(test, z if test == "scan" else np.sqrt(np.abs(z)), min_segment)
-        own = corrected_phi(resid)
-        given = np.full(own.shape, own.mean()) if pooled else None
-        stat = _studentise(score, resid, given)[0]
+        x = z if test == "scan" else np.sqrt(np.abs(z))
+        own = _own_phi(test, x, min_segment)
+        given = np.full(own.shape, own.mean()) if pooled else own
+        score, _, _, resid = _fit(test, x, min_segment, given)
+        stat = _studentise(test, score, resid, given)[0]
         tables.append(np.sort(stat))
         index.append(float(own.mean() if pooled else np.median(own)))
     return np.stack(tables), np.maximum.accumulate(np.asarray(index))
@@ -325,18 +412,23 @@ def _table_p(stat: np.ndarray, null: np.ndarray, tail_shape) -> np.ndarray:
 
 
 def bias_scan(e, *, min_segment: int = MIN_SEGMENT, phi=None) -> ScanResult:
-    """Scan for a mean error that moves away from zero at an unknown cell (rows of e).
+    """Scan for a mean error that moves away from zero at an unknown cell (rows of e), allowing
+    for AR(1) errors.
 
-    Statistic: T = max_{0 <= k <= n - L} |sum_{t=k}^{n-1} e_t| / sqrt((n - k) lrv), L =
-    ``min_segment``; the maximiser k is the estimated start (0: biased from the first cell),
-    ``shift`` the mean error from k on. lrv: :func:`long_run_variance` of e minus the fitted
-    step. Null: mean 0 throughout (an unbiased forecast); p-value from the simulated null of
-    the same statistic (module docstring). Orientation: larger T, stronger evidence; the sign of
-    ``shift`` says the direction (positive: forecasts too low).
+    Model: e_t = mu 1{t >= k} + u_t, u an AR(1) with autocorrelation phi. Whitened (Prais-Winsten)
+    w_0 = sqrt(1 - phi^2) e_0, w_t = e_t - phi e_{t-1}; the step becomes x~_k: 0 before k, 1 at
+    k (sqrt(1 - phi^2) at k = 0), 1 - phi after. Statistic: T = max_{0 <= k <= n - L}
+    |x~_k'w| / (sqrt(x~_k'x~_k) s_w), L = ``min_segment``, s_w the robust spread of the whitened
+    residuals about the fitted step (at the maximising k). The estimated start (0: biased from
+    the first cell) is the k whose +-2-cell window holds the most posterior probability
+    (:func:`_dated`; usually the maximising k, the maximum-likelihood change point given phi),
+    ``shift`` the GLS estimate of mu from that start, ``lrv`` = s_w^2 / (1 - phi)^2. At phi = 0 this is the plain scan |sum_{t>=k} e_t| /
+    sqrt((n - k) s^2). Null: mean 0 throughout (an unbiased forecast); p-value from the simulated
+    null of the same statistic and estimators (module docstring). Orientation: larger T, stronger
+    evidence; the sign of ``shift`` says the direction (positive: forecasts too low).
     ``phi``: a given autocorrelation per row (or one for all), e.g. pooled over the series of
     one model and horizon with :func:`residual_phi`; None estimates it from each row alone.
-    Reference: the likelihood-ratio scan for a change in mean of Gaussian data, Csorgo & Horvath
-    (1997) "Limit Theorems in Change-Point Analysis", Wiley, ch. 1 (from memory).
+    References: Kim (1996), Robbins et al. (2011), Csorgo & Horvath (1997) (module docstring).
     """
     e = _rows(e, "e", "bias_scan", max(4, min_segment + 1))
     return _test("scan", e, int(min_segment), phi, stats.norm.sf)
@@ -360,13 +452,21 @@ def size_shift(g, *, min_segment: int = MIN_SEGMENT, phi=None) -> ScanResult:
 
 
 def _test(test: str, x: np.ndarray, min_segment: int, phi, tail_shape) -> ScanResult:
-    score, start, shift, resid = _fit(test, x, min_segment)
     pooled = phi is not None
     if pooled:
-        phi = np.broadcast_to(np.asarray(phi, dtype=float), score.shape)
-    stat, lrv, used = _studentise(score, resid, phi)
+        used = np.clip(np.broadcast_to(np.asarray(phi, dtype=float), x.shape[:1]), 0.0, _PHI_MAX)
+    else:
+        used = _own_phi(test, x, min_segment)
+    score, start, shift, resid = _fit(test, x, min_segment, used)
+    stat, lrv = _studentise(test, score, resid, used)
     p = _p_values(stat, used, test, x.shape[1], min_segment, pooled, tail_shape)
     return ScanResult(stat, start, p, shift, lrv, used)
+
+
+def _own_phi(test: str, x: np.ndarray, min_segment: int) -> np.ndarray:
+    """Corrected autocorrelation of each row's residuals about its plain (unweighted) fit; the
+    bias correction of :func:`corrected_phi` was measured for those residuals."""
+    return corrected_phi((_scan_fit(x, min_segment) if test == "scan" else _size_fit(x, min_segment))[3])
 
 
 def residual_phi(test: str, x, *, min_segment: int = MIN_SEGMENT) -> np.ndarray:
@@ -374,7 +474,7 @@ def residual_phi(test: str, x, *, min_segment: int = MIN_SEGMENT) -> np.ndarray:
     (``test`` "scan" on errors e, "size" on g), for pooling over the series of one model and
     horizon before calling :func:`bias_scan` / :func:`size_shift` with ``phi``."""
     x = _rows(x, "x", "residual_phi", max(4, min_segment + 2))
-    return corrected_phi(_fit(test, x, int(min_segment))[3])
+    return _own_phi(test, x, int(min_segment))
 
 
 def _one_sided_sf(x):
@@ -384,3 +484,41 @@ def _one_sided_sf(x):
 def bonferroni_pair(p1, p2) -> np.ndarray:
     """One p-value per sequence from its two tests: min(1, 2 min(p1, p2)) (Bonferroni)."""
     return np.minimum(1.0, 2 * np.minimum(np.asarray(p1, dtype=float), np.asarray(p2, dtype=float)))
+
+
+def whiten(e, phi) -> np.ndarray:
+    """Prais-Winsten whitening along the last axis: w_0 = sqrt(1 - phi^2) e_0, w_t = e_t - phi e_{t-1}.
+
+    Under AR(1) errors with autocorrelation phi the result is iid with the innovation spread
+    (Prais & Winsten 1954; from memory); ``phi`` is a scalar or one value per row.
+    """
+    e = np.asarray(e, dtype=float)
+    phi = np.asarray(phi, dtype=float)[..., None] if np.ndim(phi) else float(phi)
+    head = np.sqrt(1 - phi * phi)
+    return np.concatenate([head * e[..., :1], e[..., 1:] - phi * e[..., :-1]], axis=-1)
+
+
+def cusum_onset(z, *, k: float = 0.5, h: float = 4.0, upward: bool = True, from_cell: int = 0
+                ) -> tuple[int | None, int | None]:
+    """(alarm, onset) of a one-sided tabular CUSUM over one standardised sequence z.
+
+    C_t = max(0, C_{t-1} + z_t - k) for an upward shift (-z_t for a downward one), run over
+    the whole of z; ``alarm`` is the first cell at or after ``from_cell`` where C > h, ``onset``
+    the cell after the last one before the alarm where C was 0 (0 if it never was). The onset,
+    not the alarm, dates the change: it is the maximum-likelihood start of a shift of size 2k
+    that is still under way at the alarm (Page 1954 "Continuous inspection schemes",
+    *Biometrika* 41; Montgomery, *Introduction to Statistical Quality Control*, CUSUM chapter;
+    from memory). (None, None) when C never exceeds h from ``from_cell`` on. NaN z carries no
+    evidence (C keeps its value).
+    """
+    z = np.asarray(z, dtype=float)
+    if z.ndim != 1:
+        raise InputError("cusum_onset", f"z must be one sequence, got {z.ndim} dimensions")
+    upper, lower = cusum_path(z, k=k)
+    path = upper if upward else lower
+    above = np.flatnonzero(path[max(0, int(from_cell)):] > h)
+    if above.size == 0:
+        return None, None
+    alarm = int(above[0]) + max(0, int(from_cell))
+    zeros = np.flatnonzero(path[:alarm] == 0)
+    return alarm, int(zeros[-1]) + 1 if zeros.size else 0

@@ -45,6 +45,16 @@ def _rate(p: float, func: str) -> float:
     return float(p)
 
 
+def _miss_counts(p: float, misses: int, n: int, func: str) -> tuple[float, int, int]:
+    """The checked (p, misses, n) of a test on x misses among n cells at nominal miss rate p."""
+    p = _rate(p, func)
+    n = positive_int(n, "n", func, minimum=0)
+    x = positive_int(misses, "misses", func, minimum=0)
+    if x > n:
+        raise InputError(func, f"misses = {x} exceeds n = {n}; count misses among the n cells")
+    return p, x, n
+
+
 @dataclass(frozen=True)
 class LRTest:
     """A likelihood-ratio statistic, its chi-squared p-value and degrees of freedom (NaN when undefined)."""
@@ -69,11 +79,7 @@ def kupiec_pof(misses: int, n: int, *, p: float) -> LRTest:
     Reference: Kupiec, P. (1995) "Techniques for verifying the accuracy of risk measurement
     models", *Journal of Derivatives* 3(2), 73-84.
     """
-    p = _rate(p, "kupiec_pof")
-    n = positive_int(n, "n", "kupiec_pof", minimum=0)
-    x = positive_int(misses, "misses", "kupiec_pof", minimum=0)
-    if x > n:
-        raise InputError("kupiec_pof", f"misses = {x} exceeds n = {n}; count misses among the n cells")
+    p, x, n = _miss_counts(p, misses, n, "kupiec_pof")
     if n == 0:
         return LRTest(float("nan"), float("nan"), 1)
     null = special.xlogy(n - x, 1 - p) + special.xlogy(x, p)
@@ -219,11 +225,7 @@ def coverage_zone(misses: int, n: int, *, p: float, watch: float = 0.95, out: fl
     'backtesting' in conjunction with the internal models approach to market risk capital
     requirements" (green / yellow / red zones; Backsight uses its own zone names).
     """
-    p = _rate(p, "coverage_zone")
-    n = positive_int(n, "n", "coverage_zone", minimum=0)
-    x = positive_int(misses, "misses", "coverage_zone", minimum=0)
-    if x > n:
-        raise InputError("coverage_zone", f"misses = {x} exceeds n = {n}; count misses among the n cells")
+    p, x, n = _miss_counts(p, misses, n, "coverage_zone")
     if n == 0:
         return ZoneResult("as stated", "no cells", float("nan"), 0.0, float("nan"), 0, 0, p)
     c = float(stats.binom.cdf(x, n, p))

@@ -166,3 +166,29 @@ def test_disk_full_during_a_write_and_an_export(tmp_path):
     assert snap_err.startswith(f"Error: no space is left on the device holding {where}"), snap_err
     assert export_err.startswith(f"Error: no space is left on the device holding {where}"), export_err
     assert verify_rc == "0" and verify_out.endswith("sound")
+
+
+def test_a_reader_that_leaves_ends_the_command_quietly(tmp_path):
+    """`backsight scores ... | head -1`: the reader takes one line and closes the pipe; the command
+    stops with exit 1 and says nothing (no traceback, no Error line about a file never named), in
+    every output format."""
+    path = tmp_path / "l.duckdb"
+    series = [f"series-{i:04d}" for i in range(2500)]
+    months = [f"2025-{m:02d}" for m in range(1, 13)]
+    with Ledger.open(path) as book:
+        book.record_actuals(pd.DataFrame({"series": [s for s in series for _ in months],
+                                          "period": months * len(series), "actual": 10.0}))
+        book.snapshot(pd.DataFrame({"series": series, "period": "2025-12", "forecast": 9.0}),
+                      model="m", origin="2025-11")
+    # 170 kB of CSV and more of the others, far more than a pipe holds (64 kB); unbuffered, the reader
+    # takes exactly one line (a buffered one, like head's 128 kB reads, could swallow the whole
+    # output), so the command is still writing when the reader has gone
+    for fmt, head in (("table", b"Scores"), ("csv", b"series,n,mae"), ("json", b"[")):
+        child = subprocess.Popen([sys.executable, "-m", "ledger", "--ledger", str(path), "scores", "--by", "series",
+                                  "--format", fmt], stdout=subprocess.PIPE, stderr=subprocess.PIPE, bufsize=0,
+                                 env=dict(os.environ, PYTHONPATH=str(REPO), COLUMNS="120"), cwd=REPO)
+        first = child.stdout.readline()
+        child.stdout.close()
+        err = child.stderr.read()
+        assert (child.wait(timeout=120), err) == (1, b""), fmt
+        assert first.startswith(head), (fmt, first)

@@ -5,6 +5,7 @@ consolidation, ranking and the action figures (checked against numpy)."""
 from __future__ import annotations
 
 import math
+import re
 
 import numpy as np
 import pytest
@@ -45,6 +46,13 @@ def test_a_shift_is_found_and_dated_wherever_it_starts(shifted, series, start):
     assert row["evidence"].startswith(f"forecasts too low since {row['since']} at horizon 1")
     assert abs(_index(row["since"]) - (HISTORY + start)) <= 2
     assert row["series_list"] == "" and row["impact"] > 0
+    # The CUSUM kept for the newest periods dates the change by its last zero before the alarm,
+    # not by the alarm: the onset it states is within 2 months of the planted start, the alarm
+    # (``raised``) no earlier than the onset.
+    onset = re.search(r"dating the change from (\d{4}-\d{2})", row["evidence"])
+    assert onset, row["evidence"]
+    assert abs(_index(onset.group(1)) - (HISTORY + start)) <= 2
+    assert _index(row["raised"]) >= _index(onset.group(1))
 
 
 def test_honest_series_of_the_shifted_ledger_are_left_alone(shifted):

@@ -25,6 +25,7 @@ import pytest
 
 from reports import render_report
 from reports.names import page_name
+from tests.reports.stored_reviews import store_reviews
 from tests.reports.test_report import AS_OF, INCUMBENT, build_ledger
 
 pytestmark = pytest.mark.browser
@@ -54,6 +55,7 @@ def _run(args: list[str], profile: Path) -> subprocess.CompletedProcess:
 def site(tmp_path_factory) -> Path:
     root = tmp_path_factory.mktemp("browser")
     path = build_ledger(root / "invented.duckdb")
+    store_reviews(path)      # the first screen then also lists the changes since the last review
     return render_report(path, root / "site", as_of=AS_OF, incumbent=INCUMBENT, benchmark="snaive",
                          title="Invented review").out_dir
 

@@ -34,3 +34,15 @@ def test_every_page_renders_and_says_what_is_missing(young_site):
         assert phrase.lower() in index.lower(), f"{name}: the overview does not say {phrase!r}"
     for page, text in pages.items():
         assert "Traceback" not in text and "nan" not in re.findall(r"\bnan\b", _text(text)), (name, page)
+
+
+def test_a_horizon_the_ledger_lacks_is_one_plain_error(tmp_path):
+    """The default headline horizon adapts (no_horizon_one renders at h 3); asking for a horizon
+    no run has is refused before anything is written, naming the horizons the ledger has."""
+    from ledger.errors import UnknownName
+    from tests.reports.young_ledgers import no_horizon_one
+
+    no_horizon_one(tmp_path / "young.duckdb")
+    with pytest.raises(UnknownName, match=r"--horizon 1: no run has this horizon; horizons in the ledger: 3"):
+        render_report(tmp_path / "young.duckdb", tmp_path / "site", as_of=AS_OF, horizon=1, workers=0)
+    assert not (tmp_path / "site" / "index.html").exists()

@@ -1,8 +1,8 @@
 """Young and odd ledgers (issue 14, item 6): builders of the invented ledgers of the test matrix.
 
 Each builder writes a small ledger with one oddity (a single cell, no actuals, no scale, one
-model, intervals or quantiles missing, a long series, mixed frequencies, superseded runs) and
-returns the sentences the report must say about what is missing. Invented data throughout.
+model, intervals or quantiles missing, no horizon 1, a long series, mixed frequencies, superseded runs) and
+returns the phrases the report must say about what is missing. Invented data throughout.
 """
 
 from __future__ import annotations
@@ -111,6 +111,20 @@ def neither(path: Path) -> list[str]:
     return ["no prediction intervals"]
 
 
+def no_horizon_one(path: Path) -> list[str]:
+    """Forecasts for horizons 3 to 6 only: the default headline horizon (1 elsewhere) adapts."""
+    periods, values = _months("2023-01", 36), _seasonal(36)
+    _write(path, _runs(["a", "b"], periods, values, horizons=(3, 4, 5, 6)), _actuals(["a", "b"], periods, values, 30))
+    return ["headline horizon 3"]
+
+
+def one_model_no_intervals(path: Path) -> list[str]:
+    periods, values = _months("2023-01", 36), _seasonal(36)
+    _write(path, _runs(["a", "b"], periods, values, models=("model-a",), intervals=False),
+           _actuals(["a", "b"], periods, values, 30))
+    return ["only one model", "no prediction intervals"]
+
+
 def long_series(path: Path) -> list[str]:
     periods, values = _months("2001-01", 300), _seasonal(300)
     _write(path, _runs(["long"], periods, values, origins=range(12, 299)), _actuals(["long"], periods, values, 300))
@@ -138,5 +152,6 @@ def all_superseded(path: Path) -> list[str]:
 
 
 MATRIX = {f.__name__: f for f in (single_cell, forecasts_no_actuals, actuals_no_forecasts, no_scale, one_model,
-                                   intervals_no_quantiles, quantiles_no_intervals, neither, long_series,
+                                   intervals_no_quantiles, quantiles_no_intervals, neither, no_horizon_one,
+                                   one_model_no_intervals, long_series,
                                    weekly_and_quarterly, all_superseded)}

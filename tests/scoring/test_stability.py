@@ -2,13 +2,16 @@
 
 from __future__ import annotations
 
+import io
 import math
+import shutil
 
 import numpy as np
 import pandas as pd
 import pytest
 
 from ledger import Ledger
+from ledger.cli import app
 from ledger.periods import index_start, period_index
 
 M = 4   # quarterly: season length 4
@@ -52,11 +55,16 @@ def _scale(actual, series, origin):
     return np.mean(d) if d and np.mean(d) > 0 else None
 
 
-def _oracle(actual, runs, model, series):
+def _oracle(actual, runs, model, series, excluded=frozenset()):
+    """The figures of one series x model by plain loops; targets (series, t) in ``excluded`` are
+    left out and their revisions counted in n_excluded."""
     rev, toward, flips = [], [], []
-    n_rev = 0
+    n_rev = n_excluded = 0
     targets = sorted({t for (m, s, o, t) in runs if m == model and s == series})
     for t in targets:
+        if (series, t) in excluded:
+            n_excluded += sum(1 for (m, s, o, tt) in runs if m == model and s == series and tt == t) - 1
+            continue
         path = sorted((o, f) for (m, s, o, tt), f in runs.items() if m == model and s == series and tt == t)
         r = [path[k][1] - path[k - 1][1] for k in range(1, len(path))]
         n_rev += len(r)
@@ -70,9 +78,10 @@ def _oracle(actual, runs, model, series):
         for k in range(1, len(r)):
             if r[k] * r[k - 1] != 0:
                 flips.append(r[k] * r[k - 1] < 0)
-    n_targets = sum(1 for t in targets if sum(1 for (m, s, o, tt) in runs if m == model and s == series and tt == t) > 1)
+    n_targets = sum(1 for t in targets if (series, t) not in excluded
+                    and sum(1 for (m, s, o, tt) in runs if m == model and s == series and tt == t) > 1)
     return {"n_targets": n_targets, "n_revisions": n_rev, "revision": np.mean(rev), "toward": np.mean(toward),
-            "nervousness": np.mean(flips), "n_toward": len(toward), "n_pairs": len(flips)}
+            "nervousness": np.mean(flips), "n_toward": len(toward), "n_pairs": len(flips), "n_excluded": n_excluded}
 
 
 def test_stability_matches_a_numpy_loop(small):
@@ -117,3 +126,62 @@ def test_forecast_paths_are_the_last_targets_run_by_run(small):
         assert list(zip(part["origin_index"], part["point"])) == want
         y = actual.get(("A", t))
         assert (part["actual"].isna().all() if y is None else (part["actual"] == y).all())
+
+
+# Events over the small ledger: A's targets START+10 .. START+12 and every series' START+18 are
+# excluded; B's START+20 is only marked (exclude no), so it stays in.
+EVENTS = pd.DataFrame({"series": ["A", "*", "B"], "first": [_label(START + 10), _label(START + 18), _label(START + 20)],
+                       "last": [_label(START + 12), _label(START + 18), _label(START + 20)],
+                       "label": ["stock-out", "shutdown", "promotion"], "exclude": ["yes", "yes", "no"]})
+EXCLUDED = frozenset({("A", START + 10), ("A", START + 11), ("A", START + 12), ("A", START + 18), ("B", START + 18)})
+
+
+@pytest.fixture(scope="module")
+def with_events(small, tmp_path_factory):
+    path, actual, runs = small
+    copy = tmp_path_factory.mktemp("stab-events") / "s.duckdb"
+    shutil.copy(path, copy)
+    with Ledger.open(copy) as book:
+        before = book.store.next_timestamp()
+        book.record_events(EVENTS)
+    return copy, before, actual, runs
+
+
+def test_excluded_targets_are_left_out_of_stability(with_events):
+    path, _, actual, runs = with_events
+    with Ledger.open(path, create=False, read_only=True) as book:
+        got = book.stability()
+    assert len(got) == 4
+    for row in got.to_dict("records"):
+        want = _oracle(actual, runs, row["model"], row["series"], EXCLUDED)
+        for col, value in want.items():
+            assert row[col] == pytest.approx(value, rel=1e-12), (row["model"], row["series"], col)
+    assert (got["n_excluded"] > 0).all()        # every series x model lost the revisions of some target
+
+
+def test_include_excluded_and_as_of_put_the_targets_back(with_events):
+    path, before, actual, runs = with_events
+    with Ledger.open(path, create=False, read_only=True) as book:
+        back = book.stability(include_excluded=True)
+        then = book.stability(as_of=before)     # before the events were recorded
+    for frame in (back, then):
+        for row in frame.to_dict("records"):
+            want = _oracle(actual, runs, row["model"], row["series"])
+            for col, value in want.items():
+                assert row[col] == pytest.approx(value, rel=1e-12), (row["model"], row["series"], col)
+
+
+def test_a_group_whose_every_target_is_excluded_keeps_its_row(with_events, runner):
+    path, *_ = with_events
+    with Ledger.open(path, create=False, read_only=True) as book:
+        by_h = book.stability(by=["series", "horizon"], since=_label(START + 18), until=_label(START + 18))
+    # only target START+18 is selected, and it is excluded for both series
+    assert by_h["n_revisions"].tolist() == [0] * len(by_h) and by_h["revision"].isna().all()
+    assert by_h.groupby("series")["n_excluded"].sum().to_dict() == {"A": 6, "B": 6}   # 2 models x 3 revisions
+    out = runner.invoke(app, ["--ledger", str(path), "stability", "--by", "model", "--format", "csv",
+                              "--include-excluded"])
+    assert out.exit_code == 0, out.output
+    csv = pd.read_csv(io.StringIO(out.stdout))
+    assert csv["n_excluded"].tolist() == [0, 0]
+    assert csv["n_revisions"].tolist() == [sum(_oracle(*with_events[2:], m, s)["n_revisions"] for s in "AB")
+                                           for m in ("m1", "m2")]

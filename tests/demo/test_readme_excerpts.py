@@ -17,25 +17,28 @@ def test_every_excerpt_is_in_the_readme_once():
     assert all(text.count(f"<!-- excerpt {name}:") == 1 for name in EXCERPTS)
 
 
-def test_every_shown_output_is_an_excerpt_or_marked_illustrative():
-    # A console block that shows output (a line that is neither a `$ ` command nor its indented
-    # continuation) is an excerpt, or the paragraph after it starts "(Illustrative".
-    text = README.read_text(encoding="utf-8")
+_CONSOLE = re.compile(r"(<!-- excerpt [\w-]+[^>]*-->\n)?```console\n(.*?)```\n", re.DOTALL)
+
+
+def unmarked_outputs(text: str) -> list[str]:
+    """The first lines of console blocks that show output (a line that is neither a `$ ` command
+    nor its indented continuation) but are no excerpt and not followed by "(Illustrative"."""
     loose = []
-    for m in re.finditer(r"(<!-- excerpt [\w-]+[^>]*-->\n)?```console\n(.*?)```\n", text, re.DOTALL):
+    for m in _CONSOLE.finditer(text):
         lines = m.group(2).splitlines()
-        shows_output = any(not line.startswith(("$ ", "    ")) for line in lines)
         following = text[m.end():].lstrip("\n").split("\n\n", 1)[0]
-        if shows_output and m.group(1) is None and not following.startswith("(Illustrative"):
+        if (m.group(1) is None and any(not line.startswith(("$ ", "    ")) for line in lines)
+                and not following.startswith("(Illustrative")):
             loose.append(lines[0])
-    assert loose == []
-    assert _shows_output_unmarked("```console\n$ backsight verify\nledger: sound\n```\n")   # the check can fail
+    return loose
 
 
-def _shows_output_unmarked(text: str) -> bool:
-    m = re.search(r"(<!-- excerpt [\w-]+[^>]*-->\n)?```console\n(.*?)```\n", text, re.DOTALL)
-    return m is not None and m.group(1) is None and any(not line.startswith(("$ ", "    "))
-                                                         for line in m.group(2).splitlines())
+def test_every_shown_output_is_an_excerpt_or_marked_illustrative():
+    assert unmarked_outputs(README.read_text(encoding="utf-8")) == []
+    block = "```console\n$ backsight verify\nledger: sound\n```\n"                 # the check can fail
+    assert unmarked_outputs(block) == ["$ backsight verify"]
+    assert unmarked_outputs(block + "\n(Illustrative: invented.)\n") == []
+    assert unmarked_outputs("<!-- excerpt verify: … -->\n" + block) == []
 
 
 @pytest.mark.parametrize("name", sorted(EXCERPTS))

@@ -24,6 +24,7 @@ from markupsafe import Markup
 
 from ledger import Ledger, __version__
 from ledger.findings.base import FlagOptions
+from ledger.overrides import overrides_for
 from ledger.store import parse_as_of, utc_now
 from ledger.wording import format_level
 
@@ -111,7 +112,8 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
     findings per value of the attribute; an attribute not recorded at the as-of raises
     :class:`ledger.errors.UnknownName`. ``overrides`` ({override: base}, e.g.
     {"planner-override": "incumbent-hw"}) declares models that adjust another; the value each
-    such step adds is shown beside each model's value over the benchmark.
+    such step adds is shown beside each model's value over the benchmark. None (the default)
+    takes the relation recorded in the ledger (``backsight adjusts``); {} shows none.
     ``include_excluded`` scores the cells of excluding events too, as ``scores
     --include-excluded`` does; by default they are left out and counted on the first screen.
     ``series_pages`` (default :data:`SERIES_PAGES`; None = every series) caps the series pages:
@@ -133,7 +135,7 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
             book.selection(as_of=stamp, horizons=[horizon])   # a horizon no run has: one plain error
         models, chosen = report_models(book, stamp, since, until, include_excluded), incumbent or book.incumbent
         check_roles(models, chosen, benchmark, stamp)
-        overrides = dict(overrides or {})
+        overrides = overrides_for(book.store, stamp, overrides)     # None: as recorded in the ledger
         check_overrides(overrides, models)
         found = pool.submit(findings_job, path, stamp, models, horizon, chosen, benchmark, overrides, include_excluded)
         core = load(book, as_of=stamp, since=since, until=until, horizon=horizon, incumbent=incumbent,

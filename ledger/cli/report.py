@@ -38,13 +38,13 @@ def report(
     group_by: Annotated[str | None, typer.Option("--group-by", metavar="ATTR", help="Add groups.html: accuracy (unweighted and volume-weighted), group totals, findings and series per value of this series attribute (e.g. region).")] = None,
     include_excluded: IncludeExcludedOpt = False,
     series_pages: Annotated[str | None, typer.Option("--series-pages", metavar="N|all", help="Series pages to draw when the ledger has more series: the N with the largest total scaled error, plus every series an act or watch finding names (default 250; all: every series).")] = None,
-    adjusts: Annotated[list[str] | None, typer.Option("--adjusts", metavar="OVERRIDE=BASE", help="Declare that model OVERRIDE adjusts model BASE (e.g. planner-override=incumbent-hw), so the forecast value added of that step is shown; repeatable.")] = None,
+    adjusts: Annotated[list[str] | None, typer.Option("--adjusts", metavar="OVERRIDE=BASE", help="Declare that model OVERRIDE adjusts model BASE (e.g. planner-override=incumbent-hw), so the forecast value added of that step is shown; repeatable; replaces the relation recorded with backsight adjusts.")] = None,
 ) -> None:
     """Render the static HTML report (overview, findings, a page per model and per series, methods; with --group-by a groups page) into OUTDIR."""
     from reports import render_report
     from reports.value_added import parse_overrides
 
-    overrides = parse_overrides(adjusts or ())
+    overrides = parse_overrides(adjusts) if adjusts else None      # None: the relation recorded in the ledger
     # the default (250) is reports.site.SERIES_PAGES; the help states it (tests/reports/test_report_cells.py)
     pages = {}
     if series_pages is not None:

@@ -1,4 +1,4 @@
-"""Helpers shared by the test modules: table hashes, file writing, paths of the test data."""
+"""Helpers shared by the test modules: table hashes, file writing, invented ledgers, paths of the test data."""
 
 from __future__ import annotations
 
@@ -19,4 +19,16 @@ def table_hashes(path) -> dict[str, str]:
 
 def write(path, text: str):
     path.write_text(text, encoding="utf-8")
+    return path
+
+
+def record_invented(path, forecasts: list[dict], actuals: list[dict], attributes=None) -> Path:
+    """A ledger at ``path`` holding the invented rows (one back-fill, the actuals, optional attributes)."""
+    import pandas as pd
+
+    with Ledger.open(path) as book:
+        book.snapshot(pd.DataFrame(forecasts), name="invented-forecasts.csv")
+        book.record_actuals(pd.DataFrame(actuals), name="invented-actuals.csv")
+        if attributes is not None:
+            book.record_attributes(attributes, name="invented-attributes.csv")
     return path

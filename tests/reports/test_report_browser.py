@@ -25,7 +25,7 @@ import pytest
 
 from reports import render_report
 from reports.names import page_name
-from tests.reports.test_report import AS_OF, INCUMBENT, build_ledger
+from tests.reports.invented import AS_OF, INCUMBENT
 
 pytestmark = pytest.mark.browser
 
@@ -51,11 +51,8 @@ def _run(args: list[str], profile: Path) -> subprocess.CompletedProcess:
 
 
 @pytest.fixture(scope="module")
-def site(tmp_path_factory) -> Path:
-    root = tmp_path_factory.mktemp("browser")
-    path = build_ledger(root / "invented.duckdb")
-    return render_report(path, root / "site", as_of=AS_OF, incumbent=INCUMBENT, benchmark="snaive",
-                         title="Invented review").out_dir
+def site(invented_site) -> Path:
+    return invented_site[0].out_dir
 
 
 @pytest.fixture(scope="module")

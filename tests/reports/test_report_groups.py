@@ -28,6 +28,7 @@ from reports.group_views import GROUPS_PAGE, NO_GROUP, build_groups, count_findi
 from reports.names import MARKER, page_name
 from ledger.wording import num, pct
 from reports.text import bias_words
+from tests.helpers import record_invented
 from tests.reports.test_report import _parse
 
 AS_OF = "2100-01-01"     # after every recorded time (recorded_at is the wall clock of the test run)
@@ -67,11 +68,7 @@ def build_group_ledger(path: Path, seed: int = 20261207) -> Path:
                     for t in range(60) if (key, t) != GAP]
     attrs = pd.DataFrame({"series": list(REGIONS), "region": [v or "" for v in REGIONS.values()],
                           "family": ["tools"] * len(REGIONS)})
-    with Ledger.open(path) as book:
-        book.snapshot(pd.DataFrame(forecasts), name="invented-forecasts.csv")
-        book.record_actuals(pd.DataFrame(actuals), name="invented-actuals.csv")
-        book.record_attributes(attrs, name="invented-attributes.csv")
-    return path
+    return record_invented(path, forecasts, actuals, attrs)
 
 
 @pytest.fixture(scope="module")

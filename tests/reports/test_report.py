@@ -199,8 +199,8 @@ def test_every_page_is_written_with_its_sections(site, pages):
         assert not missing, (name, missing)
 
 
-def test_every_internal_link_resolves(site, pages):
-    out = site[0].out_dir
+def check_links(out: Path, pages: dict[str, str]) -> None:
+    """Ids are unique on each page, and every link names a written page and an id on it."""
     for name, text in pages.items():
         parsed = _parse(text)
         assert len(parsed.ids) == len(set(parsed.ids)), f"{name}: duplicate ids"
@@ -210,6 +210,10 @@ def test_every_internal_link_resolves(site, pages):
             assert (out / target).is_file(), (name, href)
             if fragment:
                 assert fragment in _parse(pages[target]).ids, (name, href)
+
+
+def test_every_internal_link_resolves(site, pages):
+    check_links(site[0].out_dir, pages)
 
 
 def test_no_page_refers_to_anything_outside_itself(pages):

@@ -24,10 +24,11 @@ from . import cycle_charts
 from .charts import Chart
 
 __all__ = ["ChangeRow", "MaseMove", "ChangesBlock", "EventRow", "SeriesCycle", "SeriesCycleView", "CycleData",
-           "load_cycle", "build_series_cycle", "PATH_TARGETS"]
+           "load_cycle", "build_series_cycle", "FIRST_SCREEN_CHANGES", "PATH_TARGETS"]
 
 PATH_TARGETS = 4          # target periods drawn per series in the run-by-run chart
-_CHANGE_ROWS = 20         # rows of the first-screen block (the changes command lists them all)
+_CHANGE_ROWS = 20         # rows of the changes section (the changes command lists them all)
+FIRST_SCREEN_CHANGES = 4  # findings that changed, on the first screen (new, resolved, then a changed severity)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -60,6 +61,7 @@ class ChangesBlock:
     since_review: int | None
     counts: dict[str, int]        # new, resolved, persisting
     rows: list[ChangeRow]         # new and resolved first, at most _CHANGE_ROWS
+    first_screen: list[ChangeRow]  # the few the review's first screen names
     total: int
     moves: list[MaseMove]
     mase_change: float
@@ -117,7 +119,20 @@ def _changes(book: Ledger, as_of: dt.datetime) -> ChangesBlock | None:
     moves = [MaseMove(m["model"], float(m["mase_then"]), float(m["mase_now"]), float(m["change"]),
                       int(m["n_then"]), int(m["n_now"])) for m in moved.to_dict("records")]
     return ChangesBlock(diff.now, diff.then, {s: diff.count(s) for s in ("new", "resolved", "persisting")},
-                        shown[:_CHANGE_ROWS], len(rows), moves, diff.mase_change)
+                        shown[:_CHANGE_ROWS], _first_screen(rows), len(rows), moves, diff.mase_change)
+
+
+def _first_screen(rows: list[ChangeRow]) -> list[ChangeRow]:
+    """The first few findings that changed: one new, one resolved, one persisting with a changed
+    severity, in turn (each in the diff's order), so that no status hides the others."""
+    queues = [[r for r in rows if r.status == "new"], [r for r in rows if r.status == "resolved"],
+              [r for r in rows if r.status == "persisting" and r.severity_then != r.severity_now]]
+    out: list[ChangeRow] = []
+    while len(out) < FIRST_SCREEN_CHANGES and any(queues):
+        for queue in queues:
+            if queue and len(out) < FIRST_SCREEN_CHANGES:
+                out.append(queue.pop(0))
+    return out
 
 
 def _event_rows(events: pd.DataFrame) -> list[EventRow]:

@@ -173,13 +173,28 @@ def emit(frame: pd.DataFrame, fmt: Format, *, title: str | None = None, keep=())
         # A lone CR inside a value is not quoted by the csv module when lines end in LF, and a
         # reader would split the row there; such (rare) output quotes every text field instead.
         quoting = csv.QUOTE_NONNUMERIC if _has_cr(frame) else csv.QUOTE_MINIMAL
-        sys.stdout.write(frame.to_csv(index=False, lineterminator="\n", quoting=quoting))
+        _write_out(frame.to_csv(index=False, lineterminator="\n", quoting=quoting))
     elif fmt is Format.json:
         records = json.loads(frame.to_json(orient="records", double_precision=15, date_format="iso"))
-        sys.stdout.write(json.dumps(records, indent=1, ensure_ascii=False) + "\n")
+        _write_out(json.dumps(records, indent=1, ensure_ascii=False) + "\n")
     else:
         for line in render_table(frame, title=title, width=out_width(), keep=keep):
             typer.echo(line)
+
+
+_PIECE = 1 << 16
+
+
+def _write_out(text: str) -> None:
+    """Write data to stdout a pipe's worth (64 kB) at a time.
+
+    One big write that a reader leaves halfway (``| head -1``) comes back as a short write and
+    Python drops the rest without a word, so the command would exit 0 with its output cut; the
+    next piece meets the closed pipe instead, and the command ends as :class:`_Group` says (exit 1).
+    """
+    for start in range(0, len(text), _PIECE):
+        sys.stdout.write(text[start:start + _PIECE])
+    sys.stdout.flush()
 
 
 def _has_cr(frame: pd.DataFrame) -> bool:

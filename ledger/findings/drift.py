@@ -29,8 +29,8 @@ of |e|/q - |e - b|/q, b the mean error since the change; size, sum of |e|/q - th
 before the change, floored at 0. Figure: MASE since the change / MASE before it.
 
 Consolidation: when at least :data:`CONSOLIDATE_MIN` series of one model change in the same
-direction within :data:`CONSOLIDATE_SPAN` periods of each other, one model-level finding lists
-them (``series_list``); its impact is their sum.
+direction within :data:`CONSOLIDATE_SPAN` periods of the first of them, one model-level finding
+lists them (``series_list``), dated at their median date; its impact is their sum.
 """
 
 from __future__ import annotations
@@ -49,7 +49,7 @@ from ..wording import label, pval, short_num as num, signed
 from ..stats.recalibration import corrected_mae
 from .drift_actions import SeriesIndex, best_other, share
 
-__all__ = ["drift_findings", "horizon_ranges", "POOL_MIN", "ACT_SHARE", "CONSOLIDATE_MIN", "CONSOLIDATE_SPAN"]
+__all__ = ["drift_findings", "sequence_tests", "SEQUENCE_COLUMNS", "horizon_ranges", "POOL_MIN", "ACT_SHARE", "CONSOLIDATE_MIN", "CONSOLIDATE_SPAN"]
 
 POOL_MIN = 5
 ACT_SHARE = 0.10
@@ -73,31 +73,77 @@ class _Seq:
     phi: float = 0.0
 
 
+#: One row per series × model × horizon sequence, from :func:`sequence_tests`.
+SEQUENCE_COLUMNS = ("model", "series", "horizon", "n", "judged", "p", "bias", "start", "shift", "lrv")
+
+
+def sequence_tests(cells: pd.DataFrame, options: FlagOptions) -> pd.DataFrame:
+    """The two change-point tests of every series × model × horizon sequence in ``cells``.
+
+    ``cells`` (columns model, series, horizon, period_index, e, q; any order) must hold whole
+    model × horizon groups: the autocorrelation is pooled over a model × horizon, so the tests of
+    one group depend on that group's cells alone. They run group by group here, so the result
+    is the same bit for bit whether all cells come at once (DuckDB) or one group at a time
+    (Spark's grouped pandas UDFs, :meth:`ledger.scoring.spark.SparkLake.apply_in_groups`).
+    Columns :data:`SEQUENCE_COLUMNS`, sorted by model, series, horizon; ``judged`` is False (and
+    the results NaN) for a sequence shorter than the tests need.
+    """
+    ordered = cells.sort_values(["model", "series", "horizon", "period_index"], kind="stable").reset_index(drop=True)
+    cols = _columns(ordered)
+    need = max(options.min_cells, 2 * MIN_SEGMENT + 2)
+    seqs, pairs = [], {}
+    for (model, series, horizon), idx in ordered.groupby(["model", "series", "horizon"], sort=True).indices.items():
+        q = _Seq(str(model), str(series), int(horizon), idx, p=np.nan, start=-1, shift=np.nan)
+        seqs.append(q)
+        if idx.size >= need:
+            pairs.setdefault((q.model, q.horizon), []).append(q)
+    for members in pairs.values():
+        _test_all(members, cols)
+    judged = [q.idx.size >= need for q in seqs]
+    return pd.DataFrame({
+        "model": pd.Series([q.model for q in seqs], dtype=object),
+        "series": pd.Series([q.series for q in seqs], dtype=object),
+        "horizon": np.array([q.horizon for q in seqs], dtype=np.int64),
+        "n": np.array([q.idx.size for q in seqs], dtype=np.int64),
+        "judged": np.array(judged, dtype=bool),
+        "p": np.array([q.p for q in seqs], dtype=float),
+        "bias": np.array([q.bias for q in seqs], dtype=bool),
+        "start": np.array([q.start for q in seqs], dtype=np.int64),
+        "shift": np.array([q.shift for q in seqs], dtype=float),
+        "lrv": np.array([q.lrv for q in seqs], dtype=float),
+    }, columns=list(SEQUENCE_COLUMNS))
+
+
 def drift_findings(cells: pd.DataFrame, seasons: dict[str, int], options: FlagOptions, *,
-                   subjects=None, recent_from: dict[str, int] | None = None, total: float = np.nan) -> list[Finding]:
+                   subjects=None, recent_from: dict[str, int] | None = None, total: float = np.nan,
+                   tested: pd.DataFrame | None = None) -> list[Finding]:
     """Drift findings for the models in ``subjects`` (None: every model in ``cells``).
 
     ``cells``: scored cells of every model (``Ledger.cells``), so that a finding can name a model
     that was more accurate since the change. ``recent_from``: first period index of the recent
     window per frequency (default: the last ``options.recent`` periods of each frequency).
     ``total``: the ledger's sum of |e|/q over the recent window, the denominator of impact.
+    ``tested``: :func:`sequence_tests` of the subjects' cells when computed elsewhere (on Spark's
+    executors); None computes it here.
     """
     ordered = cells.sort_values(["model", "series", "horizon", "period_index"], kind="stable").reset_index(drop=True)
     cols = _columns(ordered)
     recent_from = recent_from or _recent_from(ordered, options.recent)
     wanted = set(ordered["model"]) if subjects is None else set(subjects)
-    seqs, short = [], {}
+    if tested is None:
+        tested = sequence_tests(ordered[ordered["model"].isin(wanted)], options)
+    tested = tested[tested["model"].isin(wanted)].sort_values(["model", "series", "horizon"], kind="stable")
     groups = ordered.groupby(["model", "series", "horizon"], sort=True).indices
-    for (model, series, horizon), idx in groups.items():
-        if model not in wanted:
-            continue
-        counts = short.setdefault(str(model), [0, 0])
+    seqs, short = [], {}
+    for row in tested.itertuples(index=False):
+        counts = short.setdefault(str(row.model), [0, 0])
         counts[1] += 1
-        if idx.size < max(options.min_cells, 2 * MIN_SEGMENT + 2):
+        if not row.judged:
             counts[0] += 1
             continue
-        seqs.append(_Seq(str(model), str(series), int(horizon), idx))
-    _test_all(seqs, cols)
+        seqs.append(_Seq(str(row.model), str(row.series), int(row.horizon), groups[(row.model, row.series, row.horizon)],
+                         p=float(row.p), bias=bool(row.bias), start=int(row.start), shift=float(row.shift),
+                         lrv=float(row.lrv)))
     if seqs:
         adjusted = benjamini_hochberg(np.array([q.p for q in seqs]))
         flagged = [(q, a) for q, a in zip(seqs, adjusted) if a <= options.fdr]
@@ -362,12 +408,15 @@ def _merged(group: list[Finding], head: str) -> Finding:
     impact = sum(f.impact for f in group)
     names = ", ".join(series)
     what = head if head.startswith("forecasts") else "errors grew"
-    text = (f"{what} on {len(series)} series from about {group[0].since}: {names}; the largest "
+    # The common change is dated at the members' median date (group is in date order): each
+    # member's date errs either way, and the earliest of several errs early.
+    since = group[(len(group) - 1) // 2].since
+    text = (f"{what} on {len(series)} series from about {since}: {names}; the largest "
             f"({lead.series}): {lead.evidence}")
     severity = "act" if any(f.severity == "act" for f in group) else "watch"
     action = f"{len(series)} series changed together, so look for a common cause; for {lead.series}: {lead.action}"
     return dataclasses.replace(lead, series="", evidence=text, severity=severity, impact=impact, action=action,
-                               series_list=names, since=group[0].since, n=sum(f.n for f in group),
+                               series_list=names, since=since, n=sum(f.n for f in group),
                                horizons=horizon_ranges(sorted({h for f in group for h in _hs(f.horizons)})))
 
 

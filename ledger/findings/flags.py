@@ -10,13 +10,14 @@ models; series-level data findings (model '') are kept for the series those mode
 from __future__ import annotations
 
 import dataclasses
+import functools
 from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd
 
 from .calibration import calibration_findings
-from .drift import drift_findings
+from .drift import drift_findings, sequence_tests
 from ..errors import UnknownName
 from .base import (
     KINDS,
@@ -28,9 +29,10 @@ from .base import (
 )
 from .data import data_findings, series_models
 from .quantiles import quantile_findings
-from ..scoring.cells import Selection, interval_misses, score_cells
+from ..scoring.cells import Selection, cells_sql, interval_misses, score_cells
 from ..scoring.quantile_reads import quantile_cells
 from ..scoring.attributes import check_attribute, series_attributes
+from ..overrides import overrides_for, parse_overrides
 from ..store import Store
 from .value import value_findings
 
@@ -47,7 +49,10 @@ def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: 
     """
     kinds = _check_kinds(kinds)
     options = FlagOptions.from_keywords(**thresholds)
-    check_models(store, list(sel.models) + ([options.benchmark] if options.benchmark else []))
+    given = None if options.adjusts is None else parse_overrides(filter(None, options.adjusts.split(",")))
+    overrides = overrides_for(store, sel.as_of, given)
+    check_models(store, list(sel.models) + ([options.benchmark] if options.benchmark else [])
+                 + [name for pair in (given or {}).items() for name in pair])
     everyone = dataclasses.replace(sel, models=())
     seasons, freqs = _series_facts(store)
     found: list[Finding] = []
@@ -56,17 +61,37 @@ def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: 
     subjects = list(sel.models) or known_models(store)
     recent_from, total = recent_window(cells[cells["model"].isin(subjects)], options.recent)
     if "drift" in kinds:
-        found += drift_findings(cells, seasons, options, subjects=subjects, recent_from=recent_from, total=total)
+        found += drift_findings(cells, seasons, options, subjects=subjects, recent_from=recent_from, total=total,
+                                tested=_tested_on_executors(store, everyone, subjects, options))
     if "calibration" in kinds:
         found += calibration_findings(interval_misses(store, sel), freqs, options, recent_from=recent_from,
                                       total=total)
     if "quantiles" in kinds:
         found += quantile_findings(quantile_cells(store, sel), options)
     if "value" in kinds:
-        found += value_findings(cells, subjects, known_models(store), options, total=total)
+        found += value_findings(cells, subjects, known_models(store), options, total=total, overrides=overrides)
     if "data" in kinds:
         found += _data_for(store, sel, options)
     return findings_frame(found)
+
+
+# The Spark schema of sequence_tests' rows (drift.SEQUENCE_COLUMNS).
+_SEQUENCE_SCHEMA = ("model string, series string, horizon long, n long, judged boolean, p double, bias boolean, "
+                    "start long, shift double, lrv double")
+
+
+def _tested_on_executors(store: Store, sel: Selection, subjects: Sequence[str], options: FlagOptions):
+    """The drift tests of every sequence, computed where the cells live when the store can run a
+    function per group of a query's rows (a Spark lake: grouped pandas UDFs on the executors,
+    one model × horizon per group); None for a ledger file, whose cells are tested in process."""
+    apply_in_groups = getattr(store, "apply_in_groups", None)
+    if apply_in_groups is None:
+        return None
+    sql, params = cells_sql(sel)
+    query = (f"SELECT model, series, horizon, period_index, e, q FROM ({sql}) c "
+             "WHERE list_contains($drift_models, model)")
+    return apply_in_groups(query, {**params, "drift_models": list(subjects)}, keys=("model", "horizon"),
+                           fn=functools.partial(sequence_tests, options=options), schema=_SEQUENCE_SCHEMA)
 
 
 def recent_window(cells: pd.DataFrame, recent: int) -> tuple[dict[str, int], float]:

@@ -15,7 +15,7 @@ import numpy as np
 
 from ..errors import InputError, LedgerError
 
-__all__ = ["SHOWN", "InputErrors", "Problems", "refuse"]
+__all__ = ["SHOWN", "InputErrors", "Problems", "raise_found", "refuse"]
 
 SHOWN = 20
 
@@ -45,10 +45,18 @@ class Problems:
         self.total = 0
 
     def add(self, problem: InputError) -> None:
+        if problem.row is None and any(p.row is None and str(p) == str(problem) for p in self.found):
+            return      # a header's problem found again in a later chunk is still one problem
         self.total += 1
         self.found.append(problem)
         if len(self.found) > 4 * SHOWN:   # keep memory flat on a file with millions of bad rows
             self.found = sorted(self.found, key=_order)[:SHOWN]
+
+    def extend(self, found: list[InputError], total: int) -> None:
+        """Add ``total`` problems of which ``found`` are the first (a whole-file check's rows)."""
+        for p in found:
+            self.add(p)
+        self.total += total - len(found)
 
     def __bool__(self) -> bool:
         return self.total > 0
@@ -59,9 +67,7 @@ class Problems:
         try:
             yield
         except InputErrors as exc:
-            for p in exc.problems:
-                self.add(p.shifted(offset))
-            self.total += exc.total - len(exc.problems)
+            self.extend([p.shifted(offset) for p in exc.problems], exc.total)
         except InputError as exc:
             self.add(exc.shifted(offset))
 
@@ -96,7 +102,13 @@ def refuse(source: str, bad: np.ndarray, column: str, what) -> None:
     rows = np.flatnonzero(bad)
     if not len(rows):
         return
-    found = [InputError(source, what(int(i)), row=int(i) + 1, column=column) for i in rows[:SHOWN]]
-    if len(rows) == 1:
+    raise_found(source, [InputError(source, what(int(i)), row=int(i) + 1, column=column) for i in rows[:SHOWN]],
+                len(rows))
+
+
+def raise_found(source: str, found: list[InputError], total: int) -> None:
+    """Raise ``total`` problems of which ``found`` are the first (nothing when there are none)."""
+    if total == 1:
         raise found[0]
-    raise InputErrors(source, found, len(rows))
+    if total:
+        raise InputErrors(source, found, total)

@@ -17,12 +17,12 @@ from collections.abc import Iterator
 
 import duckdb
 import numpy as np
-import pandas as pd
 import pyarrow as pa
 
-from ..errors import FrequencyError, InputError
+from ..errors import InputError
 from ..periods import period_label, period_sql
 from ..store import bounded_memory
+from .problems import SHOWN, raise_found
 
 __all__ = ["Stage"]
 
@@ -78,17 +78,19 @@ class Stage:
                                 "JOIN series l USING (series)").fetchall()
         return {r[0] for r in rows}
 
-    def check_recorded(self, source: str, freq: str) -> None:
-        """Refuse a series recorded with another frequency, at its first row."""
-        rows = self.con.execute(
+    def recorded_conflicts(self, freq: str) -> tuple[list[tuple[int, str, str]], int]:
+        """Series recorded with another frequency than ``freq``: (first row, series, recorded
+        frequency) of the first :data:`SHOWN` in file order, and how many there are."""
+        return self._first_rows(
             f"SELECT s.row, s.series, l.frequency FROM (SELECT series, min(row) AS row FROM {self.table} "
-            "GROUP BY series) s JOIN series l USING (series) WHERE l.frequency <> ? ORDER BY s.row LIMIT 1",
-            [freq]).fetchall()
-        if rows:
-            row, key, recorded = rows[0]
-            raise FrequencyError(
-                f"{source} row {row} column series: series {key!r} is recorded as {recorded}, "
-                f"but this file is {freq}; a series keeps the frequency it was first recorded with")
+            "GROUP BY series) s JOIN series l USING (series) WHERE l.frequency <> $freq", {"freq": freq})
+
+    def _first_rows(self, sql: str, params: dict) -> tuple[list[tuple], int]:
+        """The first :data:`SHOWN` rows of ``sql`` by its ``row`` column, and the count of all of
+        them: a whole-file check names every offending row, not only the first."""
+        rows = self.con.execute(f"SELECT *, count(*) OVER () FROM ({sql}) ORDER BY row LIMIT {SHOWN}",
+                                params).fetchall()
+        return [r[:-1] for r in rows], int(rows[0][-1]) if rows else 0
 
     def add_labels(self, column: str, labels: list[str], kinds: list[str | None], days: list[dt.date],
                    first_rows: np.ndarray) -> None:
@@ -120,9 +122,11 @@ class Stage:
                                 "AND kind IS NOT NULL GROUP BY kind", [column]).fetchall()
         return {kind: int(row) for kind, row in rows}
 
-    def resolve(self, freq: str, label_columns: list[str]) -> None:
-        """Build the ready table: each label column becomes a start date and a period index (in SQL,
-        with the formulas of :func:`ledger.periods.period_start` and :func:`~ledger.periods.period_index`)."""
+    def resolve(self, freq: str, label_columns: list[str], order: str) -> None:
+        """Build the ready table, sorted by ``order``: each label column becomes a start date and a
+        period index (in SQL, with the formulas of :func:`ledger.periods.period_start` and
+        :func:`~ledger.periods.period_index`). Sorted once here, so that the writes that follow
+        keep its order without sorting again."""
         raw, lab = f"{self.table}_labels", f"{self.table}_lab"
         start, index = period_sql("l.day", freq)
         self.con.execute(f"CREATE TEMP TABLE {lab} AS SELECT label, {start} AS day, {index} AS idx FROM "
@@ -132,31 +136,33 @@ class Stage:
             joins.append(f"JOIN {lab} l{i} ON l{i}.label = s.{col}")
             exprs.append(f"l{i}.day AS {col}, l{i}.idx AS {col}_index")
         self.con.execute(f"CREATE TEMP TABLE {self.ready} AS SELECT s.* EXCLUDE ({', '.join(label_columns)}), "
-                         f"{', '.join(exprs)} FROM {self.table} s {' '.join(joins)}")
+                         f"{', '.join(exprs)} FROM {self.table} s {' '.join(joins)} ORDER BY {order}")
         for table in (self.table, lab, raw):
             self.con.execute(f"DROP TABLE {table}")
 
     def check_horizons(self, source: str, freq: str, max_horizon: int) -> None:
-        far = self.con.execute(f"SELECT row, period_index - origin_index FROM {self.ready} "
-                               "WHERE period_index - origin_index > ? ORDER BY row LIMIT 1", [max_horizon]).fetchall()
-        if far:
-            raise InputError(source, f"target period is {far[0][1]:,} periods after the origin; "
-                             f"Backsight accepts horizons up to {max_horizon}", row=far[0][0], column="period")
-        bad = self.con.execute(f"SELECT row, period, origin FROM {self.ready} "
-                               "WHERE period_index <= origin_index ORDER BY row LIMIT 1").fetchall()
-        if bad:
-            row, target, origin = bad[0]
-            raise InputError(source, f"target period {period_label(target, freq)} is not after "
-                             f"the origin {period_label(origin, freq)}", row=row, column="period")
+        """Refuse every row whose target period is too far after its origin or not after it."""
+        found, total = self._first_rows(
+            f"SELECT row, period, origin, period_index - origin_index AS h FROM {self.ready} "
+            "WHERE period_index - origin_index > $max OR period_index <= origin_index", {"max": max_horizon})
+        problems = [InputError(source, f"target period is {h:,} periods after the origin; Backsight accepts "
+                                       f"horizons up to {max_horizon}", row=row, column="period") if h > 0 else
+                    InputError(source, f"target period {period_label(target, freq)} is not after "
+                                       f"the origin {period_label(origin, freq)}", row=row, column="period")
+                    for row, target, origin, h in found]
+        raise_found(source, problems, total)
 
     def check_unique(self, source: str, keys: list[str], column: str, what: str) -> None:
-        """Refuse the first row that repeats the keys of an earlier row (naming that row)."""
+        """Refuse every row that repeats the keys of an earlier row (naming that row)."""
         by = ", ".join(keys)
-        rows = self.con.execute(
+        # A grouping finds whether any key repeats at half the cost of the window that names the rows.
+        if not self.con.execute(f"SELECT count(*) FROM {self.ready} GROUP BY {by} HAVING count(*) > 1 LIMIT 1").fetchall():
+            return
+        found, total = self._first_rows(
             f"SELECT row, first FROM (SELECT row, min(row) OVER (PARTITION BY {by}) AS first FROM {self.ready}) "
-            "WHERE row > first ORDER BY row LIMIT 1").fetchall()
-        if rows:
-            raise InputError(source, f"{what} (first at row {rows[0][1]})", row=rows[0][0], column=column)
+            "WHERE row > first", {})
+        raise_found(source, [InputError(source, f"{what} (first at row {first})", row=row, column=column)
+                             for row, first in found], total)
 
     def case_twins(self, column: str, table: str, limit: int = 6) -> list[list[str]]:
         """Groups of keys in ``column`` (with the ledger's ``table``.``column``) equal but for case,
@@ -172,8 +178,7 @@ class Stage:
     def series(self) -> list[str]:
         return [r[0] for r in self.con.execute(f"SELECT DISTINCT series FROM {self.ready} ORDER BY series").fetchall()]
 
-    def batches(self, select: str, order: str, vectors: int = 50) -> Iterator[pd.DataFrame]:
-        """The ready table in ``order``, as frames of ``vectors`` DuckDB vectors (2,048 rows each)."""
-        result = self.con.execute(f"SELECT {select} FROM {self.ready} ORDER BY {order}")
-        while len(batch := result.fetch_df_chunk(vectors)):
-            yield batch
+    def batches(self, select: str, order: str, rows: int = 102_400) -> Iterator[pa.RecordBatch]:
+        """The ready table in ``order``, as Arrow record batches of at most ``rows`` rows (no
+        pandas frame per batch: a back-fill of thousands of small runs would spend its time there)."""
+        yield from self.con.sql(f"SELECT {select} FROM {self.ready} ORDER BY {order}").to_arrow_reader(rows)

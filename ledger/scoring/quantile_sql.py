@@ -19,6 +19,7 @@ import pandas as pd
 
 from ..stats.quantiles import TAU_DIGITS
 from ..wording import quantile_name
+from .repeatable import Sums
 
 __all__ = ["WIS_COLUMNS", "wis_cells_sql", "wis_group_sql", "quantile_detail_sql", "add_probabilistic_columns"]
 
@@ -130,36 +131,41 @@ def _per_cell_ctes(cells: str) -> str:
         FROM qint qi FULL OUTER JOIN bsum bs ON bs.cell_id = qi.cell_id)"""
 
 
-def wis_group_sql(cells: str, select_keys: str, group: str) -> str:
-    """SQL: per group of ``cells`` (alias ``c`` in the key expressions), the means of the WIS
-    columns and swis, and pinball (the mean pinball loss over the group's quantile rows, from the
-    same pass over them).
+def wis_group_sql(cells: str, select_keys: str, group: str, sums: Sums, bound: dict[str, float]) -> str:
+    """SQL: per group of ``cells`` (alias ``c`` in the key expressions), the sums and counts the
+    WIS columns are means of: n_wis (cells with a WIS), s_disp, s_over, s_under (their parts),
+    n_swis and s_wisq (cells with a WIS and a scale; Σ WIS/q), n_crps and s_crps, and n_pin and
+    s_pin (the group's quantile rows and the sum of their pinball losses, from the same pass).
 
-    ``select_keys``/``group``: the key expressions as in :func:`ledger.scoring.cells.scores`
-    (empty strings for one group over all cells). swis = mean WIS/q over cells with a scale.
+    ``select_keys``/``group``: the key expressions (empty strings for one group over all cells);
+    ``sums`` and ``bound`` (upper bounds on "wis", "wis_q", "crps" and "pinball_cell") make the
+    sums order-independent (:mod:`ledger.scoring.repeatable`).
     """
     keys = select_keys + "," if select_keys else ""
     gb = f"GROUP BY {group}" if group else ""
     return f"""
     SELECT {keys}
-           avg(c.wis) AS wis, avg(c.wis_dispersion) AS wis_dispersion,
-           avg(c.wis_overprediction) AS wis_overprediction,
-           avg(c.wis_underprediction) AS wis_underprediction,
-           avg(c.wis / c.q) AS swis, avg(c.crps_q) AS crps_q,
-           sum(c.pinball_sum) / sum(c.n_q) AS pinball
+           count(c.wis) AS n_wis, {sums.total("c.wis_dispersion", bound["wis"])} AS s_disp,
+           {sums.total("c.wis_overprediction", bound["wis"])} AS s_over,
+           {sums.total("c.wis_underprediction", bound["wis"])} AS s_under,
+           count(c.wis / c.q) AS n_swis, {sums.total("c.wis / c.q", bound["wis_q"])} AS s_wisq,
+           count(c.crps_q) AS n_crps, {sums.total("c.crps_q", bound["crps"])} AS s_crps,
+           {sums.total("c.pinball_sum", bound["pinball_cell"])} AS s_pin, sum(c.n_q) AS n_pin
     FROM ({wis_cells_sql(cells)}) c
     {gb}"""
 
 
-def quantile_detail_sql(cells: str, select_keys: str, group: str) -> str:
-    """SQL: per group and quantile level tau, the share of actuals below q_tau and its mean pinball loss."""
+def quantile_detail_sql(cells: str, select_keys: str, group: str, sums: Sums, bound: dict[str, float]) -> str:
+    """SQL: per group and quantile level tau, the rows (n), the actuals below q_tau (n_below) and
+    the sum of the pinball losses (s_pin)."""
     keys = select_keys + "," if select_keys else ""
     d = TAU_DIGITS
+    loss = (f"CASE WHEN c.actual >= qt.value THEN round(qt.tau, {d}) * (c.actual - qt.value) "
+            f"ELSE (1 - round(qt.tau, {d})) * (qt.value - c.actual) END")
     return f"""
-    SELECT {keys} round(qt.tau, {d}) AS tau,
-           avg(CASE WHEN c.actual < qt.value THEN 1.0 ELSE 0.0 END) AS below,
-           avg(CASE WHEN c.actual >= qt.value THEN qt.tau * (c.actual - qt.value)
-                    ELSE (1 - qt.tau) * (qt.value - c.actual) END) AS pinball
+    SELECT {keys} round(qt.tau, {d}) AS tau, count(*) AS n,
+           count(*) FILTER (WHERE c.actual < qt.value) AS n_below,
+           {sums.total(loss, bound["pinball_row"])} AS s_pin
     FROM {cells} c JOIN quantiles qt ON {_on('qt', 'c')}
     GROUP BY {group + ',' if group else ''} round(qt.tau, {d})"""
 

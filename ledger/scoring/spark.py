@@ -98,20 +98,29 @@ def _spark_types() -> dict[str, str]:
     return {t: ", ".join(cols) for t, cols in out.items()}
 
 
+def _plain_text(fn):
+    """``fn`` with its output's text columns as Python objects: pyspark's Arrow conversion of a
+    UDF's output takes no pandas 3 Arrow-backed strings (a ``ChunkedArray`` error)."""
+    def run(frame: pd.DataFrame) -> pd.DataFrame:
+        out = fn(frame)
+        return out.astype({c: object for c in out.columns if pd.api.types.is_string_dtype(out[c])})
+    return run
+
+
 class _Result:
     def __init__(self, frame):
-        self._frame = frame
+        self.frame = frame
 
     def df(self) -> pd.DataFrame:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", FutureWarning)   # pyspark's notice about pandas 3
-            return self._frame.toPandas()
+            return self.frame.toPandas()
 
     def fetchall(self) -> list[tuple]:
-        return [tuple(r) for r in self._frame.collect()]
+        return [tuple(r) for r in self.frame.collect()]
 
     def fetchone(self):
-        rows = self._frame.limit(1).collect()
+        rows = self.frame.limit(1).collect()
         return tuple(rows[0]) if rows else None
 
 
@@ -180,6 +189,13 @@ class SparkLake:
 
     def get_setting(self, key: str) -> str | None:
         return self._settings.get(key)
+
+    def apply_in_groups(self, sql: str, params: dict, *, keys: Sequence[str], fn, schema: str) -> pd.DataFrame:
+        """The rows of a query (DuckDB dialect) grouped by ``keys``, each group handed to ``fn``
+        (a pandas frame in, a pandas frame out) in Spark's Python workers (``applyInPandas``);
+        the outputs of all groups, collected. ``schema``: Spark DDL of ``fn``'s output."""
+        frame = self.con.execute(sql, params).frame
+        return _Result(frame.groupBy(*keys).applyInPandas(_plain_text(fn), schema=schema)).df()
 
     def close(self) -> None:
         for table in TABLES:

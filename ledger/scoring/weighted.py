@@ -22,8 +22,9 @@ import pandas as pd
 
 from ..errors import UnknownName
 from .attributes import check_attribute, series_attributes
-from .cells import Selection, cells_sql, scores
-from .repeatable import one_thread
+from .cells import Selection, cells_sql
+from .grouped import scores
+from .repeatable import sums_for
 from ..store import Store, latest_actuals_sql
 
 __all__ = ["WEIGHTED", "volume_weights", "weighted_scores"]
@@ -34,12 +35,13 @@ WEIGHTED = {"mape": "wmape", "bias_pct": "wbias_pct", "mase": "wmase", "rmsse": 
 def volume_weights(store: Store, sel: Selection) -> pd.DataFrame:
     """Per series: first scored target period index, season length, volume (see module docstring)."""
     sql, params = cells_sql(sel)
-    with one_thread(store.con):  # Σ|actual| to the same last bit on every run
-        return store.con.execute(f"""
+    size, rows = store.con.execute("SELECT max(abs(value)), count(*) FROM actuals").fetchone()
+    volume = sums_for(store.con, rows).total("abs(a.value)", float(size or 0.0))  # the same last bit every run
+    return store.con.execute(f"""
         WITH first AS (SELECT series, min(period_index) AS first_index FROM ({sql}) c GROUP BY series),
         act AS ({latest_actuals_sql()})
         SELECT f.series, f.first_index, s.season_length,
-               coalesce(sum(abs(a.value)), 0) AS volume, count(a.value) AS n_volume
+               coalesce({volume}, 0) AS volume, count(a.value) AS n_volume
         FROM first f JOIN series s ON s.series = f.series
         LEFT JOIN act a ON a.series = f.series
              AND a.period_index >= f.first_index - s.season_length AND a.period_index < f.first_index

@@ -13,8 +13,9 @@ Two tests, each over the whole record (no reference window, so no blind spot at 
   mu at its start and (1 - phi) mu after it, and at each k the step is fitted by GLS; the
   statistic is the largest GLS z over k, max_k |x~_k'w| / (sqrt(x~_k'x~_k) s_w). At phi = 0 it
   is the plain Gaussian scan max_k |sum_{t>=k} e_t| / sqrt((n - k) s^2) (Csorgo & Horvath 1997,
-  "Limit Theorems in Change-Point Analysis", ch. 1; from memory). The maximising k, the
-  maximum-likelihood change point given phi, dates the change. Sources: Kim (1996) "Change-point
+  "Limit Theorems in Change-Point Analysis", ch. 1; from memory). The change is dated at the k
+  whose +-2-cell window holds the most posterior probability of the start (:func:`_dated`), the
+  Bayes date for "within +-2 periods"; it is the maximising k most of the time. Sources: Kim (1996) "Change-point
   detection for correlated observations", *Statistica Sinica* 6, 275-287 (the likelihood-ratio
   test for a change in mean under AR(p) errors, p-values approximated, not closed form; read
   from its abstract); Robbins, Gallagher, Lund & Aue (2011) "Mean shift testing in correlated
@@ -97,7 +98,7 @@ class ScanResult:
     """Per-row outcome of :func:`bias_scan` or :func:`size_shift` (arrays of one entry per row).
 
     ``statistic`` the studentised maximum; ``start`` the 0-based cell where the change begins
-    (the maximiser); ``p_value`` from the simulated null; ``shift`` the mean of the row from
+    (scan: the window mode of :func:`_dated`; size test: the maximiser); ``p_value`` from the simulated null; ``shift`` the mean of the row from
     ``start`` on minus the reference (0 for the scan, the mean before ``start`` for the size
     test); ``lrv`` the long-run variance used; ``phi`` the autocorrelation behind it.
     """
@@ -242,13 +243,42 @@ def _gls_fit(e: np.ndarray, phi: np.ndarray, min_segment: int) -> tuple[np.ndarr
     num = lead * w[:, ks] + (1 - phi) * after[:, ks]
     den = lead * lead + (n - ks - 1)[None, :] * (1 - phi) ** 2
     score = np.abs(num) / np.sqrt(den)
-    start = score.argmax(axis=1)
+    best = score.argmax(axis=1)
     rows = np.arange(e.shape[0])
+    resid = w - (num[rows, best] / den[rows, best])[:, None] * _step(n, best, phi, head)
+    start = _dated(num, den, robust_spread(resid) ** 2)
     shift = num[rows, start] / den[rows, start]
+    return score[rows, best], start, shift, resid
+
+
+def _step(n: int, start: np.ndarray, phi: np.ndarray, head: np.ndarray) -> np.ndarray:
+    """The whitened step regressor x~ per row: 0 before start, 1 at it (head at cell 0), 1 - phi after."""
     t = np.arange(n)[None, :]
     s0 = start[:, None]
-    x = np.where(t < s0, 0.0, np.where(t == s0, np.where(s0 == 0, head, 1.0), 1 - phi))
-    return score[rows, start], start, shift, w - shift[:, None] * x
+    return np.where(t < s0, 0.0, np.where(t == s0, np.where(s0 == 0, head, 1.0), 1 - phi))
+
+
+#: Dating tolerance the start is chosen for, in cells either side (the issue's "within +-2 periods").
+DATE_WINDOW = 2
+
+
+def _dated(num: np.ndarray, den: np.ndarray, s2: np.ndarray) -> np.ndarray:
+    """Per row, the start k whose window k +- DATE_WINDOW holds the most posterior probability.
+
+    Posterior of the start under a flat prior on k and on the step size, the innovation
+    variance s2 taken as known: p(k) proportional to exp(N_k^2 / (2 D_k s2)) / sqrt(D_k), N_k =
+    x~_k'w, D_k = x~_k'x~_k (Smith 1975, "A Bayesian approach to inference about a change-point
+    in a sequence of random variables", *Biometrika* 62; from memory). The window mode is the
+    Bayes date for the loss "wrong by more than DATE_WINDOW cells"; it dates no worse than the
+    maximum-likelihood k on that loss, measured in tests/benchmarks/bench_findings.py.
+    """
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ll = np.where(s2[:, None] > 0, num * num / (2 * den * s2[:, None]), 0.0) - 0.5 * np.log(den)
+    post = np.exp(ll - ll.max(axis=1, keepdims=True))
+    padded = np.pad(post, ((0, 0), (DATE_WINDOW, DATE_WINDOW)))
+    width = post.shape[1]
+    window = sum(padded[:, j:j + width] for j in range(2 * DATE_WINDOW + 1))
+    return window.argmax(axis=1)
 
 
 def _size_fit(g: np.ndarray, min_segment: int) -> tuple[np.ndarray, ...]:
@@ -389,9 +419,10 @@ def bias_scan(e, *, min_segment: int = MIN_SEGMENT, phi=None) -> ScanResult:
     w_0 = sqrt(1 - phi^2) e_0, w_t = e_t - phi e_{t-1}; the step becomes x~_k: 0 before k, 1 at
     k (sqrt(1 - phi^2) at k = 0), 1 - phi after. Statistic: T = max_{0 <= k <= n - L}
     |x~_k'w| / (sqrt(x~_k'x~_k) s_w), L = ``min_segment``, s_w the robust spread of the whitened
-    residuals about the fitted step; the maximiser k (the maximum-likelihood change point given
-    phi) is the estimated start (0: biased from the first cell), ``shift`` the GLS estimate of
-    mu, ``lrv`` = s_w^2 / (1 - phi)^2. At phi = 0 this is the plain scan |sum_{t>=k} e_t| /
+    residuals about the fitted step (at the maximising k). The estimated start (0: biased from
+    the first cell) is the k whose +-2-cell window holds the most posterior probability
+    (:func:`_dated`; usually the maximising k, the maximum-likelihood change point given phi),
+    ``shift`` the GLS estimate of mu from that start, ``lrv`` = s_w^2 / (1 - phi)^2. At phi = 0 this is the plain scan |sum_{t>=k} e_t| /
     sqrt((n - k) s^2). Null: mean 0 throughout (an unbiased forecast); p-value from the simulated
     null of the same statistic and estimators (module docstring). Orientation: larger T, stronger
     evidence; the sign of ``shift`` says the direction (positive: forecasts too low).

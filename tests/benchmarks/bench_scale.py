@@ -1,6 +1,6 @@
 """Benchmark: scoring at scale — DuckDB over a lake, DuckDB over a ledger file, Spark over a lake.
 
-    python tests/benchmarks/bench_scale.py [CELLS ...] [--keep DIR] [--skip-spark]
+    python tests/benchmarks/bench_scale.py [CELLS ...] [--keep DIR [--reuse]] [--engines E,E] [--by K,K;K,K]
 
 For each size (default 10,000,000 cells) it builds, with DuckDB SQL only (``generate_series``
 and ``COPY … TO … (PARTITION_BY …)``, no Python loop over rows), a ledger file and a lake of the
@@ -9,7 +9,9 @@ cell, 36 months of history before the first origin. Then, each in a fresh proces
 start-up and peak memory are its own, it times ``scores`` grouped by model × horizon and by
 series × model on: DuckDB over the lake (``ledger.lake.open_lake``), DuckDB over the ledger
 file, and Spark local[2] over the lake (``ledger.scoring.spark``). Prints wall seconds, seconds
-per million cells and peak RSS (for Spark: the Python driver plus the JVM's high-water mark).
+per million cells, CPU seconds (for Spark: the Python driver's plus the JVM's) and peak RSS (for
+Spark: the Python driver plus the JVM's high-water mark). On a shared machine the CPU seconds
+are the steadier figure; the load average is printed beside each line.
 """
 
 from __future__ import annotations
@@ -56,7 +58,7 @@ _COPY = {
 }
 
 _CHILD = r"""
-import json, resource, sys, time
+import json, os, resource, sys, time
 t0 = time.perf_counter()
 engine, source, by = sys.argv[1], sys.argv[2], sys.argv[3].split(",")
 jvm_peak = 0
@@ -74,13 +76,18 @@ else:
 t1 = time.perf_counter()
 frame = book.scores(by=by)
 t2 = time.perf_counter()
+jvm_cpu = 0.0
 if engine == "spark":
     pid = spark.sparkContext._jvm.java.lang.ProcessHandle.current().pid()
     for line in open(f"/proc/{pid}/status"):
         if line.startswith("VmHWM:"):
             jvm_peak = int(line.split()[1]) / 1024
+    fields = open(f"/proc/{pid}/stat").read().rsplit(")", 1)[1].split()
+    jvm_cpu = (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")   # utime + stime
+use = resource.getrusage(resource.RUSAGE_SELF)
 print(json.dumps({"groups": len(frame), "open": t1 - t0, "score": t2 - t1, "total": t2 - t0,
-                  "rss": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024, "jvm": jvm_peak}))
+                  "cpu": use.ru_utime + use.ru_stime + jvm_cpu, "rss": use.ru_maxrss / 1024, "jvm": jvm_peak,
+                  "load": os.getloadavg()[0]}))
 """
 
 
@@ -137,24 +144,32 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("cells", nargs="*", type=int, default=[10_000_000])
     parser.add_argument("--keep", type=Path, default=None, help="build in this folder and keep it")
-    parser.add_argument("--skip-spark", action="store_true")
+    parser.add_argument("--reuse", action="store_true", help="with --keep: use the ledger and lake built there before")
+    parser.add_argument("--engines", default="duckdb-lake,duckdb-file,spark", help="which to time, in this order")
+    parser.add_argument("--by", default="model,horizon;series,model", help="groupings, separated by ';'")
     args = parser.parse_args()
     for cells in args.cells:
         folder = (args.keep or Path(tempfile.mkdtemp(prefix="bench-scale-"))) / f"cells-{cells}"
         folder.mkdir(parents=True, exist_ok=True)
         t = time.perf_counter()
-        path, lake, n = build(folder, cells)
+        if args.reuse and (folder / "lake" / "manifest.json").exists():
+            path, lake = folder / "scale.duckdb", folder / "lake"
+            n = (max(1, cells // (MODELS * ORIGINS * HORIZONS))) * MODELS * ORIGINS * HORIZONS
+            what = "reused"
+        else:
+            path, lake, n = build(folder, cells)
+            what = "built"
         size = sum(f.stat().st_size for f in lake.rglob("*.parquet")) / 1e6
-        print(f"{n:,} cells: built ledger file ({path.stat().st_size / 1e6:,.0f} MB) and lake ({size:,.0f} MB, "
-              f"{len(list(lake.rglob('*.parquet'))):,} files) in {time.perf_counter() - t:.1f} s")
-        engines = [("duckdb-lake", lake), ("duckdb-file", path)] + ([] if args.skip_spark else [("spark", lake)])
-        for by in ("model,horizon", "series,model"):
-            for engine, source in engines:
-                r = _time(engine, source, by)
+        print(f"{n:,} cells: {what} ledger file ({path.stat().st_size / 1e6:,.0f} MB) and lake ({size:,.0f} MB, "
+              f"{len(list(lake.rglob('*.parquet'))):,} files) in {time.perf_counter() - t:.1f} s", flush=True)
+        sources = {"duckdb-lake": lake, "duckdb-file": path, "spark": lake}
+        for by in args.by.split(";"):
+            for engine in [e for e in args.engines.split(",") if e]:
+                r = _time(engine, sources[engine], by)
                 memory = f"{r['rss']:,.0f} MB" + (f" + JVM {r['jvm']:,.0f} MB" if r["jvm"] else "")
                 print(f"  {engine:12s} by {by:14s} {r['groups']:>8,} groups: {r['total']:6.1f} s "
                       f"(open {r['open']:.1f} s, score {r['score']:.1f} s) = {r['total'] / (n / 1e6):.2f} s per M cells; "
-                      f"peak RSS {memory}", flush=True)
+                      f"CPU {r['cpu']:.1f} s; peak RSS {memory}; load average {r['load']:.1f}", flush=True)
         if args.keep is None:
             shutil.rmtree(folder, ignore_errors=True)
 

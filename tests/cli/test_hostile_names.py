@@ -24,15 +24,9 @@ from ledger.cli.common import Format, emit
 from ledger.cli.terminal import printable, render_table
 
 from tests import planted
+from tests.helpers import NAMES
 
 UNSAFE = {"Cc", "Cf", "Zl", "Zp", "Cs", "Co", "Cn"}
-# All of Unicode, with the troublesome corners drawn often: controls, bidi overrides, combining
-# marks, zero-width characters and rich's markup brackets.
-SPECIAL = st.sampled_from(["\x1b", "\x1b[2J", "\n", "\r", "\x00", "\x85", "\u202e", "\u2066", "\u200b", "\ufeff",
-                           "\u0301", "[", "]", "[/]", "[red]", "[link=x]", "\\", ":", ",", '"'])
-# Lone surrogates (category Cs) are left out: no UTF-8 file or Arrow string can carry one, so no name
-# can hold one (pandas refuses them before Backsight sees them).
-NAMES = st.lists(st.one_of(st.characters(exclude_categories=("Cs",)), SPECIAL), min_size=1, max_size=12).map("".join)
 
 
 def _inert(line: str) -> bool:

@@ -1,6 +1,8 @@
 """The report in a real browser: headless Chromium renders pages at 1280 and 390 px wide.
 
-Screenshots go to $BACKSIGHT_SCREENSHOTS (default: pytest's temporary folder). Chromium is
+Screenshots are kept as test artefacts in $BACKSIGHT_SCREENSHOTS (default: build/report-screenshots/
+of the checkout, which git ignores and later runs overwrite; pytest's temporary folders are
+pruned after three runs, so they would not keep them). Chromium is
 required: CI (.ci/run) installs Debian's ``chromium``; without it this test fails, never skips.
 
 Overflow is measured on a copy of each page embedded as ``srcdoc`` in an iframe of the width
@@ -30,6 +32,7 @@ from tests.reports.invented import AS_OF, INCUMBENT
 pytestmark = pytest.mark.browser
 
 WIDTHS = (1280, 390)
+SHOTS_DEFAULT = Path(__file__).resolve().parents[2] / "build" / "report-screenshots"
 CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
                   "--disable-background-networking", "--disable-component-update", "--disable-sync",
                   "--hide-scrollbars", "--mute-audio"]
@@ -57,13 +60,15 @@ def profile(tmp_path_factory) -> Path:
 
 
 @pytest.fixture(scope="module")
-def site(invented_site) -> Path:
-    return invented_site[0].out_dir
+def site(reviewed_ledger, tmp_path_factory) -> Path:
+    # reviewed: the first screen then also lists the changes since the last review
+    return render_report(reviewed_ledger, tmp_path_factory.mktemp("browser") / "site", as_of=AS_OF,
+                         incumbent=INCUMBENT, benchmark="snaive", title="Invented review").out_dir
 
 
 @pytest.fixture(scope="module")
 def shots(tmp_path_factory) -> Path:
-    folder = Path(os.environ.get("BACKSIGHT_SCREENSHOTS") or tmp_path_factory.mktemp("shots"))
+    folder = Path(os.environ.get("BACKSIGHT_SCREENSHOTS") or SHOTS_DEFAULT)
     folder.mkdir(parents=True, exist_ok=True)
     return folder
 
@@ -148,9 +153,11 @@ def test_first_screen_at_1280x800_is_the_review(site, shots, tmp_path, profile):
     review_bottom, matrix_top, _, _ = _probe(site / "index.html", 1280, 800, tmp_path, profile)
     assert 0 < review_bottom <= 800, f"the review ends at {review_bottom} px, below the fold of 800 px"
     assert matrix_top >= review_bottom
-    png = shots / "report-index-first-screen-1280x800.png"
-    _run([f"--screenshot={png}", "--window-size=1280,800", (site / "index.html").as_uri()], profile)
-    assert png.is_file() and png.stat().st_size > 10_000
+    for width in WIDTHS:
+        png = shots / f"report-index-first-screen-{width}x800.png"
+        png.unlink(missing_ok=True)
+        _run([f"--screenshot={png}", f"--window-size={width},800", (site / "index.html").as_uri()], profile)
+        assert png.is_file() and png.stat().st_size > 10_000
 
 
 @pytest.mark.parametrize("kind", ["index", "model", "series", "findings"])

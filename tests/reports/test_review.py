@@ -21,14 +21,16 @@ from reports import render_report
 from reports.matrix import horizon_columns, pooled_mase
 from reports.tables import attach_csv, defuse
 from reports.trends import rolling
+from ledger.wording import num
 from tests.reports.invented import AS_OF, INCUMBENT
+from tests.reports.stored_reviews import FINDINGS, MASE
 
 OVERRIDE = {"challenger-ets": "incumbent-hw"}   # declared for the test: ets "adjusts" the incumbent
 
 
 @pytest.fixture(scope="module")
-def ledger_file(invented_ledger):
-    return invented_ledger
+def ledger_file(reviewed_ledger):
+    return reviewed_ledger
 
 
 @pytest.fixture(scope="module")
@@ -55,7 +57,8 @@ def test_first_screen_holds_the_advice_and_the_top_findings(site, pages):
     first = _text(index[index.index('<section id="review"'):index.index('<section id="matrix"')])
     assert site.advice in first and site.advice.startswith("Keep incumbent-hw: challenger-ets has the lowest MASE")
     assert "not statistically significant" in site.advice    # the sentence joining advice and ranking
-    items = re.findall(r"<li>.*?</li>", index[index.index('id="top-findings"'):index.index('<section id="matrix"')], re.S)
+    top = index.index('id="top-findings"')
+    items = re.findall(r"<li>.*?</li>", index[top:index.index("</ol>", top)], re.S)
     assert len(items) == 5 and all("Action:" in _text(i) for i in items)
     kinds = [re.search(r"<strong>(\w+)</strong>", i).group(1) for i in items]
     assert len(set(kinds)) >= 2                                # ranked across kinds
@@ -70,7 +73,8 @@ def test_no_leaderboard_and_one_matrix(pages):
     index = pages["index.html"]
     assert "Leaderboard" not in index and "leaderboard" not in index
     assert index.count('<table class="matrix">') == 1
-    assert index.count("<table") == 4          # matrix, value added, findings, advice; none per horizon
+    # matrix, the two tables of changes since the last review, value added, findings, advice; none per horizon
+    assert index.count("<table") == 6
 
 
 def _advice_case(rows: list[dict], models=("a", "b", "c"), incumbent="a") -> tuple[str, str]:
@@ -181,6 +185,32 @@ def test_bad_override_is_a_one_line_error(runner, ledger_file, tmp_path):
                               "--adjusts", "nope=incumbent-hw"])
     assert bad.exit_code == 1 and "'nope' has no scored run" in bad.stderr
     assert not (tmp_path / "y" / "index.html").exists()
+
+
+def test_first_screen_lists_the_changes_since_the_last_review(pages):
+    """Issue 19 item 2: new, resolved and persisting findings with their severity and figure then
+    and now, and the models whose recent MASE moved by more than 0.1 (tests/reports/stored_reviews.py),
+    above the matrix; the full tables follow it."""
+    index = pages["index.html"]
+    first = index[index.index('<section id="review"'):index.index('<section id="matrix"')]
+    assert _text(first).count("5 new, 1 resolved, 2 persisting findings; 2 model(s) whose recent MASE moved by more than 0.1") == 1
+    items = [re.sub(r"\s+([;)])", r"\1", re.sub(r"\(\s+", "(", _text(i)))   # no space where a tag was
+             for i in re.findall(r"<li>.*?</li>", first[first.index('id="changes-list"'):], re.S)]
+
+    def line(key, status):
+        (a, b), (kind, model, series, level, _) = FINDINGS[key], key.split("|")
+        where = " · ".join(w for w in (kind, model, series, f"{level}%" if level else "") if w)
+        return (f"{status} {where}: {a[0] if a else '–'} → {b[0] if b else '–'}, "
+                f"figure {num(a[1]) if a else '–'} → {num(b[1]) if b else '–'}")
+    new = [k for k, (a, b) in FINDINGS.items() if a is None]
+    want_findings = {line("drift|incumbent-hw|North/Hoses||", "resolved"),
+                     line("calibration|incumbent-hw||80|all", "persisting")}
+    assert len(items) == 6 and want_findings <= set(items[:4])        # one of each status, in turn
+    assert sum(i in {line(k, "new") for k in new} for i in items[:4]) == 2
+    moved = [f"MASE {m}: {num(a)} → {num(b)} ({num(b - a)}; 300 → 330 cells)" for m, (a, b) in MASE.items() if abs(b - a) > 0.1]
+    assert items[4:] == moved and len(moved) == 2
+    rest = index[index.index('<section id="matrix"'):]
+    assert rest.index('<section id="changes"') < rest.index('<section id="over-time"')
 
 
 # ---------------------------------------------------------------- tables to take away

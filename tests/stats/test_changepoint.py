@@ -137,7 +137,9 @@ def test_gls_scan_at_phi_zero_is_the_plain_scan():
     r = bias_scan(e, phi=0.0)
     for i in range(5):
         scores = [abs(e[i, k:].sum()) / math.sqrt(20 - k) for k in range(18)]
-        assert r.start[i] == int(np.argmax(scores))
+        k = int(np.argmax(scores))
+        resid = e[i] - np.where(np.arange(20) >= k, e[i, k:].mean(), 0.0)
+        assert r.statistic[i] == pytest.approx(max(scores) / robust_spread(resid), rel=1e-9)
         assert r.shift[i] == pytest.approx(e[i, r.start[i]:].mean())
 
 
@@ -172,6 +174,21 @@ def test_gls_scan_keeps_its_level_and_gains_power_under_ar1_errors():
     step = e[:600] + 2.0 * (np.arange(36) >= 28)
     r = bias_scan(step, phi=residual_phi("scan", step).mean())
     assert 0.65 <= float((r.p_value <= 0.025).mean()) <= 0.94
+
+
+def test_scan_dates_by_the_posterior_window_mode():
+    # The date is the k maximising sum_{|j-k|<=2} p(j), p(j) proportional to
+    # exp(N_j^2 / (2 D_j s^2)) / sqrt(D_j) (Smith 1975), recomputed here by a loop at phi = 0.
+    rng = np.random.default_rng(15)
+    e = rng.standard_normal((20, 24)) + 1.5 * (np.arange(24) >= 11)
+    r = bias_scan(e, phi=0.0)
+    for i in range(20):
+        k0 = int(np.argmax([abs(e[i, k:].sum()) / math.sqrt(24 - k) for k in range(22)]))
+        s2 = robust_spread(e[i] - np.where(np.arange(24) >= k0, e[i, k0:].mean(), 0.0)) ** 2
+        ll = np.array([e[i, k:].sum() ** 2 / (2 * (24 - k) * s2) - 0.5 * math.log(24 - k) for k in range(22)])
+        post = np.exp(ll - ll.max())
+        window = [post[max(0, k - 2):k + 3].sum() for k in range(22)]
+        assert r.start[i] == int(np.argmax(window))
 
 
 def _cusum_loop(z, k, h, upward, from_cell):

@@ -1,4 +1,4 @@
-"""Helpers shared by the test modules: table hashes, file writing, paths of the test data."""
+"""Helpers shared by the test modules: table hashes, file writing, invented ledgers, paths of the test data."""
 
 from __future__ import annotations
 
@@ -34,3 +34,15 @@ SPECIAL_CHARACTERS = st.sampled_from([
     "</h1>", "<b>", "javascript:", "$"])
 NAMES = st.lists(st.one_of(st.characters(exclude_categories=("Cs",)), SPECIAL_CHARACTERS),
                  min_size=1, max_size=12).map("".join)
+
+
+def record_invented(path, forecasts: list[dict], actuals: list[dict], attributes=None) -> Path:
+    """A ledger at ``path`` holding the invented rows (one back-fill, the actuals, optional attributes)."""
+    import pandas as pd
+
+    with Ledger.open(path) as book:
+        book.snapshot(pd.DataFrame(forecasts), name="invented-forecasts.csv")
+        book.record_actuals(pd.DataFrame(actuals), name="invented-actuals.csv")
+        if attributes is not None:
+            book.record_attributes(attributes, name="invented-attributes.csv")
+    return path

@@ -33,7 +33,6 @@ def _inert(line: str) -> bool:
     return not any(unicodedata.category(ch) in UNSAFE for ch in line)
 
 
-@settings(max_examples=300, deadline=None)
 @given(st.lists(NAMES, min_size=1, max_size=5))
 def test_any_name_is_inert_in_a_table(names):
     frame = pd.DataFrame({"model": names, "mae": [1.5] * len(names)})
@@ -46,7 +45,7 @@ def test_any_name_is_inert_in_a_table(names):
         assert all(_inert(line) for line in render_table(frame, width=width))
 
 
-@settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(names=st.lists(NAMES, min_size=1, max_size=5))
 def test_any_name_round_trips_through_csv_and_json(capsys, names):
     frame = pd.DataFrame({"series": names, "n": range(len(names))})

@@ -77,7 +77,7 @@ def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: 
 
 # The Spark schema of sequence_tests' rows (drift.SEQUENCE_COLUMNS).
 _SEQUENCE_SCHEMA = ("model string, series string, horizon long, n long, judged boolean, p double, bias boolean, "
-                    "start long, shift double, lrv double")
+                    "start long, shift double, lrv double, phi double")
 
 
 def _tested_on_executors(store: Store, sel: Selection, subjects: Sequence[str], options: FlagOptions):

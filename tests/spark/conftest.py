@@ -10,9 +10,9 @@ from ..lake import synthetic
 
 
 # For a test run of many small queries, on top of the local settings of ledger.scoring.spark: compiling
-# each query's generated code, re-planning it adaptively and the JVM's optimising compiler cost more
-# CPU than the few thousand rows they would speed up (measured: tests/spark/README-like note in
-# DEVELOPERS.md, "The lake and Spark"); one garbage-collector thread on a two-core machine.
+# each query's generated code, re-planning it adaptively and the JVM's optimising compiler are
+# expected to cost more CPU than they save on a few thousand rows; one garbage-collector thread on
+# a two-core machine. Expected, not yet measured (DEVELOPERS.md, "The lake and Spark").
 TEST_SETTINGS = {
     "spark.sql.codegen.wholeStage": "false",
     "spark.sql.adaptive.enabled": "false",

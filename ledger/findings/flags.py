@@ -88,7 +88,7 @@ def _tested_on_executors(store: Store, sel: Selection, subjects: Sequence[str], 
     if apply_in_groups is None:
         return None
     sql, params = cells_sql(sel)
-    query = (f"SELECT model, series, horizon, period_index, e, q FROM ({sql}) c "
+    query = (f"SELECT model, series, horizon, period_index, frequency, e, q FROM ({sql}) c "
              "WHERE list_contains($drift_models, model)")
     return apply_in_groups(query, {**params, "drift_models": list(subjects)}, keys=("model", "horizon"),
                            fn=functools.partial(sequence_tests, options=options), schema=_SEQUENCE_SCHEMA)

@@ -21,6 +21,7 @@ from .integrity import Problem, verify
 from .periods import period_label
 from .intake.record import ActualsResult, SnapshotResult, write_actuals, write_runs
 from .scoring.events import EventsResult, events_in_force, write_events
+from .overrides import OverridesResult, overrides_in_force, record_overrides
 from .methods.recorded import run_backtest
 from .scoring import reads
 from .scoring.cells import Selection, interval_cells, score_cells
@@ -171,6 +172,14 @@ class Ledger:
     def events(self, *, as_of=None) -> pd.DataFrame:
         """The events in force at the as-of, one row per event."""
         return events_in_force(self.store, parse_as_of(as_of))
+
+    def record_overrides(self, pairs, *, source: str | None = None) -> OverridesResult:
+        """Record which model adjusts which ({override: base}; base None withdraws); see :mod:`ledger.overrides`."""
+        return record_overrides(self.store, pairs, source=source)
+
+    def overrides(self, *, as_of=None) -> dict[str, str]:
+        """{override: base} recorded in the ledger and in force at the as-of."""
+        return overrides_in_force(self.store, parse_as_of(as_of))
 
     def attributes(self, *, as_of=None) -> pd.DataFrame:
         """One row per series with the attributes in force at the as-of."""
@@ -349,7 +358,7 @@ class Ledger:
 
         return changes(self.store, since_review=since_review,
                        mase_change=DEFAULT_MASE_CHANGE if mase_change is None else mase_change,
-                       as_of=parse_as_of(as_of))
+                       as_of=None if as_of is None else parse_as_of(as_of))
 
     def stability(self, *, by: Sequence[str] = ("series", "model"), as_of=None, models: Sequence[str] = (),
                   series: Sequence[str] = (), since: str | None = None, until: str | None = None,

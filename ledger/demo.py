@@ -28,6 +28,7 @@ from .errors import LedgerError, NotALedger, SchemaTooNew, SchemaTooOld
 __all__ = [
     "DEMO_INCUMBENT",
     "DEMO_KEY",
+    "DEMO_OVERRIDES",
     "ReplaySummary",
     "Step",
     "StepKind",
@@ -40,6 +41,9 @@ __all__ = [
 DEMO_KEY = "demo"
 #: The scenario's incumbent model, stored as the ledger's incumbent after the replay.
 DEMO_INCUMBENT = "incumbent-hw"
+#: The scenario's override relation ({override: base}), recorded with the override's first run,
+#: as a planner would with ``backsight adjusts planner-override=incumbent-hw``.
+DEMO_OVERRIDES = {"planner-override": "incumbent-hw"}
 _SCENARIO = "Fernhollow Garden Supply (invented)"
 
 StepKind = Literal["actuals", "snapshot"]
@@ -186,7 +190,7 @@ def replay(history_dir: Path, ledger_path: Path, *, progress: Progress | None = 
     if not steps:
         raise LedgerError(f"{history_dir / 'manifest.csv'} lists no steps; regenerate the demo history")
     _prepare(ledger_path)
-    tally = _Tally()
+    tally, declared = _Tally(), set()
     with Ledger.open(ledger_path) as book:
         book.store.set_setting(DEMO_KEY, _SCENARIO)
         for i, step in enumerate(steps):
@@ -194,6 +198,9 @@ def replay(history_dir: Path, ledger_path: Path, *, progress: Progress | None = 
                 progress(i, len(steps), step)
             with _clock(book, step.arrived) if backdate else contextlib.nullcontext():
                 tally.add(_apply(book, history_dir, step))
+                if step.model in DEMO_OVERRIDES and step.model not in declared:
+                    book.record_overrides({step.model: DEMO_OVERRIDES[step.model]}, source=step.file)
+                    declared.add(step.model)
         book.set_incumbent(DEMO_INCUMBENT)
     return tally.summary(ledger_path, steps)
 

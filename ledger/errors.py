@@ -6,6 +6,7 @@ exits with code 1. Library code never prints and never exits. Errors of the oper
 a sentence by :func:`describe_os_error`, the one place that words them.
 """
 
+import contextlib
 import errno
 import os
 import re
@@ -26,6 +27,7 @@ __all__ = [
     "ReviewRefused",
     "PeriodOutOfRange",
     "describe_os_error",
+    "naming_file",
 ]
 
 
@@ -137,6 +139,21 @@ def describe_os_error(exc: BaseException) -> str | None:
     if fix is None:
         return f"{where}: {os.strerror(code)}"
     return fix.format(path=where)
+
+
+@contextlib.contextmanager
+def naming_file(path):
+    """Give ``path`` to an OS error raised inside that names no file.
+
+    A failed write or close on an open file (no space, quota) carries no file name, so
+    :func:`describe_os_error` could only say "a file it needed"; wrapping the write names it.
+    """
+    try:
+        yield
+    except OSError as exc:
+        if exc.errno is None or exc.filename is not None:
+            raise
+        raise type(exc)(exc.errno, exc.strerror, str(path)) from exc
 
 
 class ReviewRefused(LedgerError):

@@ -48,9 +48,11 @@ def _floats(values) -> bytes:
     return np.ascontiguousarray(array, dtype="<f8").tobytes()
 
 
-def _keys(keys: np.ndarray) -> tuple[bytes, bytes]:
-    """(int64 lengths in bytes, concatenated UTF-8 bytes) of the keys: together injective."""
-    array = pa.array([str(k) for k in keys], pa.large_string())
+def _keys(keys) -> tuple[bytes, bytes]:
+    """(int64 lengths in bytes, concatenated UTF-8 bytes) of the keys (an array of str, or an
+    Arrow string array as the importer streams them): together injective."""
+    array = keys.cast(pa.large_string()) if isinstance(keys, pa.Array) else \
+        pa.array([str(k) for k in keys], pa.large_string())
     offsets = np.frombuffer(array.buffers()[1], dtype="<i8")[: len(array) + 1]
     data = array.buffers()[2]
     body = b"" if data is None else data.to_pybytes()[offsets[0]:offsets[-1]]
@@ -86,6 +88,7 @@ def run_content_hash(model: str, frequency: str, origin_index: int, part,
     order, on the order of ``levels`` or ``taus``, on the sign of a zero, or on levels absent
     from the run.
     """
+    arrow_keys = part["series"] if isinstance(part["series"], pa.Array) else None
     series = _column(part, "series", object)
     period_index = _column(part, "period_index", "int64")
     order = _canonical_order(series, period_index)
@@ -99,7 +102,7 @@ def run_content_hash(model: str, frequency: str, origin_index: int, part,
     digest = hashlib.sha256()
     for text in (_RUN_TAG.decode(), model, frequency, str(int(origin_index)), str(len(series))):
         _field(digest, text.encode())
-    for data in _keys(series):
+    for data in _keys(arrow_keys if arrow_keys is not None and order is None else series):
         _field(digest, data)
     _field(digest, np.ascontiguousarray(period_index, dtype="<i8").tobytes())
     _field(digest, _floats(get("point")))

@@ -5,7 +5,8 @@ its version; every run's content hash and cell count; every actual revision's ch
 every write of actuals' row count and hash (:mod:`ledger.hashing`); periods against period
 indexes, horizons against origins, series' frequencies against their runs' and the stored
 dates; superseding links (dangling, self, to another model or origin, to an older run);
-orphan and duplicate rows; revisions numbered 1..n. DuckDB's own read and checksum errors
+orphan and duplicate rows; revisions numbered 1..n; overrides naming known models, never
+themselves, one version per override and time. DuckDB's own read and checksum errors
 (a truncated file, flipped bytes) become problems too: ``verify`` lists, it never raises.
 """
 
@@ -122,6 +123,12 @@ CHECKS = {
             FROM actuals GROUP BY recorded_at) a USING (recorded_at)
         WHERE a.n IS DISTINCT FROM w.n_rows OR a.h IS DISTINCT FROM w.content_hash""",
     "crossed bounds": "SELECT count(*) FROM bounds WHERE lower > upper",
+    "overrides naming a model with no run": """
+        SELECT count(*) FROM overrides WHERE override NOT IN (SELECT model FROM runs)
+        OR (base IS NOT NULL AND base NOT IN (SELECT model FROM runs))""",
+    "overrides that adjust themselves": "SELECT count(*) FROM overrides WHERE override = base",
+    "override versions recorded at the same time": """
+        SELECT count(*) FROM (SELECT override, recorded_at FROM overrides GROUP BY ALL HAVING count(*) > 1)""",
 }
 
 

@@ -39,7 +39,7 @@ __all__ = ["LAYOUT", "LakeExport", "LakeMismatch", "export_lake", "is_lake", "la
 
 LAYOUT = "partitioned"
 WHOLE_TABLES = ("meta", "series", "runs", "attributes", "actual_writes", "events", "reviews", "review_findings",
-                "review_models")
+                "review_models", "overrides")
 RUN_TABLES = ("forecasts", "bounds", "quantiles")
 _ORDER = {"forecasts": "run_id, series, period_index", "bounds": "run_id, series, period_index, level",
           "quantiles": "run_id, series, period_index, tau", "actuals": "series, period_index, revision"}

@@ -14,7 +14,7 @@ import pandas as pd
 
 from .hashing import chain_hash_sql, run_content_hash, run_rows, write_hash_sql
 
-__all__ = ["ACTUALS_DDL", "ATTRIBUTES_DDL", "ACTUAL_WRITES_DDL", "CYCLE_DDL", "MIGRATIONS", "UNVERIFIED", "v1_run_hash"]
+__all__ = ["ACTUALS_DDL", "ATTRIBUTES_DDL", "ACTUAL_WRITES_DDL", "CYCLE_DDL", "OVERRIDES_DDL", "MIGRATIONS", "UNVERIFIED", "v1_run_hash"]
 
 ATTRIBUTES_DDL = """
 -- A row per version of one attribute of one series. A changed value appends a row; the value
@@ -109,6 +109,18 @@ CREATE TABLE review_models (
 );
 """
 
+OVERRIDES_DDL = """
+-- A row per version of "model override adjusts model base" (a judgmental override of another
+-- model's forecasts; ledger/overrides.py). A change appends a row; base NULL means withdrawn.
+-- The relation in force at an as-of is the newest row per override recorded at or before it.
+CREATE TABLE overrides (
+    override    VARCHAR NOT NULL,
+    base        VARCHAR,
+    recorded_at TIMESTAMP NOT NULL,
+    source      VARCHAR
+);
+"""
+
 #: Prefix of a run hash that the version-3 migration could not confirm (its rows no longer
 #: matched the version-1 hash): kept, so that verify still reports the damage.
 UNVERIFIED = "unverified:"
@@ -181,4 +193,9 @@ def _to_cycle(con) -> None:
     con.execute(CYCLE_DDL)
 
 
-MIGRATIONS: dict[int, Callable] = {1: _to_attributes, 2: _to_injective_hashes, 3: _to_cycle}
+def _to_overrides(con) -> None:
+    """Version 5: the override relation recorded in the ledger (issue 14)."""
+    con.execute(OVERRIDES_DDL)
+
+
+MIGRATIONS: dict[int, Callable] = {1: _to_attributes, 2: _to_injective_hashes, 3: _to_cycle, 4: _to_overrides}

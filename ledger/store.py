@@ -21,7 +21,7 @@ import pandas as pd
 
 from .version import __version__
 from .errors import LedgerBusy, LedgerError, NotALedger, SchemaTooNew, SchemaTooOld, describe_os_error
-from .migrations import ACTUAL_WRITES_DDL, ACTUALS_DDL, ATTRIBUTES_DDL, CYCLE_DDL, MIGRATIONS
+from .migrations import ACTUAL_WRITES_DDL, ACTUALS_DDL, ATTRIBUTES_DDL, CYCLE_DDL, MIGRATIONS, OVERRIDES_DDL
 
 __all__ = [
     "SCHEMA_VERSION",
@@ -43,7 +43,8 @@ __all__ = [
 #       chain_hash per revision and actual_writes a row per write (see hashing.py).
 #   4 — events (versioned, optionally excluding cells from scoring) and stored reviews:
 #       reviews, review_findings, review_models (issue 19).
-SCHEMA_VERSION = 4
+#   5 — overrides: which model adjusts which, versioned (ledger/overrides.py; issue 14).
+SCHEMA_VERSION = 5
 
 DDL = """
 -- Facts about the file itself: schema_version, created_at, writer_version, and settings
@@ -108,10 +109,10 @@ CREATE TABLE quantiles (
     tau          DOUBLE NOT NULL,
     value        DOUBLE NOT NULL
 );
-""" + ACTUALS_DDL + ATTRIBUTES_DDL + ACTUAL_WRITES_DDL + CYCLE_DDL
+""" + ACTUALS_DDL + ATTRIBUTES_DDL + ACTUAL_WRITES_DDL + CYCLE_DDL + OVERRIDES_DDL
 
 TABLES = ("meta", "series", "runs", "forecasts", "bounds", "quantiles", "actuals", "attributes", "actual_writes",
-          "events", "reviews", "review_findings", "review_models")
+          "events", "reviews", "review_findings", "review_models", "overrides")
 
 
 def utc_now() -> dt.datetime:
@@ -315,7 +316,8 @@ class Store:
         """Now, or just after the newest recorded time, so that as-of order is strict."""
         row = self.con.execute(
             "SELECT max(t) FROM (SELECT max(recorded_at) t FROM runs UNION ALL "
-            "SELECT max(recorded_at) FROM actuals UNION ALL SELECT max(recorded_at) FROM events)"
+            "SELECT max(recorded_at) FROM actuals UNION ALL SELECT max(recorded_at) FROM events "
+            "UNION ALL SELECT max(recorded_at) FROM overrides)"
         ).fetchall()[0]
         now = self.clock()
         if row[0] is not None and row[0] >= now:
@@ -343,6 +345,12 @@ class Store:
         if len(events):  # events change the scores; a ledger without any keeps its earlier hash
             digest.update(b"\x00events\x00")
             _hash_frame(digest, events.astype(str))
+        overrides = self.con.execute(
+            "SELECT override, base, recorded_at FROM overrides WHERE recorded_at <= $as_of ORDER BY ALL",
+            {"as_of": as_of}).df()
+        if len(overrides):  # the relation changes findings; a ledger without one keeps its earlier hash
+            digest.update(b"\x00overrides\x00")
+            _hash_frame(digest, overrides.astype(str))
         return digest.hexdigest()
 
     def table_hash(self, table: str) -> str:

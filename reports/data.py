@@ -21,6 +21,7 @@ from ledger.errors import UnknownName
 from ledger.periods import SEASON_LENGTHS
 from ledger.findings import standings
 from ledger.findings.flags import flags as _flag_cells
+from ledger.overrides import overrides_for
 from ledger.scoring.cells import Selection, score_cells
 
 from .value_added import check_overrides, default_benchmark, fva_steps
@@ -105,7 +106,7 @@ def load(book: Ledger, *, as_of: dt.datetime, since: str | None, until: str | No
     models = _models(book, sel) if models is None else models
     incumbent = incumbent or book.incumbent
     check_roles(models, incumbent, benchmark, as_of)
-    overrides = dict(overrides or {})
+    overrides = overrides_for(book.store, as_of, overrides)     # None: as recorded in the ledger
     check_overrides(overrides, models)
     q = dict(as_of=as_of, since=since, until=until, include_excluded=include_excluded)
     runs = book.live_runs(as_of=as_of)
@@ -193,7 +194,9 @@ def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, b
     from one read of the scored cells shared by all."""
     store, sel = book.store, book.selection(as_of=as_of, include_excluded=include_excluded)
     cells = score_cells(store, sel)
-    found = _flag_cells(store, sel, cells=cells, **({"benchmark": benchmark} if benchmark else {}))
+    # the value findings judge the same override steps as the value-added section
+    adjusts = ",".join(f"{o}={b}" for o, b in overrides.items())
+    found = _flag_cells(store, sel, cells=cells, adjusts=adjusts, **({"benchmark": benchmark} if benchmark else {}))
     comparisons = {(a, b): standings.compare(store, sel, a, b, cells=cells)
                    for a, b in itertools.combinations(models, 2)}
     ranks = standings.standings(store, dataclasses.replace(sel, horizons=(horizon,)), cells=cells)

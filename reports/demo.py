@@ -1,5 +1,5 @@
 """``backsight demo``: replay the invented scenario into a fresh ledger, render its report and
-summarise what a reviewer will find (findings by kind, the best model by horizon)."""
+keep what the terminal summary shows (the report's advice sentence, the findings in flags' order)."""
 
 from __future__ import annotations
 
@@ -19,11 +19,9 @@ __all__ = ["DemoResult", "build_demo"]
 @dataclasses.dataclass(frozen=True)
 class DemoResult:
     replay: ReplaySummary
-    report: ReportResult
-    findings: dict[str, int]        # kind -> count
-    best_by_horizon: pd.DataFrame   # horizon, model, mase, n (lowest MASE on common cells' scores)
-    advice: tuple[str, ...] = ()    # Ledger.advise(DEMO_INCUMBENT) sentences, one per challenger
-    top_findings: pd.DataFrame | None = None   # the first three act/watch findings, in flags' order
+    report: ReportResult            # report.advice: the advice sentence of the report's first screen
+    flags: pd.DataFrame             # every finding at the end of the replay, in flags' order
+    challenger: str                 # the model with the lowest MASE at horizon 1 other than the incumbent
     incumbent: str = DEMO_INCUMBENT
 
 
@@ -39,12 +37,7 @@ def build_demo(out_dir, *, ledger_path=None, progress=None) -> DemoResult:
                            progress=None if progress is None else lambda i, n, what: progress(i, n, what))
     with Ledger.open(path, create=False, read_only=True) as book:
         flags = book.flags()
-        table = book.scores(by=["model", "horizon"])
-        advice = tuple(book.advise(DEMO_INCUMBENT)["advice"])
-    counts = flags["kind"].value_counts().to_dict() if len(flags) else {}
-    best = (table.dropna(subset=["mase"]).sort_values(["horizon", "mase"]).groupby("horizon").head(1)
-            [["horizon", "model", "mase", "n"]].reset_index(drop=True))
-    ranked = flags[flags["severity"] != "note"]
-    if "impact" in ranked.columns:
-        ranked = ranked.sort_values("impact", ascending=False, kind="stable")
-    return DemoResult(summary, report, counts, best, advice, ranked.head(3).reset_index(drop=True))
+        table = book.scores(by=["model"], horizons=[1])
+    ranked = table[table["model"] != DEMO_INCUMBENT].dropna(subset=["mase"]).sort_values(["mase", "model"])
+    challenger = str(ranked["model"].iloc[0]) if len(ranked) else DEMO_INCUMBENT
+    return DemoResult(summary, report, flags, challenger)

@@ -15,7 +15,7 @@ import re
 from collections.abc import Iterable
 from pathlib import Path
 
-from ledger.errors import LedgerError
+from ledger.errors import LedgerError, naming_file
 
 __all__ = ["NameClash", "UnsafePath", "FolderNotOurs", "MARKER", "claim_folder", "page_name", "page_names",
            "safe_write"]
@@ -55,8 +55,9 @@ def claim_folder(out: Path) -> None:
             raise FolderNotOurs(f"{out} holds {found[0]!r}{' and more' if len(found) > 1 else ''}, which no report "
                                 "wrote; give a new or empty folder (a report writes only where it wrote before)")
     out.mkdir(parents=True, exist_ok=True)
-    (out / MARKER).write_text("This folder was written by backsight report; it may overwrite the files here.\n",
-                              encoding="utf-8")
+    with naming_file(out / MARKER):
+        (out / MARKER).write_text("This folder was written by backsight report; it may overwrite the files here.\n",
+                                  encoding="utf-8")
 
 
 def page_name(prefix: str, key: str) -> str:
@@ -87,5 +88,6 @@ def safe_write(out_dir: Path, name: str, text: str) -> Path:
     if target.parent != root or name.startswith(".") or "/" in name or "\\" in name:
         raise UnsafePath(f"report page {name!r} would be written to {target}, outside {root}; "
                          "choose another output folder")
-    target.write_text(text, encoding="utf-8", newline="\n")
+    with naming_file(target):        # a full disk fails in write or close, which name no file
+        target.write_text(text, encoding="utf-8", newline="\n")
     return target

@@ -24,6 +24,7 @@ from markupsafe import Markup
 
 from ledger import Ledger, __version__
 from ledger.findings.base import FlagOptions
+from ledger.overrides import overrides_for
 from ledger.store import parse_as_of, utc_now
 from ledger.wording import format_level
 
@@ -53,6 +54,7 @@ from .views import (
 __all__ = [
     "FINDINGS_SLOT",
     "FIXED_PAGES",
+    "SERIES_PAGES",
     "Progress",
     "ReportResult",
     "build_context",
@@ -65,6 +67,10 @@ __all__ = [
 Progress = Callable[[int, int, str], None]
 FIXED_PAGES = ("index.html", "findings.html", "series.html", "methods.html")
 _CHUNK = 25
+#: Series pages drawn by default (``series_pages``): every series of a ledger up to this many;
+#: beyond it, this many with the largest total scaled error plus every series an act or watch finding names.
+#: The series index lists every series with its figures either way.
+SERIES_PAGES = 250
 _POOL_FROM = 200   # series; below this, the start-up of worker processes costs more than it saves
 
 
@@ -89,7 +95,7 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
                   title: str | None = None, incumbent: str | None = None, benchmark: str | None = None,
                   horizon: int | None = None, progress: Progress | None = None, workers: int | None = None,
                   group_by: str | None = None, overrides: Mapping[str, str] | None = None,
-                  include_excluded: bool = False) -> ReportResult:
+                  include_excluded: bool = False, series_pages: int | None = SERIES_PAGES) -> ReportResult:
     """Write the report site for the ledger at ``ledger_path`` into ``out_dir``; return what was written.
 
     ``as_of`` (default now) fixes what the ledger held; the same ledger and as-of give the same
@@ -106,9 +112,13 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
     findings per value of the attribute; an attribute not recorded at the as-of raises
     :class:`ledger.errors.UnknownName`. ``overrides`` ({override: base}, e.g.
     {"planner-override": "incumbent-hw"}) declares models that adjust another; the value each
-    such step adds is shown beside each model's value over the benchmark.
+    such step adds is shown beside each model's value over the benchmark. None (the default)
+    takes the relation recorded in the ledger (``backsight adjusts``); {} shows none.
     ``include_excluded`` scores the cells of excluding events too, as ``scores
     --include-excluded`` does; by default they are left out and counted on the first screen.
+    ``series_pages`` (default :data:`SERIES_PAGES`; None = every series) caps the series pages:
+    the series with the largest total scaled error (MASE × cells over all models) and, whatever
+    the cap, every series an act or watch finding names; the series index says how many were drawn.
     """
     stamp = parse_as_of(as_of)
     out = Path(out_dir)
@@ -125,7 +135,7 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
             book.selection(as_of=stamp, horizons=[horizon])   # a horizon no run has: one plain error
         models, chosen = report_models(book, stamp, since, until, include_excluded), incumbent or book.incumbent
         check_roles(models, chosen, benchmark, stamp)
-        overrides = dict(overrides or {})
+        overrides = overrides_for(book.store, stamp, overrides)     # None: as recorded in the ledger
         check_overrides(overrides, models)
         found = pool.submit(findings_job, path, stamp, models, horizon, chosen, benchmark, overrides, include_excluded)
         core = load(book, as_of=stamp, since=since, until=until, horizon=horizon, incumbent=incumbent,
@@ -136,14 +146,23 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
         quantiles = load_quantile_data(book, as_of=stamp, since=since, until=until, include_excluded=include_excluded)
         ctx = build_context(core, title or "Forecast accuracy report")
         cycle = load_cycle(book, stamp, core.models, core.series, ctx.styles, _fan_preference(core))
-        inputs = series_inputs(core, ctx, cycle=cycle.series)
+        inputs, rest = _first_pages(core, series_inputs(core, ctx, cycle=cycle.series), series_pages)
         nav = {"groups_page": GROUPS_PAGE if groups is not None else None}
-        pages = [pool.submit(series_pages_chunk, inputs[i:i + _CHUNK], ctx, nav) for i in range(0, len(inputs), _CHUNK)]
+        pages = _submit_pages(pool, inputs, ctx, nav)
         extra = 1 if groups is not None else 0
         tick = _ticker(progress, 4 + extra + len(core.models) + len(inputs))
         tick("computing findings", 0)
         data = dataclasses.replace(core, findings=found.result())
-        overview, rows = _write_fixed(data, ctx, out, tick, nav, cycle, quantiles)
+        flags = data.findings.flags
+        named = set(flags.loc[flags["severity"] != "note", "series"]) if len(flags) else set()
+        more = [i for i in rest if i.key in named]       # every series an act or watch finding names gets its page
+        pages += _submit_pages(pool, more, ctx, nav)
+        tick.total += len(more)
+        inputs = inputs + more
+        note = _pages_note(len(inputs), len(core.series), series_pages) if rest else None
+        drawn = {i.key for i in inputs}
+        ctx = dataclasses.replace(ctx, series_href={k: v for k, v in ctx.series_href.items() if k in drawn})
+        overview, rows = _write_fixed(data, ctx, out, tick, nav, cycle, quantiles, series_note=note)
         if groups is not None:
             _write_groups(count_findings(book, groups, data.findings.flags, stamp), ctx, out, tick)
         _write_series(pages, data, ctx, out, tick)
@@ -154,8 +173,30 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
                         advice=overview.review.advice)
 
 
+def _first_pages(data: LedgerData, inputs: list[SeriesInput], limit: int | None) -> tuple[list, list]:
+    """(series drawn at once, the others): all when ``limit`` is None or not reached; else the
+    ``limit`` series with the largest total scaled error, Σ MASE × scaled cells over the models."""
+    if limit is None or len(inputs) <= limit:
+        return inputs, []
+    per = data.by_series_model
+    weight = (per["mase"].fillna(0) * (per["n"] - per["n_unscaled"])).groupby(per["series"]).sum() if len(per) else {}
+    ranked = sorted(range(len(inputs)), key=lambda i: (-float(weight.get(inputs[i].key, 0.0)), i))
+    chosen = set(ranked[:max(0, int(limit))])
+    return [x for i, x in enumerate(inputs) if i in chosen], [x for i, x in enumerate(inputs) if i not in chosen]
+
+
+def _submit_pages(pool, inputs: list[SeriesInput], ctx: Context, nav: dict) -> list[cf.Future]:
+    return [pool.submit(series_pages_chunk, inputs[i:i + _CHUNK], ctx, nav) for i in range(0, len(inputs), _CHUNK)]
+
+
+def _pages_note(drawn: int, total: int, limit: int | None) -> str:
+    return (f"Pages are drawn for {drawn:,} of these {total:,} series: the {limit:,} with the largest total scaled "
+            "error (MASE × cells, all models) and every series an act or watch finding names; the others have their figures "
+            "here (backsight report --series-pages all draws every series).")
+
+
 def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict, cycle: CycleData,
-                 quantiles: QuantileData | None = None):
+                 quantiles: QuantileData | None = None, series_note: str | None = None):
     """Overview, findings, series index, methods and model pages (``nav``: optional navigation links;
     ``cycle``: the changes block, events and stability charts of :mod:`reports.cycle_views`;
     ``quantiles``: the frames of the model pages' quantile sections)."""
@@ -167,7 +208,7 @@ def _write_fixed(data: LedgerData, ctx: Context, out: Path, tick, nav: dict, cyc
     write_page(out, "findings.html", render_page("findings.html", rows=rows, ctx=ctx, page="findings", **nav))
     tick("findings")
     write_page(out, "series.html", render_page("series_index.html", rows=build_series_index(data, ctx),
-                                               ctx=ctx, page="series-index", **nav))
+                                               ctx=ctx, page="series-index", note=series_note, **nav))
     tick("series index")
     write_page(out, "methods.html", render_page("methods.html", ctx=ctx, page="methods", **method_constants(), events=cycle.events, **nav))
     tick("methods")
@@ -192,15 +233,16 @@ def _write_groups(groups: GroupData, ctx: Context, out: Path, tick) -> None:
     tick(f"groups by {groups.attribute}")
 
 
-def _ticker(progress: Progress | None, total: int) -> Callable[..., None]:
-    done = 0
+class _ticker:
+    """tick(what, n): n more pages done of ``total`` (which may grow), reported to ``progress``."""
 
-    def tick(what: str, n: int = 1) -> None:
-        nonlocal done
-        done += n
-        if progress is not None:
-            progress(done, total, what)
-    return tick
+    def __init__(self, progress: Progress | None, total: int):
+        self.progress, self.total, self.done = progress, total, 0
+
+    def __call__(self, what: str, n: int = 1) -> None:
+        self.done += n
+        if self.progress is not None:
+            self.progress(self.done, self.total, what)
 
 
 def build_context(data: LedgerData, title: str) -> Context:

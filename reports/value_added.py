@@ -3,7 +3,8 @@
 A step compares a model with a reference on their common cells (same series, target period and
 horizon, both with a scale): every model against the benchmark (the ``--benchmark`` model, or
 else a seasonal-naive reference in the ledger), and each declared override against the model it
-adjusts (``--adjusts planner-override=incumbent-hw``).
+adjusts (``--adjusts planner-override=incumbent-hw``, or else the relation recorded in the ledger
+with ``backsight adjusts``: :mod:`ledger.overrides`).
 
     FVA = 100 · (1 − MASE_model / MASE_reference)     (percent; on common cells)
 
@@ -23,6 +24,7 @@ from collections.abc import Iterable, Mapping, Sequence
 import pandas as pd
 
 from ledger.errors import UnknownName
+from ledger.overrides import parse_overrides  # noqa: F401  (the one parser of OVERRIDE=BASE, re-exported)
 
 __all__ = ["SEASONAL_NAIVE_NAMES", "FvaRow", "default_benchmark", "fva_steps", "fva_rows", "parse_overrides",
            "check_overrides"]
@@ -48,18 +50,6 @@ def default_benchmark(models: Sequence[str], benchmark: str | None) -> str | Non
     if benchmark:
         return benchmark
     return next((m for m in SEASONAL_NAIVE_NAMES if m in models), None)
-
-
-def parse_overrides(texts: Iterable[str]) -> dict[str, str]:
-    """{override: base} from "OVERRIDE=BASE" texts (the report's --adjusts option)."""
-    out: dict[str, str] = {}
-    for text in texts:
-        override, sep, base = (part.strip() for part in str(text).partition("="))
-        if not sep or not override or not base or override == base:
-            raise UnknownName(f"--adjusts {text!r}: write OVERRIDE=BASE with two different model names, "
-                              "e.g. planner-override=incumbent-hw")
-        out[override] = base
-    return out
 
 
 def check_overrides(overrides: Mapping[str, str], models: Sequence[str]) -> None:

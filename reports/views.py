@@ -494,7 +494,7 @@ def build_series_index(data: LedgerData, ctx: Context) -> list[SeriesIndexRow]:
     for r in data.series.to_dict("records"):
         key = r["series"]
         b = best.loc[key] if key in best.index else None
-        rows.append(SeriesIndexRow(key, ctx.series_href[key], r["frequency"], int(n.get(key, 0)),
+        rows.append(SeriesIndexRow(key, ctx.series_href.get(key, ""), r["frequency"], int(n.get(key, 0)),
                                    str(b["model"]) if b is not None else "", _f(b["mase"]) if b is not None else math.nan,
                                    int(fcount.get(key, 0)) if len(fcount) else 0))
     return rows

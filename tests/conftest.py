@@ -1,10 +1,22 @@
-"""Shared fixtures: a fresh ledger path, the CLI runner, the demo built once (helpers live in tests/helpers.py)."""
+"""Shared fixtures: a fresh ledger path, the CLI runner, the demo built once (helpers live in tests/helpers.py).
+
+Hypothesis draws 50 examples per property test in the default run (what CI runs); set
+BACKSIGHT_HYPOTHESIS=thorough for 1,000 per test, a longer search before a release. The tests
+set no example count of their own, so the profile decides for all of them.
+"""
 
 from __future__ import annotations
 
+import os
+
 import pytest
+from hypothesis import settings
 from typer.testing import CliRunner
 
+# deadline=None: the machines that run the suite are shared, and a slow example is not a failure
+settings.register_profile("default", max_examples=50, deadline=None)
+settings.register_profile("thorough", max_examples=1000, deadline=None)
+settings.load_profile(os.environ.get("BACKSIGHT_HYPOTHESIS", "default"))
 
 
 @pytest.fixture

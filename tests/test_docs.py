@@ -17,7 +17,7 @@ COMMANDS = sorted(typer.main.get_command(app).commands)
 def test_the_expected_commands_exist():
     assert COMMANDS == sorted(["snapshot", "actuals", "scores", "attributes", "runs", "verify", "export", "import",
                                "backtest", "demo", "flags", "compare", "standings", "advise", "report", "review", "changes",
-                               "events", "stability"])
+                               "events", "stability", "adjusts"])
 
 
 @pytest.mark.parametrize("name", COMMANDS)

@@ -5,52 +5,203 @@
 
 LEDGER defaults to a fresh demo built in a temporary folder (``backsight demo``). Each excerpt
 sits in README.md between ``<!-- excerpt NAME … -->`` and ``<!-- /excerpt -->`` as a console
-block: the command, run on the finished demo ledger, and its output, cut the way the shown
-command says. ``tests/demo/test_readme_excerpts.py`` fails when they differ.
+block: the commands, run in this process, and their output, cut the way each shown command
+says (``| head -3``). ``tests/demo/test_readme_excerpts.py`` fails when one differs.
+
+Every excerpt runs in a folder of its own, in a terminal of :data:`WIDTH` columns, on one of:
+
+- ``demo``: the finished demo ledger, read only, shown as ``--ledger backsight-demo/demo.duckdb``;
+- ``copy``: a copy of it, for commands that write (attributes, events, exports), shown the same way;
+- ``fresh``: a new ledger, the default ``backsight.duckdb`` (the commands show no ``--ledger``).
+
+The folder holds ``demo_history`` (a link to the repository's) and the small invented input
+files an excerpt names (:data:`FILES`), which this script writes, so that error examples and
+attribute or event files are real runs too.
 """
 
 from __future__ import annotations
 
+import contextlib
+import dataclasses
+import os
 import re
+import shutil
 import sys
 import tempfile
 from collections.abc import Callable
 from pathlib import Path
+from typing import Literal
 
-README = Path(__file__).resolve().parent.parent / "README.md"
+ROOT = Path(__file__).resolve().parent.parent
+README = ROOT / "README.md"
 
 #: How the excerpts name the ledger (the one ``backsight demo`` writes); nothing is recorded in it
 #: after 2026-11-02, so every later as-of gives the same output.
 SHOWN_LEDGER = "backsight-demo/demo.duckdb"
+#: The terminal width the excerpts are printed at (tables fit it).
+WIDTH = 120
 
 
-#: name -> (arguments after ``backsight``, what the shown shell pipe does, that pipe in Python)
-EXCERPTS: dict[str, tuple[list[str], str, Callable[[str], str]]] = {
-    "scores": (["scores", "--by", "model", "--horizon", "1"], "", lambda out: out),
-    "compare": (["compare", "incumbent-hw", "challenger-damped", "--horizon", "1", "--format", "csv"], "",
-                lambda out: out),
-    "standings": (["standings", "--horizon", "1"], "", lambda out: out),
+def _identity(out: str) -> str:
+    return out
+
+
+def head(n: int) -> tuple[str, Callable[[str], str]]:
+    return f" | head -{n}", lambda out: "".join(out.splitlines(keepends=True)[:n])
+
+
+def tail(n: int) -> tuple[str, Callable[[str], str]]:
+    return f" | tail -{n}", lambda out: "".join(out.splitlines(keepends=True)[-n:])
+
+
+def chars(n: int) -> tuple[str, Callable[[str], str]]:
+    """``2>&1 | cut -c1-N``: an error line cut to N characters."""
+    return f" 2>&1 | cut -c1-{n}", lambda out: "".join(line[:n] + "\n" for line in out.splitlines())
+
+
+def fields(n: int) -> tuple[str, Callable[[str], str]]:
+    """``cut -d, -f1-N`` (the outputs cut so hold no quoted commas in those fields)."""
+    return f" | cut -d, -f1-{n}", lambda out: "".join(",".join(line.split(",")[:n]) + "\n" for line in out.splitlines())
+
+
+@dataclasses.dataclass(frozen=True)
+class Step:
+    """One command of an excerpt: its arguments after ``backsight [--ledger …]``, the pipe it
+    shows and that pipe in Python, and whether it is meant to fail (its Error lines are shown)."""
+
+    args: tuple[str, ...]
+    pipe: tuple[str, Callable[[str], str]] = ("", _identity)
+    fails: bool = False
+    comment: str = ""
+
+
+@dataclasses.dataclass(frozen=True)
+class Excerpt:
+    steps: tuple[Step, ...]
+    ledger: Literal["demo", "copy", "fresh"] = "demo"
+
+
+def _s(*args: str, pipe=("", _identity), fails: bool = False, comment: str = "") -> Step:
+    return Step(tuple(args), pipe, fails, comment)
+
+
+#: Invented input files (file name -> text) that the excerpts read.
+FILES = {
+    # a run whose second row holds a word where a number belongs
+    "run.csv": "series,period,forecast\nnorth/hoses,2026-11,612\nnorth/seed,2026-11,ten\n",
+    # six distinct faults, one per data row after the first
+    "six.csv": ("series,period,forecast,lower_80,upper_80\n"
+                "north/hoses,2026-01,610,500,700\n"
+                "north/seed,2026-13,420,300,500\n"
+                ",2026-02,300,250,350\n"
+                "north/soil,2026-02,ten,250,350\n"
+                "north/tools,2026-02,12.5,13,12\n"
+                "north/hoses,2026-01,615,505,705\n"
+                "north/planters,2025-10,80,70,90\n"),
+    # invented attributes of the demo's 18 series: region and family from the key, a unit price
+    "attributes.csv": "series,region,family,unit_price\n" + "".join(
+        f"{r}/{f},{r},{f},{p}\n" for r in ("north", "coast", "inland")
+        for f, p in (("hoses", 24.5), ("seed", 3.2), ("soil", 8.9), ("tools", 31.0), ("planters", 14.75),
+                     ("pump-spares", 57.0))),
+    # two invented events: a depot closed for stock-taking (excluded), a promotion (kept)
+    "events.csv": ("series,first,last,label,exclude\n"
+                   "region=coast,2024-02,2024-02,stock-taking: depot closed,yes\n"
+                   "north/seed,2025-04,2025-05,spring promotion,no\n"),
 }
 
-_BLOCK = re.compile(r"(<!-- excerpt (\w+)[^>]*-->\n)(.*?)(<!-- /excerpt -->)", re.DOTALL)
+COMPARE = ("compare", "incumbent-hw", "challenger-damped")
+
+#: name -> the excerpt README.md shows under that name.
+EXCERPTS: dict[str, Excerpt] = {
+    "record": Excerpt((
+        _s("actuals", "demo_history/actuals/history-to-2022-12.csv"),
+        _s("snapshot", "demo_history/runs/incumbent-hw/2022-12.csv", "--model", "incumbent-hw", "--origin", "2022-12"),
+        _s("snapshot", "demo_history/runs/incumbent-hw/2022-12.csv", "--model", "incumbent-hw", "--origin", "2022-12"),
+        _s("actuals", "demo_history/actuals/2023-01.csv"),
+    ), ledger="fresh"),
+    "scores": Excerpt((_s("scores", "--by", "model", "--horizon", "1"),)),
+    "unknown-series": Excerpt((_s("scores", "--series", "north/hose", pipe=chars(110), fails=True),)),
+    "flags-drift": Excerpt((_s("flags", "--kind", "drift", "--model", "incumbent-hw", pipe=head(6)),)),
+    "flags-data": Excerpt((_s("flags", "--kind", "data", "--long", pipe=tail(2)),)),
+    "flags-value": Excerpt((_s("flags", "--kind", "value", "--format", "csv", pipe=fields(8)),)),
+    "compare": Excerpt((_s(*COMPARE, "--horizon", "1", "--format", "csv"),)),
+    "advise": Excerpt((_s("advise", "--incumbent", "incumbent-hw", pipe=head(11)),)),
+    "standings": Excerpt((_s("standings", "--horizon", "1"),)),
+    "standings-periods": Excerpt((
+        _s("standings", "--horizon", "1", "--periods", "--format", "csv", pipe=tail(2)),
+        _s(*COMPARE, "--series", "coast/hoses", "--since", "2025-07", "--horizon", "1"),
+    )),
+    "backtest": Excerpt((
+        _s("backtest", "demo_history/actuals/history-to-2022-12.csv", "--methods", "naive,snaive,theta",
+           "--horizon", "6", "--origins", "2021-12:2022-06"),
+        _s("scores", "--by", "model", "--format", "csv", pipe=fields(9)),
+    ), ledger="fresh"),
+    "attributes": Excerpt((_s("attributes", "attributes.csv"),), ledger="copy"),
+    "adjusts": Excerpt((_s("adjusts"),)),
+    "verify": Excerpt((
+        _s("verify"),
+        _s("export", "exported/", "--format", "csv"),
+    ), ledger="copy"),
+    "lake": Excerpt((
+        _s("export", "lake", "--partition"),
+        _s("export", "lake", "--partition", comment="later: only what is new"),
+        _s("scores", "--lake", "lake", "--by", "model", comment="DuckDB over the lake"),
+    ), ledger="copy"),
+    "events": Excerpt((_s("events", "events.csv"),), ledger="copy"),
+    "stability": Excerpt((_s("stability", "--by", "model", "--format", "csv"),)),
+    "bad-file": Excerpt((_s("snapshot", "run.csv", "--model", "m", "--origin", "2026-10", fails=True),), ledger="fresh"),
+    "six-problems": Excerpt((_s("snapshot", "six.csv", "--model", "m", "--origin", "2025-12", fails=True),),
+                            ledger="fresh"),
+}
+
+_BLOCK = re.compile(r"(<!-- excerpt ([\w-]+)[^>]*-->\n)(.*?)(<!-- /excerpt -->)", re.DOTALL)
 
 
-def run(ledger: Path, args: list[str]) -> str:
-    """stdout of ``backsight --ledger LEDGER ARGS`` (in this process)."""
+def run(args: list[str], *, fails: bool = False) -> str:
+    """What ``backsight ARGS`` prints (in this process, in the current folder), stdout and stderr
+    in the order written, as a terminal shows them; ``fails``: exit code 1 is expected."""
     from typer.testing import CliRunner
 
     from ledger.cli import app
 
-    result = CliRunner().invoke(app, ["--ledger", str(ledger), *args])
-    if result.exit_code != 0:
-        raise RuntimeError(f"backsight {' '.join(args)} failed: {result.output}")
-    return result.stdout
+    result = CliRunner().invoke(app, args, env={"COLUMNS": str(WIDTH), "BACKSIGHT_LEDGER": None})
+    if (result.exit_code != 0) != fails or (fails and result.exit_code != 1):
+        raise RuntimeError(f"backsight {' '.join(args)} gave exit code {result.exit_code}: {result.output}"
+                           f"{result.exception!r}")
+    return result.output
+
+
+@contextlib.contextmanager
+def _folder(demo: Path, kind: str):
+    """A working folder for one excerpt, with demo_history, the invented files and the ledger."""
+    with tempfile.TemporaryDirectory(prefix="excerpt-") as tmp:
+        work = Path(tmp)
+        (work / "demo_history").symlink_to(ROOT / "demo_history", target_is_directory=True)
+        for name, text in FILES.items():
+            (work / name).write_text(text, encoding="utf-8")
+        if kind != "fresh":
+            (work / "backsight-demo").mkdir()
+            target = work / SHOWN_LEDGER
+            if kind == "copy":
+                shutil.copyfile(demo, target)
+            else:
+                target.symlink_to(Path(demo).resolve())
+        with contextlib.chdir(work):
+            yield
 
 
 def excerpt(ledger: Path, name: str) -> str:
-    """The console block of one excerpt."""
-    args, pipe, cut = EXCERPTS[name]
-    return f"```console\n$ backsight --ledger {SHOWN_LEDGER} {' '.join(args)}{pipe}\n{cut(run(ledger, args))}```\n"
+    """The console block of one excerpt, run on the demo ledger at ``ledger``."""
+    spec = EXCERPTS[name]
+    lines = ["```console\n"]
+    with _folder(ledger, spec.ledger):
+        for step in spec.steps:
+            prefix = [] if spec.ledger == "fresh" else ["--ledger", SHOWN_LEDGER]
+            shown, cut = step.pipe
+            note = f"      # {step.comment}" if step.comment else ""
+            lines.append(f"$ backsight {' '.join([*prefix, *step.args])}{shown}{note}\n")
+            lines.append(cut(run([*prefix, *step.args], fails=step.fails)))
+    return "".join(lines) + "```\n"
 
 
 def regenerate(text: str, ledger: Path) -> str:
@@ -87,7 +238,7 @@ def main(argv: list[str]) -> int:
     check = "--check" in argv
     paths = [a for a in argv if a != "--check"]
     with tempfile.TemporaryDirectory() as tmp:
-        ledger = Path(paths[0]) if paths else _demo_ledger(Path(tmp))
+        ledger = Path(paths[0]).resolve() if paths else _demo_ledger(Path(tmp))
         old = README.read_text(encoding="utf-8")
         new = regenerate(old, ledger)
     if check:

@@ -11,9 +11,13 @@ from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
 from .common import app, say
+from ..findings.summary import finding_counts
 from ..wording import plural
 
 __all__ = ["demo", "summary_lines"]
+
+#: Findings the summary lists (the report's first screen lists more).
+TOP = 3
 
 
 @app.command()
@@ -39,33 +43,29 @@ def demo(
 
 
 def summary_lines(result) -> list[str]:
-    """What ``backsight demo`` prints after building (a :class:`reports.demo.DemoResult`)."""
+    """What ``backsight demo`` prints after building (a :class:`reports.demo.DemoResult`): what was
+    replayed, the count of findings, the report's advice sentence, the top three findings (act or
+    watch, in flags' order), three commands to try next on this ledger and the report's path."""
     r = result.replay
-    found = ", ".join(f"{n} {kind}" for kind, n in sorted(result.findings.items())) or "none"
+    flags = result.flags
     lines = [f"Replayed {r.scenario}: {plural(r.runs, 'run')} ({plural(r.cells, 'forecast')}), "
              f"{plural(r.actual_values, 'actual')}, {plural(r.revisions, 'revision')}, "
              f"{plural(r.superseded, 'superseded run')}, into {r.ledger_path}",
-             f"Findings: {found}",
-             "Lowest MASE by horizon (an estimate from past errors, not a promise):"]
-    lines += [f"  h={row.horizon:<2} {row.model:<20} MASE {row.mase:.2f}  ({plural(row.n, 'cell')})"
-              for row in result.best_by_horizon.itertuples(index=False)]
-    lines += [f"Advice: {a}" for a in result.advice]
-    top = result.top_findings
-    if top is not None and len(top):
-        lines.append("Top findings:")
-        for i, row in enumerate(top.itertuples(index=False), start=1):
-            where = "".join(f" {x}" for x in (row.model, row.series) if x)
-            lines.append(f"  {i}. {row.kind}{where}: {row.evidence}")
+             f"Findings: {finding_counts(flags)}" if len(flags) else "Findings: none",
+             f"Advice: {result.report.advice}"]
+    top = flags[flags["severity"] != "note"].head(TOP) if len(flags) else flags
+    if len(top):
+        lines.append(f"Top {plural(len(top), 'finding')}:" if len(top) > 1 else "Top finding:")
+        lines += [f"  {i}. {_one_line(row)}" for i, row in enumerate(top.to_dict("records"), start=1)]
     ledger = f"--ledger {shlex.quote(str(r.ledger_path))}"
     lines += ["Try next:",
               f"  backsight {ledger} flags --severity act",
               f"  backsight {ledger} scores --by model --horizon 1",
-              f"  backsight {ledger} compare {shlex.quote(result.incumbent)} {shlex.quote(_challenger(result))} --horizon 1"]
+              f"  backsight {ledger} compare {shlex.quote(result.incumbent)} {shlex.quote(result.challenger)} --horizon 1"]
     return lines + [f"Report: {result.report.index}"]
 
 
-def _challenger(result) -> str:
-    """The model with the lowest MASE at horizon 1 other than the incumbent (the one to compare)."""
-    best = result.best_by_horizon
-    others = [m for m in best["model"] if m != result.incumbent]
-    return others[0] if others else "MODEL"
+def _one_line(row: dict) -> str:
+    """A finding in one line: severity, kind, what it is about and its evidence up to the first ';'."""
+    where = " ".join(x for x in (row["model"], row["series"]) if x)
+    return f"{row['severity']} {row['kind']} {where}: {str(row['evidence']).split(';', 1)[0]}"

@@ -1,10 +1,11 @@
-"""CLI commands over the record itself: snapshot, actuals, scores, attributes, runs."""
+"""CLI commands over the record itself: snapshot, actuals, scores, attributes, adjusts, runs."""
 
 from __future__ import annotations
 
 from pathlib import Path
 from typing import Annotated
 
+import pandas as pd
 import typer
 
 from .common import (
@@ -24,10 +25,11 @@ from .common import (
 from .columns import choose_columns
 from .engines import Engine, EngineOpt, LakeOpt, SparkMasterOpt, reading_ledger
 from .filters import ModelOpt, selection, with_selection
+from ..overrides import parse_overrides
 from ..wording import plural
 from ..scoring.totals import INTERVAL_NOTE
 
-__all__ = ["snapshot", "actuals", "scores", "attributes", "runs"]
+__all__ = ["snapshot", "actuals", "scores", "attributes", "adjusts", "runs"]
 
 
 @app.command()
@@ -122,6 +124,31 @@ def attributes(
         result = book.record_attributes(file, total_of=total_of)
     say(f"{plural(result.series, 'series', 'series')}: {plural(result.changed, 'value')} recorded, {result.unchanged} unchanged "
                f"({', '.join(result.names)})")
+
+
+@app.command()
+def adjusts(
+    ctx: typer.Context,
+    pairs: Annotated[list[str] | None, typer.Argument(metavar="OVERRIDE=BASE", help="Model OVERRIDE adjusts model BASE (e.g. planner-override=incumbent-hw). Without any: list the relation in force.")] = None,
+    withdraw: Annotated[list[str] | None, typer.Option("--withdraw", metavar="MODEL", help="MODEL no longer adjusts another model; repeatable.")] = None,
+    as_of: AsOfOpt = None,
+    fmt: FormatOpt = Format.table,
+) -> None:
+    """Record which model is an override of which (versioned); the report and the value findings use it."""
+    if not pairs and not withdraw:
+        with open_ledger(ctx) as book:
+            relation = book.overrides(as_of=as_of)
+        if fmt is Format.table and not relation:
+            notice("no override recorded; record one with backsight adjusts OVERRIDE=BASE")
+            return
+        emit(pd.DataFrame({"override": list(relation), "base": list(relation.values())}, dtype=object), fmt,
+             title="Overrides in force (override adjusts base)")
+        return
+    wanted: dict[str, str | None] = dict(parse_overrides(pairs or ()))
+    wanted.update({name: None for name in withdraw or ()})
+    with open_ledger(ctx, create=True) as book:
+        result = book.record_overrides(wanted, source="backsight adjusts")
+    say(f"{plural(result.changed, 'change')} recorded, {result.unchanged} unchanged")
 
 
 @app.command()

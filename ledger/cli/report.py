@@ -37,13 +37,20 @@ def report(
     horizon: Annotated[int | None, typer.Option("--horizon", min=1, metavar="N", help="Horizon of the headline sentences, standings and series charts (default: the smallest horizon of the newest runs, usually 1).")] = None,
     group_by: Annotated[str | None, typer.Option("--group-by", metavar="ATTR", help="Add groups.html: accuracy (unweighted and volume-weighted), group totals, findings and series per value of this series attribute (e.g. region).")] = None,
     include_excluded: IncludeExcludedOpt = False,
-    adjusts: Annotated[list[str] | None, typer.Option("--adjusts", metavar="OVERRIDE=BASE", help="Declare that model OVERRIDE adjusts model BASE (e.g. planner-override=incumbent-hw), so the forecast value added of that step is shown; repeatable.")] = None,
+    series_pages: Annotated[str | None, typer.Option("--series-pages", metavar="N|all", help="Series pages to draw when the ledger has more series: the N with the largest total scaled error, plus every series an act or watch finding names (default 250; all: every series).")] = None,
+    adjusts: Annotated[list[str] | None, typer.Option("--adjusts", metavar="OVERRIDE=BASE", help="Declare that model OVERRIDE adjusts model BASE (e.g. planner-override=incumbent-hw), so the forecast value added of that step is shown; repeatable; replaces the relation recorded with backsight adjusts.")] = None,
 ) -> None:
     """Render the static HTML report (overview, findings, a page per model and per series, methods; with --group-by a groups page) into OUTDIR."""
     from reports import render_report
     from reports.value_added import parse_overrides
 
-    overrides = parse_overrides(adjusts or ())
+    overrides = parse_overrides(adjusts) if adjusts else None      # None: the relation recorded in the ledger
+    # the default (250) is reports.site.SERIES_PAGES; the help states it (tests/reports/test_report_cells.py)
+    pages = {}
+    if series_pages is not None:
+        if series_pages != "all" and not (series_pages.isdigit() and int(series_pages) > 0):
+            raise typer.BadParameter(f"{series_pages!r}: give a number of pages above 0, or all", param_hint="--series-pages")
+        pages = {"series_pages": None if series_pages == "all" else int(series_pages)}
 
     console = Console(stderr=True, highlight=False)
     columns = (TextColumn("Rendering"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
@@ -56,5 +63,6 @@ def report(
 
         result = render_report(ctx.obj["ledger"], out_dir, as_of=as_of, since=since, until=until, title=title,
                                incumbent=incumbent, benchmark=benchmark, horizon=horizon, progress=progress,
-                               group_by=group_by, overrides=overrides, include_excluded=include_excluded)
+                               group_by=group_by, overrides=overrides, include_excluded=include_excluded,
+                               **pages)
     say(str(result.index))

@@ -34,12 +34,14 @@ HELP = {
     "zone_watch": "Cumulative binomial probability that starts the watch zone.",
     "zone_out": "Cumulative binomial probability that starts out of tolerance.",
     "benchmark": "Benchmark model for value added (default: one named like ref-snaive).",
+    "adjusts": "OVERRIDE=BASE pairs, comma list: judge each override's value over its base (default: the pairs recorded with backsight adjusts).",
     "recent": "Evaluation periods in the recent window (value added, impact, recalibration).",
     "value_alpha": "Significance for series-level value findings.",
     "seasons": "Report origins with less history than this many seasons.",
     "adi": "Average demand interval from which demand is intermittent.",
 }
 _METAVAR = {int: "N", float: "X", str: "NAME"}
+_FIELD_METAVAR = {"adjusts": "OVERRIDE=BASE"}    # where the type's metavar would mislead
 
 
 def option_name(field: str) -> str:
@@ -68,7 +70,7 @@ def _option(field: dataclasses.Field, hint) -> tuple[Any, Any]:
                 functools.partial(_int_list, name))
     kind = base if base in _METAVAR else str
     annotation = kind | None if optional else kind
-    return Annotated[annotation, typer.Option(name, metavar=_METAVAR[kind], help=helptext)], lambda v: v
+    return Annotated[annotation, typer.Option(name, metavar=_FIELD_METAVAR.get(field.name, _METAVAR[kind]), help=helptext)], lambda v: v
 
 
 def _int_list(name: str, text: str) -> tuple[int, ...]:

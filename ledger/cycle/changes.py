@@ -17,7 +17,7 @@ import pandas as pd
 
 from ..errors import UnknownName
 from ..scoring.cells import Selection, cells_sql
-from ..store import Store, utc_now
+from ..store import Store
 
 __all__ = ["Changes", "DEFAULT_MASE_CHANGE", "recent_mase", "review_list", "changes"]
 
@@ -79,8 +79,15 @@ def _models_of(store: Store, review: int | None) -> pd.DataFrame:
 
 
 def _pick(store: Store, since_review: int | None, as_of) -> tuple[int | None, int]:
-    ids = [r[0] for r in store.con.execute(
-        "SELECT review_id FROM reviews WHERE as_of <= $as_of ORDER BY review_id", {"as_of": as_of}).fetchall()]
+    # Without an as-of every stored review counts, whatever the wall clock says: a review's as-of
+    # is the ledger's clock (strictly after every recorded time), which a clock set back, or
+    # records made with a clock ahead, can put after "now"; the newest review must not vanish then.
+    if as_of is None:
+        rows = store.con.execute("SELECT review_id FROM reviews ORDER BY review_id").fetchall()
+    else:
+        rows = store.con.execute("SELECT review_id FROM reviews WHERE as_of <= $as_of ORDER BY review_id",
+                                 {"as_of": as_of}).fetchall()
+    ids = [r[0] for r in rows]
     if not ids:
         raise UnknownName("no review stored yet; run backsight review INBOX --out REPORT first")
     now = ids[-1]
@@ -119,11 +126,11 @@ def _diff_models(old: pd.DataFrame, new: pd.DataFrame, threshold: float) -> pd.D
 
 def changes(store: Store, *, since_review: int | None = None,
             mase_change: float = DEFAULT_MASE_CHANGE, as_of=None) -> Changes:
-    """The latest review stored at or before ``as_of`` (default now) against review
+    """The latest review stored at or before ``as_of`` (default: the latest stored) against review
     ``since_review`` (default: the one before it)."""
     if not mase_change > 0:
         raise UnknownName(f"--mase-change {mase_change} must be above 0")
-    then, now = _pick(store, since_review, utc_now() if as_of is None else as_of)
+    then, now = _pick(store, since_review, as_of)
     found = _diff_findings(_findings_of(store, then), _findings_of(store, now))
     models = _diff_models(_models_of(store, then), _models_of(store, now), mase_change)
     return Changes(then, now, mase_change, found, models)

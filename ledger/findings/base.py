@@ -39,6 +39,7 @@ __all__ = [
     "Severity",
     "Correction",
     "KINDS",
+    "OVER_BASE",
     "SEVERITIES",
     "SEVERITY_ORDER",
     "Finding",
@@ -55,6 +56,8 @@ FindingKind = Literal["drift", "calibration", "quantiles", "value", "data"]
 Severity = Literal["act", "watch", "note"]
 Correction = Literal["bh", "holm"]
 KINDS: tuple[str, ...] = get_args(FindingKind)
+#: The check of a value finding about an override against the model it adjusts (ledger/overrides.py).
+OVER_BASE = "no value added over its base"
 SEVERITIES: tuple[str, ...] = get_args(Severity)
 
 
@@ -111,7 +114,8 @@ class Finding:
         """
         level = "" if self.level is None or not math.isfinite(self.level) else f"{self.level:g}"
         topic = self.check if self.kind == "data" else (
-            "clustered" if self.check == "clustered misses" else "coverage" if self.kind == "calibration" else "")
+            "clustered" if self.check == "clustered misses" else "coverage" if self.kind == "calibration"
+            else "base" if self.check == OVER_BASE else "")
         return "|".join((self.kind, self.model, self.series, level, topic))
 
 
@@ -132,7 +136,8 @@ class FlagOptions:
     ``buckets`` (lower edges of the horizon buckets), ``zone_watch`` / ``zone_out`` (cumulative
     binomial probabilities that start the watch and out-of-tolerance zones).
     Value added (:mod:`ledger.findings.value`): ``benchmark`` (None = a model named like a seasonal-naive
-    reference), ``recent`` (evaluation periods in the recent window), ``value_alpha``
+    reference), ``adjusts`` ("OVERRIDE=BASE" pairs, comma-separated: the overrides whose value over
+    their base is judged; None = the relation recorded in the ledger, "" = none), ``recent`` (evaluation periods in the recent window), ``value_alpha``
     (significance for series-level value findings).
     Data (:mod:`ledger.findings.data`): ``seasons`` (history shorter than this many seasons at an
     origin is reported), ``adi`` (average demand interval at or above which demand is
@@ -151,6 +156,7 @@ class FlagOptions:
     zone_watch: float = 0.95
     zone_out: float = 0.9999
     benchmark: str | None = None
+    adjusts: str | None = None
     recent: int = 12
     value_alpha: float = 0.05
     seasons: int = 3

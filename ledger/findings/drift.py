@@ -74,7 +74,7 @@ class _Seq:
 
 
 #: One row per series × model × horizon sequence, from :func:`sequence_tests`.
-SEQUENCE_COLUMNS = ("model", "series", "horizon", "n", "judged", "p", "bias", "start", "shift", "lrv")
+SEQUENCE_COLUMNS = ("model", "series", "horizon", "n", "judged", "p", "bias", "start", "shift", "lrv", "phi")
 
 
 def sequence_tests(cells: pd.DataFrame, options: FlagOptions) -> pd.DataFrame:
@@ -93,7 +93,7 @@ def sequence_tests(cells: pd.DataFrame, options: FlagOptions) -> pd.DataFrame:
     need = max(options.min_cells, 2 * MIN_SEGMENT + 2)
     seqs, pairs = [], {}
     for (model, series, horizon), idx in ordered.groupby(["model", "series", "horizon"], sort=True).indices.items():
-        q = _Seq(str(model), str(series), int(horizon), idx, p=np.nan, start=-1, shift=np.nan)
+        q = _Seq(str(model), str(series), int(horizon), idx, p=np.nan, start=-1, shift=np.nan, phi=np.nan)
         seqs.append(q)
         if idx.size >= need:
             pairs.setdefault((q.model, q.horizon), []).append(q)
@@ -111,6 +111,7 @@ def sequence_tests(cells: pd.DataFrame, options: FlagOptions) -> pd.DataFrame:
         "start": np.array([q.start for q in seqs], dtype=np.int64),
         "shift": np.array([q.shift for q in seqs], dtype=float),
         "lrv": np.array([q.lrv for q in seqs], dtype=float),
+        "phi": np.array([q.phi for q in seqs], dtype=float),
     }, columns=list(SEQUENCE_COLUMNS))
 
 
@@ -143,7 +144,7 @@ def drift_findings(cells: pd.DataFrame, seasons: dict[str, int], options: FlagOp
             continue
         seqs.append(_Seq(str(row.model), str(row.series), int(row.horizon), groups[(row.model, row.series, row.horizon)],
                          p=float(row.p), bias=bool(row.bias), start=int(row.start), shift=float(row.shift),
-                         lrv=float(row.lrv)))
+                         lrv=float(row.lrv), phi=float(row.phi)))
     if seqs:
         adjusted = benjamini_hochberg(np.array([q.p for q in seqs]))
         flagged = [(q, a) for q, a in zip(seqs, adjusted) if a <= options.fdr]

@@ -32,6 +32,7 @@ from .quantiles import quantile_findings
 from ..scoring.cells import Selection, cells_sql, interval_misses, score_cells
 from ..scoring.quantile_reads import quantile_cells
 from ..scoring.attributes import check_attribute, series_attributes
+from ..overrides import overrides_for, parse_overrides
 from ..store import Store
 from .value import value_findings
 
@@ -48,7 +49,10 @@ def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: 
     """
     kinds = _check_kinds(kinds)
     options = FlagOptions.from_keywords(**thresholds)
-    check_models(store, list(sel.models) + ([options.benchmark] if options.benchmark else []))
+    given = None if options.adjusts is None else parse_overrides(filter(None, options.adjusts.split(",")))
+    overrides = overrides_for(store, sel.as_of, given)
+    check_models(store, list(sel.models) + ([options.benchmark] if options.benchmark else [])
+                 + [name for pair in (given or {}).items() for name in pair])
     everyone = dataclasses.replace(sel, models=())
     seasons, freqs = _series_facts(store)
     found: list[Finding] = []
@@ -65,7 +69,7 @@ def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: 
     if "quantiles" in kinds:
         found += quantile_findings(quantile_cells(store, sel), options)
     if "value" in kinds:
-        found += value_findings(cells, subjects, known_models(store), options, total=total)
+        found += value_findings(cells, subjects, known_models(store), options, total=total, overrides=overrides)
     if "data" in kinds:
         found += _data_for(store, sel, options)
     return findings_frame(found)
@@ -73,7 +77,7 @@ def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: 
 
 # The Spark schema of sequence_tests' rows (drift.SEQUENCE_COLUMNS).
 _SEQUENCE_SCHEMA = ("model string, series string, horizon long, n long, judged boolean, p double, bias boolean, "
-                    "start long, shift double, lrv double")
+                    "start long, shift double, lrv double, phi double")
 
 
 def _tested_on_executors(store: Store, sel: Selection, subjects: Sequence[str], options: FlagOptions):

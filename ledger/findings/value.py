@@ -23,6 +23,12 @@ Action: use the benchmark instead, with the number of series on which the model'
 was above the benchmark's (its figure). Impact: sum over the recent common cells of
 (|e_model| - |e_benchmark|) / q, in percent of the ledger's total (:mod:`ledger.findings.base`).
 
+Overrides (:mod:`ledger.overrides`): a model that adjusts another (a planner's override of the
+incumbent) is also judged against the model it adjusts, its base, by the same rule at model level
+(check "no value added over its base"): the value each step of the forecasting process adds.
+An override that adds no value over either is one finding, the step's, with the benchmark's
+evidence appended.
+
 Default benchmark: a model named "ref-snaive" (the seasonal-naive reference that Backsight's
 backtests record), else the first model, alphabetically, whose name contains "snaive",
 "seasonal-naive" or "seasonal_naive" (case-insensitive). With none, the check is skipped with a
@@ -33,15 +39,15 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 
 import numpy as np
 import pandas as pd
 
 from ..stats.intervals import benjamini_hochberg
 from ..stats.comparison import DMResult, dm_hln
-from .base import Finding, FlagOptions
-from ..wording import label, pval, short_num as num
+from .base import OVER_BASE, Finding, FlagOptions
+from ..wording import label, pval, severity_rank, short_num as num
 from .drift_actions import share
 from .standings import paired, period_differential
 
@@ -60,15 +66,17 @@ def default_benchmark(models: Sequence[str]) -> str | None:
 
 
 def value_findings(cells: pd.DataFrame, subjects: Sequence[str], known: Sequence[str],
-                   options: FlagOptions, *, total: float = math.nan) -> list[Finding]:
-    """Value-added findings for each model in ``subjects`` against the benchmark; ``total`` is
-    the denominator of impact."""
+                   options: FlagOptions, *, total: float = math.nan,
+                   overrides: Mapping[str, str] | None = None) -> list[Finding]:
+    """Value-added findings for each model in ``subjects`` against the benchmark, and for each
+    override in ``subjects`` against the model it adjusts (``overrides``: {override: base});
+    ``total`` is the denominator of impact."""
     if cells.empty:
         return []
+    out = _override_value(cells, subjects, overrides or {}, options, total)
     bench = options.benchmark or default_benchmark(known)
     if bench is None:
-        return [_no_benchmark_note()]
-    out: list[Finding] = []
+        return out + [_no_benchmark_note()]
     for model in subjects:
         if model == bench or not (cells["model"] == model).any():
             continue
@@ -86,6 +94,25 @@ def value_findings(cells: pd.DataFrame, subjects: Sequence[str], known: Sequence
                                          f"{bench} on {len(series)} series: {names}")]
             series = []
         out += whole + series
+    return _one_per_override(out)
+
+
+def _one_per_override(found: list[Finding]) -> list[Finding]:
+    """An override that adds no value over its base nor over the benchmark is one problem: the
+    benchmark's finding goes into the step's evidence (impact the larger of the two, not their
+    sum, since both count the same excess errors; severity the more severe)."""
+    steps = {f.model: f for f in found if f.check == OVER_BASE and f.severity != "note"}
+    folded = {f.model: f for f in found if f.model in steps and f.series == "" and f.check == "no value added"}
+    out = []
+    for f in found:
+        if f.check == OVER_BASE and f.model in folded:
+            other = folded[f.model]
+            f = dataclasses.replace(f, evidence=f"{f.evidence}; and {other.evidence}",
+                                    impact=max(f.impact, other.impact),
+                                    severity=min(f.severity, other.severity, key=severity_rank))
+        elif f.model in folded and f is folded[f.model]:
+            continue
+        out.append(f)
     return out
 
 
@@ -118,7 +145,27 @@ def _worse_series(recent: pd.DataFrame) -> tuple[int, int]:
     return int((per["b"] > per["a"]).sum()), len(per)
 
 
-def _model_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOptions, total: float) -> list[Finding]:
+def _override_value(cells: pd.DataFrame, subjects: Sequence[str], overrides: Mapping[str, str],
+                    options: FlagOptions, total: float) -> list[Finding]:
+    """Each override against the model it adjusts, on their recent common cells (model level only:
+    the step is one decision for all series)."""
+    out: list[Finding] = []
+    for model, base in overrides.items():
+        if model not in subjects or not (cells["model"] == model).any() or not (cells["model"] == base).any():
+            continue
+        pairs = paired(cells, base, model)
+        if pairs.empty:
+            out.append(_no_common_note(model, base, OVER_BASE))
+            continue
+        periods = np.sort(pairs["period_index"].unique())
+        recent = pairs[pairs["period_index"].isin(periods[-options.recent:])]
+        out += _model_value(recent, model, base, options, total, role="base")
+    return out
+
+
+def _model_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOptions, total: float,
+                 role: str = "benchmark") -> list[Finding]:
+    """``role``: what ``bench`` is to ``model``, "benchmark" or "base" (the model an override adjusts)."""
     mae_model, mae_bench, va = _figures(recent)
     if not va <= 0:
         return []
@@ -126,22 +173,22 @@ def _model_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOpti
     if not math.isfinite(dm.p_value):
         statement = "too few periods to test the difference"
     elif dm.p_value < options.value_alpha:
-        statement = (f"the benchmark is significantly more accurate (DM-HLN {pval(dm.p_value)})" if dm.statistic < 0
+        statement = (f"the {role} is significantly more accurate (DM-HLN {pval(dm.p_value)})" if dm.statistic < 0
                      else f"though on scaled errors the model is significantly more accurate (DM-HLN {pval(dm.p_value)})")
     else:
         statement = f"the difference is not significant (DM-HLN {pval(dm.p_value)})"
-    since, head = _window_text(recent, bench, "")
+    since, head = _window_text(recent, bench if role == "benchmark" else f"its base {bench}", "")
     text = f"{head}: MAE {num(mae_model)} vs {num(mae_bench)}, value added {va:+.0%}; {statement}"
     worse, n_series = _worse_series(recent)
     significant = math.isfinite(dm.p_value) and dm.p_value < options.value_alpha and dm.statistic < 0
     action = (f"use {bench} instead of {model}: over the same window {model} had the higher MAE on {worse} of "
               f"{n_series} series")
     return [Finding(kind="value", series="", model=model, horizon=None, level=None, since=since,
-                    figure=va, evidence=text, check="no value added", horizons="all",
-                    severity="act" if significant else "watch",
-                    measure="value added (1 - MAE / benchmark MAE)", p_value=dm.p_value, n=len(recent),
+                    figure=va, evidence=text, check="no value added" if role == "benchmark" else OVER_BASE,
+                    horizons="all", severity="act" if significant else "watch",
+                    measure=f"value added (1 - MAE / {role} MAE)", p_value=dm.p_value, n=len(recent),
                     impact=share(max(0.0, _excess(recent)), total), action=action, action_figure=float(worse),
-                    action_measure="series where the benchmark was more accurate")]
+                    action_measure=f"series where the {role} was more accurate")]
 
 
 def _series_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOptions, total: float) -> list[Finding]:
@@ -177,7 +224,7 @@ def _no_benchmark_note() -> Finding:
                    evidence=text, check="no benchmark", severity="note")
 
 
-def _no_common_note(model: str, bench: str) -> Finding:
+def _no_common_note(model: str, bench: str, check: str = "not enough data") -> Finding:
     text = f"value added not judged: {model} and {bench} share no scored cells"
     return Finding(kind="value", series="", model=model, horizon=None, level=None, since="", figure=math.nan,
-                   evidence=text, check="not enough data", severity="note")
+                   evidence=text, check=check, severity="note")

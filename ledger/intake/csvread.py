@@ -27,7 +27,7 @@ import pandas as pd
 from ..errors import InputError
 from ..wording import list_names, shorten
 
-__all__ = ["CHUNK_ROWS", "iter_csv_chunks"]
+__all__ = ["CHUNK_ROWS", "CsvText", "delimiter", "header_fields", "iter_csv_chunks"]
 
 #: Rows per chunk: small enough that a chunk of wide rows stays well under 100 MB.
 CHUNK_ROWS = 200_000
@@ -45,7 +45,7 @@ _PACKED = ((b"\x1f\x8b", "a gzip-compressed file"), (b"BZh", "a bzip2-compressed
 _UNPACK = {b"PAR1": "name it .parquet"}
 
 
-class _Text:
+class CsvText:
     """A file's text for pandas' parser, decoded and checked for NUL bytes block by block.
 
     Keeps the count of line breaks and the text of the current line decoded so far, so that a
@@ -151,7 +151,7 @@ class _Text:
         return iter(lambda: self.read(_BLOCK), "")
 
 
-def _delimiter(header_line: str) -> str:
+def delimiter(header_line: str) -> str:
     if "," in header_line:
         return ","
     counts = {d: header_line.count(d) for d in (";", "\t", "|")}
@@ -159,7 +159,7 @@ def _delimiter(header_line: str) -> str:
     return best if counts[best] else ","
 
 
-def _header_fields(line: str, sep: str, source: str) -> list[str]:
+def header_fields(line: str, sep: str, source: str) -> list[str]:
     """The header's names; refuses line ends of a lone carriage return and unreadable headers."""
     if "\r" in line.rstrip("\r"):
         raise InputError(source, "lines end with a carriage return alone (an old Mac format); save the file "
@@ -185,13 +185,13 @@ def iter_csv_chunks(path: Path, source: str, rows: int = CHUNK_ROWS, progress=No
     An empty file is refused; a header with no rows yields one empty frame.
     ``progress(done, total)`` is called after each frame with the bytes read so far.
     """
-    text = _Text(path, source)
+    text = CsvText(path, source)
     total = path.stat().st_size
     try:
         if text.only_blank():
             raise InputError(source, "the file is empty")
-        sep = _delimiter(text.header)
-        header = _header_fields(text.header, sep, source)
+        sep = delimiter(text.header)
+        header = header_fields(text.header, sep, source)
         _check_header(header, source)
         try:
             # object, not str: pandas' conversion to its string type costs more than the parse

@@ -10,6 +10,7 @@ is checked there in SQL. Memory stays flat whatever the file's size.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import difflib
 import re
@@ -21,8 +22,9 @@ import pyarrow.compute as pc
 
 from .columns import bound_columns, is_level_column, misspelt_column, quantile_columns
 from .keys import case_twins_warning, check_option, normalise_keys
-from ..errors import FrequencyError, InputError
+from ..errors import FrequencyError, InputError, LedgerError
 from ..periods import FREQUENCIES, check_frequency, parse_label
+from .plaincsv import NotPlain, PlainCsv
 from .problems import Problems, refuse
 from .sources import Chunk, open_table
 from .staging import Stage
@@ -322,6 +324,10 @@ def _model_origin(source, frame, model, origin) -> tuple[pa.Array, pa.Array]:
     return out[0], out[1]
 
 
+#: Take the fast road (:mod:`plaincsv`) for a CSV file when it can; tests of the exact reader turn it off.
+PLAIN_ROAD = True
+
+
 def read_forecasts(
     store: Store,
     data,
@@ -332,17 +338,31 @@ def read_forecasts(
     name: str | None = None,
     progress=None,
 ) -> ForecastFrame:
-    """Read and validate a forecast file chunk by chunk into a staging table of ``store``.
+    """Read and validate a forecast file into a staging table of ``store``: a plain CSV file by
+    DuckDB's reader (:mod:`plaincsv`), anything else, or a plain-looking file with a problem,
+    chunk by chunk by the exact reader.
 
     Use the result in a ``with`` block (it drops the staging table). Series the ledger already
     knows must keep their recorded frequency. ``progress(done, total)``: see :func:`sources.open_table`.
     """
-    table = open_table(data, name=name, progress=progress)
+    if PLAIN_ROAD:
+        with contextlib.suppress(NotPlain):
+            return _read_forecasts(store, data, model, origin, freq, name, progress, plain=True)
+    return _read_forecasts(store, data, model, origin, freq, name, progress, plain=False)
+
+
+def _read_forecasts(store, data, model, origin, freq, name, progress, *, plain: bool) -> ForecastFrame:
+    if plain:
+        table = PlainCsv.open(data, name)
+    else:
+        table = open_table(data, name=name, progress=progress)
     source, columns = table.source, table.columns
     problems = Problems(source)
     bound_cols, quant_cols, extras = _header(source, columns, ("series", "period", "forecast"), problems, {
         "bounds": lambda: _bounds_named(columns, source), "quantiles": lambda: quantile_columns(columns, source),
         "extras": lambda: _extra_columns(columns, {"series", "period", "forecast", "model", "origin"}, source)})
+    if plain and problems:
+        raise NotPlain("header")
     warnings = [_ignored(source, extras)] if extras else []
     levels, taus = list(bound_cols), list(quant_cols)
     numbers = {"point": "DOUBLE"} | {f"{side}_{i}": "DOUBLE" for i in range(len(levels)) for side in ("lo", "hi")}
@@ -352,7 +372,11 @@ def read_forecasts(
     try:
         periods, origins = _Labels("period", stage), _Labels("origin", stage)
         outside = _Outside(source)
-        for chunk in table.chunks:
+        if plain:
+            _plain_forecasts(table, stage, model, origin, bound_cols, quant_cols, (periods, origins), outside)
+            if progress:
+                progress(table.size, table.size)
+        for chunk in () if plain else table.chunks:
             staged = _forecast_chunk(source, chunk, model, origin, periods, origins, bound_cols, quant_cols, problems)
             outside.add(chunk.offset, staged, len(levels))
             stage.append(chunk.offset, staged)
@@ -365,7 +389,7 @@ def read_forecasts(
             option = f"--origin {origin}" if origin is not None and "origin" not in columns and \
                 not periods.kinds() else None
             _recorded(stage, source, frequency, problems, option)
-            stage.resolve(frequency, ["period", "origin"])
+            stage.resolve(frequency, ["period", "origin"], "model, origin_index, series, period_index")
             with problems.guard():
                 stage.check_horizons(source, frequency, MAX_HORIZON)
             with problems.guard():
@@ -380,6 +404,49 @@ def read_forecasts(
         raise
     return ForecastFrame(source, frequency, stage, levels, taus,
                          warnings + outside.warnings([lower for lower, _ in bound_cols.values()]))
+
+
+def _plain_option(value: str | None, flag: str) -> str | None:
+    """An option as the exact reader would read it; NotPlain when it would refuse it or its length."""
+    if value is None:
+        return None
+    try:
+        value = check_option(value, flag)
+    except LedgerError:
+        raise NotPlain(flag) from None
+    if len(value.encode()) > MAX_KEY_LENGTH:
+        raise NotPlain(flag)
+    return value
+
+
+def _plain_forecasts(table: PlainCsv, stage: Stage, model, origin, bound_cols, quant_cols,
+                     labels: tuple[_Labels, ...], outside: "_Outside") -> None:
+    """Stage a plain forecast file from SQL (NotPlain if any cell is not plain): its rows, its
+    labels, and the count of points outside their own intervals."""
+    numbers = {"point": ("forecast", False)}
+    for i, (lo, hi) in enumerate(bound_cols.values()):
+        numbers |= {f"lo_{i}": (lo, True), f"hi_{i}": (hi, True)}
+    numbers |= {f"q_{j}": (col, True) for j, col in enumerate(quant_cols.values())}
+    table.load(stage.con, stage.table, keys={"model": _plain_option(model, "--model"),
+                                            "origin": _plain_option(origin, "--origin"),
+                                            "series": None, "period": None}, numbers=numbers,
+               pairs=[(f"lo_{i}", f"hi_{i}") for i in range(len(bound_cols))],
+               ordered=[(f"q_{j}", f"q_{j + 1}") for j in range(len(quant_cols) - 1)])
+    _plain_labels(table, stage, labels)
+    if bound_cols:
+        out = " , ".join(f"count(*) FILTER (point < lo_{i} OR point > hi_{i}), "
+                         f"min(row) FILTER (point < lo_{i} OR point > hi_{i})" for i in range(len(bound_cols)))
+        found = stage.con.execute(f"SELECT {out} FROM {stage.table}").fetchone()
+        for i in range(len(bound_cols)):
+            if found[2 * i]:
+                outside.count[i], outside.first[i] = int(found[2 * i]), int(found[2 * i + 1])
+
+
+def _plain_labels(table: PlainCsv, stage: Stage, labels: tuple[_Labels, ...]) -> None:
+    for column in labels:
+        for batch in table.labels(stage.con, stage.table, column.column):
+            stage.add_labels(column.column, *batch)
+            column.seen = True
 
 
 def _header(source, columns, required, problems: Problems, checks: dict) -> tuple[dict, dict, list]:
@@ -512,20 +579,36 @@ class _Outside:
 
 def read_actuals(store: Store, data, *, freq: str | None = None, name: str | None = None,
                  progress=None) -> ActualsFrame:
-    """Read and validate an actuals file (series, period, actual) chunk by chunk into a staging table.
+    """Read and validate an actuals file (series, period, actual) into a staging table, by the
+    fast road or the exact reader as :func:`read_forecasts` does.
 
     Use the result in a ``with`` block (it drops the staging table).
     """
-    table = open_table(data, name=name, progress=progress)
+    if PLAIN_ROAD:
+        with contextlib.suppress(NotPlain):
+            return _read_actuals(store, data, freq, name, progress, plain=True)
+    return _read_actuals(store, data, freq, name, progress, plain=False)
+
+
+def _read_actuals(store, data, freq, name, progress, *, plain: bool) -> ActualsFrame:
+    table = PlainCsv.open(data, name) if plain else open_table(data, name=name, progress=progress)
     source, columns = table.source, table.columns
     problems = Problems(source)
     _header(source, columns, ("series", "period", "actual"), problems, {})
+    if plain and problems:
+        raise NotPlain("header")
     extras = [c for c in columns if c not in ("series", "period", "actual")]
     warnings = [_ignored(source, extras)] if extras else []
     stage = Stage(store.con, {"series": "VARCHAR", "period": "VARCHAR", "value": "DOUBLE"})
     try:
         periods = _Labels("period", stage)
-        for chunk in table.chunks:
+        if plain:
+            table.load(stage.con, stage.table, keys={"series": None, "period": None},
+                       numbers={"value": ("actual", False)})
+            _plain_labels(table, stage, (periods,))
+            if progress:
+                progress(table.size, table.size)
+        for chunk in () if plain else table.chunks:
             frame, offset = chunk.frame, chunk.offset
             keys, text = _key_columns(source, frame, problems, offset, "series", "period")
             with problems.guard(offset):
@@ -541,7 +624,7 @@ def read_actuals(store: Store, data, *, freq: str | None = None, name: str | Non
             frequency = _decide_frequency(source, [periods], freq, stage.known_frequencies())
         if frequency is not None and periods.seen:
             _recorded(stage, source, frequency, problems)
-            stage.resolve(frequency, ["period"])
+            stage.resolve(frequency, ["period"], "series, period_index")
             with problems.guard():
                 stage.check_unique(source, ["series", "period_index"], "period",
                                    "a second actual for the same series and period")

@@ -20,7 +20,7 @@ import pyarrow.compute as pc
 from ..errors import InputError, LedgerError
 from ..wording import list_names, shorten
 
-__all__ = ["normalise_keys", "key_problem", "check_option", "case_twins_warning", "REFUSED_RANGES"]
+__all__ = ["normalise_keys", "key_problem", "check_option", "case_twins_warning", "REFUSED_RANGES", "REFUSED_PATTERN"]
 
 #: (first, last, what) code point ranges a key may not hold
 REFUSED_RANGES = (
@@ -30,7 +30,7 @@ REFUSED_RANGES = (
     (0x200B, 0x200D, "a zero-width character"), (0x2060, 0x2060, "a zero-width character"),
     (0xFEFF, 0xFEFF, "a byte-order mark"),
 )
-_PATTERN = "[" + "".join(f"\\x{{{a:04X}}}-\\x{{{b:04X}}}" for a, b, _ in REFUSED_RANGES) + "]"
+REFUSED_PATTERN = "[" + "".join(f"\\x{{{a:04X}}}-\\x{{{b:04X}}}" for a, b, _ in REFUSED_RANGES) + "]"
 
 
 def _what(ch: str) -> str:
@@ -52,7 +52,7 @@ def key_problem(text: str) -> str | None:
 def normalise_keys(source: str, text: pa.Array, column: str) -> pa.Array:
     """Trimmed NFC keys; refuses the first row holding a character of :data:`REFUSED_RANGES`."""
     text = pc.utf8_normalize(pc.utf8_trim_whitespace(text), form="NFC")
-    bad = pc.match_substring_regex(text, _PATTERN).to_numpy(zero_copy_only=False)
+    bad = pc.match_substring_regex(text, REFUSED_PATTERN).to_numpy(zero_copy_only=False)
     if bad.any():
         i = int(np.argmax(bad))
         raise InputError(source, key_problem(text[i].as_py()), row=i + 1, column=column)

@@ -12,6 +12,7 @@ import duckdb
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
 
 from ..errors import RunConflict
 from ..hashing import chain_hash_sql, run_content_hash, write_hash_sql
@@ -53,8 +54,8 @@ def _run_parts(frame: ForecastFrame):
     """Each run's rows in canonical order, one run at a time: (model, origin index, origin, part).
 
     Streams the ready table sorted by run; only one run is held in memory at a time. A part is
-    a dict of NumPy arrays (not a DataFrame: a back-fill of thousands of one-row runs would
-    spend most of its time building frames).
+    a dict of NumPy arrays, the series keys an Arrow array (their bytes go to the hash as they
+    are, with no Python string per row).
     """
     stage = frame.stage
     names = [f"{side}_{i}" for i in range(len(frame.levels)) for side in ("lo", "hi")]
@@ -62,8 +63,9 @@ def _run_parts(frame: ForecastFrame):
     select = ", ".join(["model", "origin_index", "origin", "series", "period_index", "point", *names])
     key, origin, pending = None, None, None
     for batch in stage.batches(select, "model, origin_index, series, period_index"):
-        cols = {c: batch[c].to_numpy() for c in ("model", "origin_index", "series", "period_index")}
-        cols |= {c: batch[c].to_numpy(dtype="float64", na_value=np.nan) for c in ["point", *names]}
+        cols = {c: batch.column(c).to_numpy(zero_copy_only=False) for c in ("model", "origin_index", "period_index")}
+        cols |= {c: batch.column(c).to_numpy(zero_copy_only=False).astype("float64") for c in ["point", *names]}
+        series, origins = batch.column("series"), batch.column("origin")
         model, o_index = cols["model"], cols["origin_index"]
         starts = np.flatnonzero(np.r_[True, (model[1:] != model[:-1]) | (o_index[1:] != o_index[:-1])])
         for a, b in zip(starts, np.r_[starts[1:], len(batch)]):
@@ -71,15 +73,19 @@ def _run_parts(frame: ForecastFrame):
                 yield str(key[0]), int(key[1]), origin, _joined(pending)
                 pending = None
             if pending is None:
-                key, origin, pending = (model[a], o_index[a]), batch["origin"].iat[a], {c: [] for c in cols}
+                key, origin, pending = (model[a], o_index[a]), origins[int(a)].as_py(), {c: [] for c in [*cols, "series"]}
             for c, values in cols.items():
                 pending[c].append(values[a:b])
+            pending["series"].append(series.slice(int(a), int(b - a)))
     if pending is not None:
         yield str(key[0]), int(key[1]), origin, _joined(pending)
 
 
-def _joined(pending: dict[str, list[np.ndarray]]) -> dict[str, np.ndarray]:
-    return {c: v[0] if len(v) == 1 else np.concatenate(v) for c, v in pending.items()}
+def _joined(pending: dict[str, list]) -> dict[str, object]:
+    out = {c: v[0] if len(v) == 1 else np.concatenate(v) for c, v in pending.items() if c != "series"}
+    parts = pending["series"]
+    out["series"] = parts[0] if len(parts) == 1 else pa.concat_arrays(parts)
+    return out
 
 
 def write_runs(store: Store, frame: ForecastFrame, *, note: str | None = None,
@@ -156,19 +162,19 @@ def _insert_runs(con, frame: ForecastFrame, rows: list[tuple], replaced: list[tu
 
 
 def _insert_cells(con, frame: ForecastFrame, new_ids: list[tuple[str, int, str]]) -> None:
-    """One INSERT per table for all new runs, straight from the staging table (set-based)."""
+    """One INSERT per table for all new runs, straight from the staging table (set-based), in
+    its order (model, origin, series, period)."""
     con.register("_new_ids", pd.DataFrame(new_ids, columns=["model", "origin_index", "run_id"]))
     try:
         ready = f"{frame.stage.ready} r JOIN _new_ids n ON n.model = r.model AND n.origin_index = r.origin_index"
-        order = "ORDER BY r.model, r.origin_index, r.series, r.period_index"
         con.execute(f"INSERT INTO forecasts SELECT n.run_id, r.series, r.period, r.period_index, "
-                    f"r.period_index - r.origin_index, r.point FROM {ready} {order}")
+                    f"r.period_index - r.origin_index, r.point FROM {ready}")
         for i, level in enumerate(frame.levels):
             con.execute(f"INSERT INTO bounds SELECT n.run_id, r.series, r.period_index, ?, r.lo_{i}, r.hi_{i} "
-                        f"FROM {ready} WHERE r.lo_{i} IS NOT NULL {order}", [level])
+                        f"FROM {ready} WHERE r.lo_{i} IS NOT NULL", [level])
         for j, tau in enumerate(frame.taus):
             con.execute(f"INSERT INTO quantiles SELECT n.run_id, r.series, r.period_index, ?, r.q_{j} "
-                        f"FROM {ready} WHERE r.q_{j} IS NOT NULL {order}", [tau])
+                        f"FROM {ready} WHERE r.q_{j} IS NOT NULL", [tau])
     finally:
         with contextlib.suppress(duckdb.Error):    # after a failed write the first error is the news
             con.unregister("_new_ids")

@@ -80,26 +80,23 @@ class Selection:
     def params(self) -> dict:
         out = {"as_of": self.as_of}
         if self.since:
-            out["since"] = _since_date(self.since)
+            out["since"] = _label_day(self.since, "--since")[1]
         if self.until:
-            out["until"] = _until_date(self.until)
+            out["until"] = _day_after(self.until)
         return out
 
 
-def _since_date(label: str) -> dt.date:
+def _label_day(label: str, option: str) -> tuple[str | None, dt.date]:
+    """parse_label's (frequency, day) of a period label; a bad label is an error naming the option."""
     try:
-        _, day = parse_label(label)
+        return parse_label(label)
     except ValueError as exc:
-        raise LedgerError(f"--since: {exc}") from None
-    return day
+        raise LedgerError(f"{option}: {exc}") from None
 
 
-def _until_date(label: str) -> dt.date:
+def _day_after(label: str) -> dt.date:
     """The first day after the labelled period, so --until 2026-06 includes all of June."""
-    try:
-        freq, day = parse_label(label)
-    except ValueError as exc:
-        raise LedgerError(f"--until: {exc}") from None
+    freq, day = _label_day(label, "--until")
     if freq is None:
         return day + dt.timedelta(days=1)
     return index_start(period_index(day, freq) + 1, freq)

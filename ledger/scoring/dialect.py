@@ -17,7 +17,7 @@ delete rows of it      ``DELETE FROM t WHERE c``   the view replaced by its rows
 drop it                ``DROP TABLE IF EXISTS t``  uncache and drop the view
 =====================  ==========================  ==============================
 
-One more difference is not SQL: DuckDB's aggregates run on one thread over cells in key order
+One more difference is not SQL: DuckDB's sums are fixed-point 128-bit integer sums
 (:mod:`ledger.scoring.repeatable`) so that the same ledger prints the same bytes; Spark sums in
 partitions in whatever order they finish, so its last digits can differ from run to run (the
 parity tests allow 1e-9 relative).

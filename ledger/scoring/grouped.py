@@ -34,6 +34,7 @@ import pandas as pd
 
 from ..errors import UnknownName
 from ..periods import period_label
+from ..stats.quantiles import TAU_DIGITS
 from ..store import Store, latest_actuals_sql, live_runs_sql
 from ..wording import format_level
 from .attributes import attributes_sql, check_attribute, known_attributes
@@ -44,7 +45,8 @@ from .repeatable import sums_for
 
 __all__ = ["scores"]
 
-_TEMPS = ("_s_act", "_s_scale", "_s_ex", "_s_runs", "_s_levels", "_s_cellk", "_s_attrs", "_scored")
+_TEMPS = ("_s_act", "_s_scale", "_s_ex", "_s_runs", "_s_levels", "_s_qlevels", "_s_pairs", "_s_qroles", "_s_over",
+          "_s_cellk", "_s_attrs", "_scored")
 _WIS_SUMS = ("s_disp", "s_over", "s_under", "s_wisq")
 
 
@@ -68,14 +70,16 @@ def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"
             con.execute("SET enable_progress_bar = false")
         point = plan.run(plan.point_sql(), plan.params).df()
         bounds = plan.run(plan.bounds_sql(), plan.params).df()
-        general = detail = None
+        quant = general = slow_detail = None
         if plan.has_quantiles:
+            quant = plan.run(plan.quantiles_sql(), plan.params).df()
+        if plan.slow_quantiles:   # runs whose cells lack some of the run's levels: cell by cell
             plan.materialise_quantile_cells()
             general = con.execute(wis_group_sql("_scored", plan.select_keys, plan.group, plan.sums,
-                                                 plan.bound)).df()
+                                                plan.bound)).df()
             if quantile_detail:
-                detail = con.execute(quantile_detail_sql("_scored", plan.select_keys, plan.group, plan.sums,
-                                                         plan.bound)).df()
+                slow_detail = con.execute(quantile_detail_sql("_scored", plan.select_keys, plan.group, plan.sums,
+                                                              plan.bound)).df()
     finally:
         for table in _TEMPS:
             con.execute(f"DROP TABLE IF EXISTS {table}")
@@ -83,9 +87,11 @@ def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"
     freqs = sorted(set(point["m_freq_min"].dropna()) | set(point["m_freq_max"].dropna()))
     point = _with_excluded(point, excluded, keys)
     levels, wis_rows = _levels(bounds, keys)
-    wis = _wis(point, wis_rows, general, keys)
-    pinball = general[keys + ["pinball"]] if general is not None else pd.DataFrame()
-    point = point.drop(columns=[c for c in point.columns if c.startswith("m_") or c in ("n_w", "n_wq")])
+    per_tau = _per_tau(quant, slow_detail, keys)
+    qrows = _sum_over_taus(quant, keys) if quant is not None else None
+    wis, pinball = _wis(point, wis_rows, qrows, general, keys)
+    detail = _detail(per_tau, keys) if quantile_detail and per_tau is not None else None
+    point = point.drop(columns=[c for c in point.columns if c.startswith("m_") or c in ("n_w", "n_wq", "n_cq")])
     return _assemble(point, levels, pinball, keys, freqs, (wis, detail))
 
 
@@ -121,19 +127,46 @@ class _Plan:
                     f"FROM bounds b JOIN live l ON l.run_id = b.run_id WHERE TRUE {models} "
                     f"GROUP BY b.run_id, b.level", {**as_of, **mparams})
         self.has_quantiles = len(con.run("SELECT run_id FROM quantiles LIMIT 1").fetchall()) > 0
-        has_q = "l.run_id IN (SELECT run_id FROM quantiles)" if self.has_quantiles else "FALSE"
+        if self.has_quantiles:
+            con.run(f"CREATE OR REPLACE TEMP TABLE _s_qlevels AS WITH live AS ({live_runs_sql()}) "
+                    f"SELECT q.run_id, round(q.tau, {TAU_DIGITS}) AS tau, count(*) AS n, max(abs(q.value)) AS size "
+                    f"FROM quantiles q JOIN live l ON l.run_id = q.run_id WHERE TRUE {models} "
+                    f"GROUP BY q.run_id, round(q.tau, {TAU_DIGITS})", {**as_of, **mparams})
+            self._quantile_roles()
+        qruns = ("LEFT JOIN (SELECT v.run_id, count(*) AS n_tau, max(CASE WHEN v.tau = 0.5 THEN 1 ELSE 0 END) = 1 "
+                 "AS has_median, min(CASE WHEN v.n = r2.n_cells THEN 1 ELSE 0 END) = 1 AS complete_q "
+                 "FROM _s_qlevels v JOIN runs r2 ON r2.run_id = v.run_id GROUP BY v.run_id) qk ON qk.run_id = l.run_id "
+                 "LEFT JOIN (SELECT run_id, count(*) AS n_pairs FROM _s_pairs GROUP BY run_id) pk ON pk.run_id = l.run_id "
+                 "LEFT JOIN (SELECT run_id, count(*) AS n_over FROM _s_over GROUP BY run_id) ok ON ok.run_id = l.run_id"
+                 if self.has_quantiles else "")
+        if self.has_quantiles:
+            has_q, n_tau, median = "qk.run_id IS NOT NULL", "coalesce(qk.n_tau, 0)", "coalesce(qk.has_median, FALSE)"
+            fast = "coalesce(qk.complete_q, FALSE) AND coalesce(k.complete, TRUE)"
+            k_q = "coalesce(pk.n_pairs, 0) + coalesce(k.k, 0) - coalesce(ok.n_over, 0)"
+        else:
+            has_q, n_tau, median, fast, k_q = "FALSE", "0", "FALSE", "FALSE", "0"
+        # has_q: the run has quantiles; fast_q: and every cell has all its quantile levels and all its
+        # bound levels, so its WIS is summed row by row; wis_rows: the scans sum this run's WIS;
+        # k: the cell's central intervals (its bound levels, or its pairs plus the bounds they leave)
         con.run(f"""
             CREATE OR REPLACE TEMP TABLE _s_runs AS WITH live AS ({live_runs_sql()})
-            SELECT l.run_id, l.model, l.frequency, l.origin, l.origin_index, {has_q} AS has_q,
-                   coalesce(k.k, 0) AS k, coalesce(k.complete, TRUE) AS complete
-            FROM live l JOIN runs r ON r.run_id = l.run_id
-            LEFT JOIN (SELECT v.run_id, count(*) AS k,
-                              min(CASE WHEN v.n = r2.n_cells THEN 1 ELSE 0 END) = 1 AS complete
-                       FROM _s_levels v JOIN runs r2 ON r2.run_id = v.run_id GROUP BY v.run_id) k
-                   ON k.run_id = l.run_id
-            WHERE TRUE {models}""", {**as_of, **mparams})
+            SELECT run_id, model, frequency, origin, origin_index, has_q, fast_q, has_median, n_tau, complete,
+                   NOT has_q OR fast_q AS wis_rows, CASE WHEN fast_q THEN k_q ELSE k_b END AS k
+            FROM (
+                SELECT l.run_id, l.model, l.frequency, l.origin, l.origin_index, {has_q} AS has_q,
+                       {has_q} AND {fast} AS fast_q, {median} AS has_median, {n_tau} AS n_tau,
+                       coalesce(k.k, 0) AS k_b, {k_q} AS k_q, coalesce(k.complete, TRUE) AS complete
+                FROM live l JOIN runs r ON r.run_id = l.run_id
+                LEFT JOIN (SELECT v.run_id, count(*) AS k,
+                                  min(CASE WHEN v.n = r2.n_cells THEN 1 ELSE 0 END) = 1 AS complete
+                           FROM _s_levels v JOIN runs r2 ON r2.run_id = v.run_id GROUP BY v.run_id) k
+                       ON k.run_id = l.run_id
+                {qruns}
+                WHERE TRUE {models}) t""", {**as_of, **mparams})
         self.has_quantiles = self.has_quantiles and len(
             con.run("SELECT run_id FROM _s_runs WHERE has_q LIMIT 1").fetchall()) > 0
+        self.slow_quantiles = self.has_quantiles and len(
+            con.run("SELECT run_id FROM _s_runs WHERE has_q AND NOT fast_q LIMIT 1").fetchall()) > 0
         # a run whose cells carry different numbers of levels: each cell's K, from its own bounds
         self.per_cell_k = len(con.run("SELECT run_id FROM _s_runs WHERE NOT complete LIMIT 1").fetchall()) > 0
         if self.per_cell_k:
@@ -164,11 +197,30 @@ class _Plan:
             SELECT (SELECT max(abs(value)) FROM _s_act), (SELECT min(abs(value)) FROM _s_act WHERE value <> 0),
                    (SELECT max(abs(point)) FROM forecasts), (SELECT max(size) FROM _s_levels),
                    (SELECT max(level) FROM _s_levels), (SELECT min(q) FROM _s_scale), (SELECT min(q2) FROM _s_scale),
-                   (SELECT max(abs(value)) FROM quantiles), (SELECT count(*) FROM forecasts),
-                   (SELECT count(*) FROM bounds), (SELECT count(DISTINCT tau) FROM quantiles)""").fetchone()
+                   {q_size}, (SELECT count(*) FROM forecasts),
+                   (SELECT count(*) FROM bounds), {n_tau}, (SELECT count(*) FROM quantiles)""".format(
+            q_size="(SELECT max(size) FROM _s_qlevels)" if self.has_quantiles else "NULL",
+            n_tau="(SELECT count(DISTINCT tau) FROM _s_qlevels)" if self.has_quantiles else "0")).fetchone()
         self._bounds(*stats)
 
-    def _bounds(self, y_max, y_min, p_max, b_max, level_max, q_min, q2_min, v_max, n_fc, n_b, n_tau) -> None:
+    def _quantile_roles(self) -> None:
+        """Per run: its symmetric quantile pairs (_s_pairs), each level's part in the WIS (_s_qroles:
+        1 lower and 2 upper of a pair, 3 the median, 0 unpaired) and the bound levels a pair
+        overrides (_s_over; see ledger.scoring.quantile_sql)."""
+        d = TAU_DIGITS
+        self.run(f"CREATE OR REPLACE TEMP TABLE _s_pairs AS SELECT a.run_id, a.tau AS tau_lo, round(2 * a.tau, {d}) "
+                 f"AS alpha FROM _s_qlevels a JOIN _s_qlevels b ON b.run_id = a.run_id AND b.tau = round(1 - a.tau, {d}) "
+                 f"WHERE a.tau < 0.5")
+        self.run(f"""CREATE OR REPLACE TEMP TABLE _s_qroles AS
+                 SELECT v.run_id, v.tau, CASE WHEN p.run_id IS NOT NULL THEN 1 WHEN h.run_id IS NOT NULL THEN 2
+                                              WHEN v.tau = 0.5 THEN 3 ELSE 0 END AS role
+                 FROM _s_qlevels v
+                 LEFT JOIN _s_pairs p ON p.run_id = v.run_id AND p.tau_lo = v.tau
+                 LEFT JOIN _s_pairs h ON h.run_id = v.run_id AND round(1 - h.tau_lo, {d}) = v.tau""")
+        self.run(f"CREATE OR REPLACE TEMP TABLE _s_over AS SELECT DISTINCT b.run_id, b.level FROM _s_levels b "
+                 f"JOIN _s_pairs p ON p.run_id = b.run_id AND p.alpha = round(1 - b.level / 100, {d})")
+
+    def _bounds(self, y_max, y_min, p_max, b_max, level_max, q_min, q2_min, v_max, n_fc, n_b, n_tau, n_qt) -> None:
         """Upper bounds on every summed value (loose, but sound: see ledger.scoring.repeatable)."""
         y, p, b, v = (float(x or 0.0) for x in (y_max, p_max, b_max, v_max))
         m = max(y, p, b, v)                       # every actual, forecast, bound and quantile
@@ -182,7 +234,7 @@ class _Plan:
             "wis": 10 * m + interval, "wis_q": (10 * m + interval) / float(q_min or 1.0),
             "crps": 4 * m, "pinball_row": 2 * m, "pinball_cell": 2 * m * max(int(n_tau or 0), 1),
         }
-        self.sums = sums_for(self.con, max(int(n_fc or 0), int(n_b or 0), 1))
+        self.sums = sums_for(self.con, max(int(n_fc or 0), int(n_b or 0), int(n_qt or 0), 1))
 
     # -- the scans -------------------------------------------------------------------------
     def _from(self, table: str, alias: str, horizon: str, period: str) -> tuple[str, dict]:
@@ -222,7 +274,7 @@ class _Plan:
         self.params.update(params)
         s, bd = self.sums, self.bound
         e, k = "(a.value - f.point)", self._k()
-        wis_cell = f"CASE WHEN {k} > 0 AND NOT r.has_q THEN"
+        wis_cell = f"CASE WHEN {k} > 0 AND r.wis_rows AND NOT r.has_median THEN"   # the point is the median
         excluded = "ex.series IS NOT NULL" if not self.sel.include_excluded else "FALSE"
         group = ", ".join([*self._key_exprs("f", "f.horizon", "f.period"), excluded])
         return f"""
@@ -239,8 +291,9 @@ class _Plan:
             {s.mean(e, bd["e"])} AS bias,
             count(*) FILTER (WHERE a.value = 0) AS n_zero_actual,
             count(*) FILTER (WHERE sc.q IS NULL OR sc.q2 IS NULL) AS n_unscaled,
-            count(*) FILTER (WHERE {k} > 0 AND NOT r.has_q) AS n_w,
-            count(*) FILTER (WHERE {k} > 0 AND NOT r.has_q AND sc.q IS NOT NULL) AS n_wq,
+            count(*) FILTER (WHERE {k} > 0 AND r.wis_rows) AS n_w,
+            count(*) FILTER (WHERE {k} > 0 AND r.wis_rows AND sc.q IS NOT NULL) AS n_wq,
+            count(*) FILTER (WHERE r.fast_q) AS n_cq,
             {s.total(f"{wis_cell} 0.5 * greatest(f.point - a.value, 0) / ({k} + 0.5) END", bd["e"])} AS m_over,
             {s.total(f"{wis_cell} 0.5 * greatest(a.value - f.point, 0) / ({k} + 0.5) END", bd["e"])} AS m_under,
             {s.total(f"{wis_cell} 0.5 * abs({e}) / ({k} + 0.5) / sc.q END", bd["ae_q"])} AS m_wisq
@@ -252,13 +305,15 @@ class _Plan:
         cell's WIS (runs without quantiles; excluded cells left out unless included)."""
         horizon = "(b.period_index - r.origin_index)"
         frm, params = self._from("bounds", "b", horizon, "a.period")
+        if self.has_quantiles:   # bound levels that a quantile pair of the run overrides
+            frm = frm.replace(" WHERE TRUE", " LEFT JOIN _s_over ov ON ov.run_id = b.run_id AND ov.level = b.level WHERE TRUE", 1)
         self.params.update(params)
         s, bd = self.sums, self.bound
         y, k = "a.value", self._k()
         penalty = (f"(2 / (1 - b.level / 100)) * greatest(b.lower - {y}, 0) "
                    f"+ (2 / (1 - b.level / 100)) * greatest({y} - b.upper, 0)")
         score = f"((b.upper - b.lower) + {penalty})"
-        share = "CASE WHEN NOT r.has_q THEN"
+        share = "CASE WHEN r.wis_rows AND ov.run_id IS NULL THEN" if self.has_quantiles else "CASE WHEN TRUE THEN"
         disp = f"round(1 - b.level / 100, 9) / 2 * (b.upper - b.lower) / ({k} + 0.5)"
         over = f"greatest(b.lower - {y}, 0) / ({k} + 0.5)"
         under = f"greatest({y} - b.upper, 0) / ({k} + 0.5)"
@@ -278,6 +333,35 @@ class _Plan:
         {frm}{keep}
         GROUP BY {group}"""
 
+    def quantiles_sql(self) -> str:
+        """Per group and quantile level, over the quantile rows of runs summed row by row (fast_q):
+        rows, actuals below, pinball sum, crps_q share, and each row's share of its cell's WIS."""
+        horizon = "(qt.period_index - r.origin_index)"
+        frm, params = self._from("quantiles", "qt", horizon, "a.period")
+        frm = frm.replace(" WHERE TRUE", f" JOIN _s_qroles ro ON ro.run_id = qt.run_id AND ro.tau = round(qt.tau, {TAU_DIGITS}) "
+                                         "WHERE r.fast_q", 1)
+        self.params.update(params)
+        s, bd = self.sums, self.bound
+        y, v, tau, k = "a.value", "qt.value", "ro.tau", "r.k"
+        loss = f"CASE WHEN {y} >= {v} THEN {tau} * ({y} - {v}) ELSE (1 - {tau}) * ({v} - {y}) END"
+        disp = f"CASE ro.role WHEN 1 THEN -{tau} * {v} WHEN 2 THEN (1 - {tau}) * {v} ELSE 0 END / ({k} + 0.5)"
+        over = f"CASE ro.role WHEN 1 THEN greatest({v} - {y}, 0) WHEN 3 THEN 0.5 * greatest({v} - {y}, 0) ELSE 0 END / ({k} + 0.5)"
+        under = f"CASE ro.role WHEN 2 THEN greatest({y} - {v}, 0) WHEN 3 THEN 0.5 * greatest({y} - {v}, 0) ELSE 0 END / ({k} + 0.5)"
+        wis = f"CASE WHEN {k} > 0 THEN"
+        keep = "" if self.sel.include_excluded else " AND ex.series IS NULL"
+        group = ", ".join([*self._key_exprs("qt", horizon, "a.period"), tau])
+        return f"""
+        SELECT {self._key_sql('qt', horizon, 'a.period')}{tau} AS tau,
+            count(*) AS n, count(*) FILTER (WHERE {y} < {v}) AS n_below,
+            {s.total(loss, bd["pinball_row"])} AS s_pin,
+            {s.total(f"2 * ({loss}) / r.n_tau", bd["crps"])} AS s_crps,
+            {s.total(f"{wis} {disp} END", bd["wis"])} AS s_disp,
+            {s.total(f"{wis} {over} END", bd["wis"])} AS s_over,
+            {s.total(f"{wis} {under} END", bd["wis"])} AS s_under,
+            {s.total(f"{wis} ({disp} + {over} + {under}) / sc.q END", bd["wis_q"])} AS s_wisq
+        {frm}{keep}
+        GROUP BY {group}"""
+
     def materialise_quantile_cells(self) -> None:
         """_scored: the selected cells of runs with quantiles (not excluded), with an integer
         cell_id, the key columns and what the general WIS query reads."""
@@ -289,7 +373,7 @@ class _Plan:
             CREATE OR REPLACE TEMP TABLE _scored AS
             SELECT row_number() {number} AS cell_id, {self._key_sql('f', 'f.horizon', 'f.period', 'k__')}
                    f.run_id, f.series, f.period_index, f.point, a.value AS actual, sc.q
-            {frm} AND r.has_q{keep}""", params)
+            {frm} AND r.has_q AND NOT r.fast_q{keep}""", params)
 
 
 def _check_keys(store: Store, sel: Selection, by: Sequence[str]) -> list[str]:
@@ -353,41 +437,76 @@ def _ordered_sum(values: pd.Series) -> float:
     return out if seen else float("nan")
 
 
-def _wis(point: pd.DataFrame, rows: pd.DataFrame, general: pd.DataFrame | None, keys: list[str]) -> pd.DataFrame:
-    """Per group: the WIS columns from the sums of the bounds rows, the cells' median terms and
-    the general query (runs with quantiles), each over the cells that have a central interval."""
-    cells = point[keys + ["n_w", "n_wq", "m_over", "m_under", "m_wisq"]]
-    both = cells.merge(rows, on=keys, how="left") if keys else pd.concat([cells, rows], axis=1)
-    g = None
-    if general is not None:
-        g = both[keys].merge(general, on=keys, how="left") if keys else general.reindex([0])
+_QSUMS = ("n", "n_below", "s_pin", "s_crps", "s_disp", "s_over", "s_under", "s_wisq")
+
+
+def _sum_over_taus(quant: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
+    """Per group: the quantile scan's sums added over the levels, in increasing tau."""
+    q = quant.sort_values(keys + ["tau"], kind="stable")
+    if not keys:
+        return pd.DataFrame([{c: _ordered_sum(q[c]) for c in _QSUMS}])
+    return q.groupby(keys, sort=False, dropna=False)[list(_QSUMS)].agg(_ordered_sum).reset_index()
+
+
+def _per_tau(quant: pd.DataFrame | None, slow: pd.DataFrame | None, keys: list[str]) -> pd.DataFrame | None:
+    """Per group and level: rows, actuals below and pinball sum, from the scan and the cell-by-cell query."""
+    parts = [p[keys + ["tau", "n", "n_below", "s_pin"]] for p in (quant, slow) if p is not None and len(p)]
+    if not parts:
+        return None
+    both = pd.concat(parts, ignore_index=True)
+    return both.groupby(keys + ["tau"], sort=True, dropna=False)[["n", "n_below", "s_pin"]].agg(
+        {"n": "sum", "n_below": "sum", "s_pin": _ordered_sum}).reset_index()
+
+
+def _detail(per_tau: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
+    return per_tau[keys + ["tau"]].assign(below=per_tau["n_below"] / per_tau["n"], pinball=per_tau["s_pin"] / per_tau["n"])
+
+
+def _wis(point: pd.DataFrame, rows: pd.DataFrame, qrows: pd.DataFrame | None, general: pd.DataFrame | None,
+         keys: list[str]) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Per group: the WIS columns (and the mean pinball loss) from the sums of the bounds rows,
+    the quantile rows, the cells' own terms and the cell-by-cell query, over the cells that
+    have a central interval (crps_q: that have quantiles). The parts are added in that order."""
+    cells = point[keys + ["n_w", "n_wq", "n_cq", "m_over", "m_under", "m_wisq"]].reset_index(drop=True)
+
+    def aligned(frame):
+        if frame is None:
+            return None
+        if not keys:
+            return frame.reindex([0]).reset_index(drop=True)
+        return cells[keys].merge(frame, on=keys, how="left")
+
+    b, q, g = aligned(rows), aligned(qrows), aligned(general)
 
     def add(*parts):
-        out = pd.Series(0.0, index=range(len(both)))
-        for part in parts:
-            if isinstance(part, pd.Series):
-                out = out + pd.to_numeric(part, errors="coerce").reset_index(drop=True).fillna(0.0)
+        out = pd.Series(0.0, index=range(len(cells)))
+        for frame, column in parts:
+            if frame is not None:
+                out = out + pd.to_numeric(frame[column], errors="coerce").reset_index(drop=True).fillna(0.0)
         return out
 
-    def gen(column):
-        return g[column] if g is not None else None
-
-    n_w = add(both["n_w"], gen("n_wis"))
-    n_wq = add(both["n_wq"], gen("n_swis"))
-    disp = add(both["s_disp"], gen("s_disp"))
-    over = add(both["m_over"], both["s_over"], gen("s_over"))
-    under = add(both["m_under"], both["s_under"], gen("s_under"))
-    wisq = add(both["m_wisq"], both["s_wisq"], gen("s_wisq"))
-    out = both[keys].reset_index(drop=True).copy()
+    c = cells
+    n_w = add((c, "n_w"), (g, "n_wis"))
+    n_wq = add((c, "n_wq"), (g, "n_swis"))
+    disp = add((b, "s_disp"), (q, "s_disp"), (g, "s_disp"))
+    over = add((c, "m_over"), (b, "s_over"), (q, "s_over"), (g, "s_over"))
+    under = add((c, "m_under"), (b, "s_under"), (q, "s_under"), (g, "s_under"))
+    wisq = add((c, "m_wisq"), (b, "s_wisq"), (q, "s_wisq"), (g, "s_wisq"))
+    n_crps = add((c, "n_cq"), (g, "n_crps"))
+    crps = add((q, "s_crps"), (g, "s_crps"))
+    n_pin = add((q, "n"), (g, "n_pin"))
+    pin = add((q, "s_pin"), (g, "s_pin"))
+    out = c[keys].copy()
     has = n_w > 0
     out["wis"] = ((disp + over + under) / n_w).where(has)
     out["wis_dispersion"] = (disp / n_w).where(has)
     out["wis_overprediction"] = (over / n_w).where(has)
     out["wis_underprediction"] = (under / n_w).where(has)
     out["swis"] = (wisq / n_wq).where(n_wq > 0)
-    out["crps_q"] = ((g["s_crps"] / g["n_crps"]).where(g["n_crps"] > 0).reset_index(drop=True)
-                     if g is not None else float("nan"))
-    return out
+    out["crps_q"] = (crps / n_crps).where(n_crps > 0)
+    pinball = c[keys].assign(pinball=(pin / n_pin).where(n_pin > 0)) if (q is not None or g is not None) \
+        else pd.DataFrame()
+    return out, pinball
 
 
 def _assemble(point: pd.DataFrame, levels: pd.DataFrame, pinball: pd.DataFrame,

@@ -134,8 +134,8 @@ def _per_cell_ctes(cells: str) -> str:
 def wis_group_sql(cells: str, select_keys: str, group: str, sums: Sums, bound: dict[str, float]) -> str:
     """SQL: per group of ``cells`` (alias ``c`` in the key expressions), the sums and counts the
     WIS columns are means of: n_wis (cells with a WIS), s_disp, s_over, s_under (their parts),
-    n_swis and s_wisq (cells with a WIS and a scale; Σ WIS/q), n_crps and s_crps, and pinball
-    (the mean pinball loss over the group's quantile rows, from the same pass over them).
+    n_swis and s_wisq (cells with a WIS and a scale; Σ WIS/q), n_crps and s_crps, and n_pin and
+    s_pin (the group's quantile rows and the sum of their pinball losses, from the same pass).
 
     ``select_keys``/``group``: the key expressions (empty strings for one group over all cells);
     ``sums`` and ``bound`` (upper bounds on "wis", "wis_q", "crps" and "pinball_cell") make the
@@ -150,21 +150,22 @@ def wis_group_sql(cells: str, select_keys: str, group: str, sums: Sums, bound: d
            {sums.total("c.wis_underprediction", bound["wis"])} AS s_under,
            count(c.wis / c.q) AS n_swis, {sums.total("c.wis / c.q", bound["wis_q"])} AS s_wisq,
            count(c.crps_q) AS n_crps, {sums.total("c.crps_q", bound["crps"])} AS s_crps,
-           {sums.total("c.pinball_sum", bound["pinball_cell"])} / sum(c.n_q) AS pinball
+           {sums.total("c.pinball_sum", bound["pinball_cell"])} AS s_pin, sum(c.n_q) AS n_pin
     FROM ({wis_cells_sql(cells)}) c
     {gb}"""
 
 
 def quantile_detail_sql(cells: str, select_keys: str, group: str, sums: Sums, bound: dict[str, float]) -> str:
-    """SQL: per group and quantile level tau, the share of actuals below q_tau and its mean pinball loss."""
+    """SQL: per group and quantile level tau, the rows (n), the actuals below q_tau (n_below) and
+    the sum of the pinball losses (s_pin)."""
     keys = select_keys + "," if select_keys else ""
     d = TAU_DIGITS
-    loss = ("CASE WHEN c.actual >= qt.value THEN qt.tau * (c.actual - qt.value) "
-            "ELSE (1 - qt.tau) * (qt.value - c.actual) END")
+    loss = (f"CASE WHEN c.actual >= qt.value THEN round(qt.tau, {d}) * (c.actual - qt.value) "
+            f"ELSE (1 - round(qt.tau, {d})) * (qt.value - c.actual) END")
     return f"""
-    SELECT {keys} round(qt.tau, {d}) AS tau,
-           CAST(count(*) FILTER (WHERE c.actual < qt.value) AS DOUBLE) / count(*) AS below,
-           {sums.mean(loss, bound["pinball_row"])} AS pinball
+    SELECT {keys} round(qt.tau, {d}) AS tau, count(*) AS n,
+           count(*) FILTER (WHERE c.actual < qt.value) AS n_below,
+           {sums.total(loss, bound["pinball_row"])} AS s_pin
     FROM {cells} c JOIN quantiles qt ON {_on('qt', 'c')}
     GROUP BY {group + ',' if group else ''} round(qt.tau, {d})"""
 

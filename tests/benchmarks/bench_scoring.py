@@ -13,7 +13,9 @@ Targets (2 cores): 1M cells snapshotted in under 10 s; ``backsight scores --by m
 over 1M cells with two interval levels in 1.2 s, start-up included; 10M cells scored in under
 20 s under 4 GB.
 With ``--quantiles K`` every forecast also carries K evenly spaced quantiles (K = 9: q10..q90)
-and the WIS query is timed on its own; target: 1M cells × 9 quantiles scored with WIS in 3 s.
+and the scores with WIS are timed again; target: 1M cells × 9 quantiles scored with WIS in 3 s.
+Every time is printed with its CPU time (user + system over all threads) and the load average:
+on a shared machine the CPU time is the steadier figure.
 """
 
 from __future__ import annotations
@@ -90,15 +92,18 @@ def _load() -> str:
     return "load average " + " ".join(f"{x:.1f}" for x in os.getloadavg())
 
 
-def _run_child(code: str, args: list[str], src: Path | None = None) -> float:
-    """Wall time of a fresh Python process, start-up included."""
+def _run_child(code: str, args: list[str], src: Path | None = None) -> tuple[float, float]:
+    """Wall time and CPU time (user + system, all threads) of a fresh Python process, start-up included."""
     env = dict(os.environ)
     if src is not None:
         env["PYTHONPATH"] = str(src)
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     t = time.perf_counter()
     subprocess.run([sys.executable, "-c", code, *args], check=True, stdout=subprocess.DEVNULL,
                    stderr=subprocess.DEVNULL, env=env)
-    return time.perf_counter() - t
+    wall = time.perf_counter() - t
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return wall, (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
 
 
 def side_by_side(path: Path, folder: Path, before: Path | None, rounds: int) -> None:
@@ -113,7 +118,8 @@ def side_by_side(path: Path, folder: Path, before: Path | None, rounds: int) -> 
     times: dict[str, list[str]] = {name: [] for name, *_ in cases}
     for _ in range(rounds):
         for name, code, args, src in cases:
-            times[name].append(f"{_run_child(code, args, src):.2f} s ({_load()})")
+            wall, cpu = _run_child(code, args, src)
+            times[name].append(f"{wall:.2f} s wall, {cpu:.2f} s CPU ({_load()})")
     for name, runs in times.items():
         print(f"{name}: " + "; ".join(runs))
 
@@ -181,20 +187,12 @@ def _cpu() -> float:
 
 
 def _time_wis(book) -> None:
-    from ledger.scoring.cells import cells_sql
-    from ledger.scoring.quantile_sql import wis_group_sql
-    sel = book.selection()
-    sql, params = cells_sql(sel)
-    con = book.store.con
-    t = time.perf_counter()
-    con.execute(f"CREATE OR REPLACE TEMP TABLE _bench AS SELECT row_number() OVER () AS cell_id, * FROM ({sql})",
-                params)
-    made = time.perf_counter() - t
+    """The quantile case: scores with WIS (quantile rows summed row by row), wall and CPU time."""
     t, cpu = time.perf_counter(), _cpu()
-    frame = con.execute(wis_group_sql("_bench", "c.model AS model, c.horizon AS horizon", "c.model, c.horizon")).df()
-    print(f"WIS by model×horizon: {len(frame):,} groups in {time.perf_counter() - t:.2f} s wall, "
-          f"{_cpu() - cpu:.2f} s CPU (cells table built first in {made:.2f} s; {_load()})")
-    con.execute("DROP TABLE _bench")
+    frame = book.scores(by=["model", "horizon"])
+    assert frame["wis"].notna().all() and frame["crps_q"].notna().all()
+    print(f"scores with WIS and crps_q by model×horizon: {len(frame):,} groups in {time.perf_counter() - t:.2f} s "
+          f"wall, {_cpu() - cpu:.2f} s CPU ({_load()})")
 
 
 def main() -> None:
@@ -236,9 +234,10 @@ def main() -> None:
         print(f"snapshot: {n_runs} runs from {len(fc_paths)} back-fill CSVs, {rows:,} rows in {dt:.2f} s "
               f"= {rows / dt:,.0f} rows/s")
         for by in (["model", "horizon"], ["series", "model"]):
-            t = time.perf_counter()
+            t, cpu = time.perf_counter(), _cpu()
             frame = book.scores(by=by)
-            print(f"scores by {'×'.join(by)}: {len(frame):,} groups in {time.perf_counter() - t:.2f} s")
+            print(f"scores by {'×'.join(by)}: {len(frame):,} groups in {time.perf_counter() - t:.2f} s wall, "
+                  f"{_cpu() - cpu:.2f} s CPU ({_load()})")
         if args.quantiles:
             _time_wis(book)
     print(f"peak RSS of this process (building and snapshotting): {_peak_rss_mb():,.0f} MB")

@@ -33,10 +33,12 @@ def filled(tmp_path):
 
 
 def downgrade(path, version: int) -> None:
-    """Rewrite a current ledger as Backsight wrote schema ``version`` (1, 2 or 3)."""
+    """Rewrite a current ledger as Backsight wrote schema ``version`` (1 to 4)."""
     con = duckdb.connect(str(path))
+    con.execute("DROP TABLE overrides")                                        # new in version 5
     for table in ("events", "reviews", "review_findings", "review_models"):   # new in version 4
-        con.execute(f"DROP TABLE {table}")
+        if version <= 3:
+            con.execute(f"DROP TABLE {table}")
     if version <= 2:
         con.execute("DROP TABLE actual_writes")
         con.execute("ALTER TABLE actuals DROP COLUMN chain_hash")
@@ -51,7 +53,7 @@ def downgrade(path, version: int) -> None:
     con.close()
 
 
-@pytest.mark.parametrize("version", [1, 2, 3])
+@pytest.mark.parametrize("version", [1, 2, 3, 4])
 def test_older_schema_is_migrated_after_a_backup(filled, runner, version):
     before = table_hashes(filled)
     downgrade(filled, version)
@@ -73,6 +75,21 @@ def test_older_schema_is_migrated_after_a_backup(filled, runner, version):
                                             "lower_80": 0.5, "upper_80": 2.0, "q10": 0.25, "q90": 2.5}),
                               model="m", origin="2026-01")
         assert [r.status for r in again.runs] == ["unchanged"]    # re-sending is still a no-op
+
+
+def test_a_version_4_ledger_gets_an_empty_override_relation_it_can_record(filled):
+    with Ledger.open(filled) as book:
+        book.snapshot(pd.DataFrame({"series": ["a"], "period": "2026-02", "forecast": 2.0}), model="o", origin="2026-01")
+    downgrade(filled, 4)
+    with Ledger.open(filled) as book:
+        assert book.store.migrated[0] == 4
+        assert book.overrides() == {}
+        assert book.record_overrides({"o": "m"}).changed == 1
+        assert book.overrides() == {"o": "m"} and book.verify() == []
+    old = duckdb.connect(str(filled.with_name(filled.name + ".schema-v4.bak")), read_only=True)
+    tables = {r[0] for r in old.execute("SELECT table_name FROM information_schema.tables").fetchall()}
+    old.close()
+    assert "events" in tables and "overrides" not in tables           # the backup is the version-4 file
 
 
 def test_a_run_damaged_before_migration_stays_reported(filled):

@@ -6,6 +6,7 @@ patched call where a root test process cannot provoke them."""
 from __future__ import annotations
 
 import errno
+import hashlib
 import json
 import os
 import shutil
@@ -19,7 +20,7 @@ import pytest
 
 from ledger import Ledger
 from ledger.cli import app
-from ledger.errors import describe_os_error
+from ledger.errors import describe_os_error, naming_file
 
 from tests.helpers import REPO, table_hashes
 
@@ -47,6 +48,16 @@ def test_each_os_error_is_worded_with_its_path(code, needle):
     if code != errno.EEXIST:
         assert describe_os_error(duckdb.IOException(text)).startswith(needle)
     assert describe_os_error(ValueError("a bug, not the file system")) is None
+
+
+def test_a_write_that_names_no_file_gets_the_path():
+    # a failed write() or close() on an open file carries no file name; the path is added
+    with pytest.raises(OSError) as info, naming_file("/x/page.html"):
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+    assert describe_os_error(info.value).startswith("no space is left on the device holding /x/page.html;")
+    with pytest.raises(OSError) as info, naming_file("/x/page.html"):
+        raise OSError(errno.EACCES, os.strerror(errno.EACCES), "/y/other")
+    assert info.value.filename == "/y/other"          # a name it already has is kept
 
 
 def _one_error_line(result) -> str:
@@ -192,3 +203,115 @@ def test_a_reader_that_leaves_ends_the_command_quietly(tmp_path):
         err = child.stderr.read()
         assert (child.wait(timeout=120), err) == (1, b""), fmt
         assert first.startswith(head), (fmt, first)
+
+
+def _cli(*args, tmp_path) -> subprocess.CompletedProcess:
+    """``backsight ARGS`` in a fresh process; as root, without the capabilities that let root write
+    into any folder (so a folder of mode 555 refuses it, as it refuses everyone else)."""
+    prefix = []
+    if os.geteuid() == 0:
+        if shutil.which("setpriv") is None:
+            pytest.fail("this test needs setpriv (util-linux) to run a command as root without CAP_DAC_OVERRIDE")
+        prefix = ["setpriv", "--bounding-set=-dac_override,-dac_read_search,-fowner"]
+    return subprocess.run([*prefix, sys.executable, "-m", "ledger", *args], capture_output=True, text=True,
+                          env=dict(os.environ, PYTHONPATH=str(REPO)), cwd=tmp_path, timeout=300)
+
+
+def _only_error_line(done: subprocess.CompletedProcess) -> str:
+    assert done.returncode == 1, done.stderr
+    assert done.stdout == ""
+    lines = done.stderr.splitlines()
+    assert len(lines) == 1 and lines[0].startswith("Error: "), done.stderr
+    return lines[0]
+
+
+@pytest.fixture
+def small_report_ledger(tmp_path):
+    """A ledger with two series, five runs and bounds: a report of about 20 files, 300 kB."""
+    path = tmp_path / "r.duckdb"
+    months = [f"2025-{m:02d}" for m in range(1, 13)]
+    with Ledger.open(path) as book:
+        book.record_actuals(pd.DataFrame({"series": ["a"] * 12 + ["b"] * 12, "period": months * 2,
+                                          "actual": [float(i % 5 + 1) for i in range(24)]}))
+        for o in range(6, 11):
+            book.snapshot(pd.DataFrame({"series": ["a", "b"], "period": months[o + 1], "forecast": 2.5,
+                                        "lower_80": 1.0, "upper_80": 4.0}), model="m", origin=months[o])
+    return path
+
+
+def test_unwritable_report_folder(small_report_ledger, tmp_path):
+    before = table_hashes(small_report_ledger)
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    locked = tmp_path / "locked"
+    locked.mkdir()
+    for folder in (empty, locked):
+        folder.chmod(0o555)
+    try:
+        line = _only_error_line(_cli("--ledger", str(small_report_ledger), "report", str(empty), tmp_path=tmp_path))
+        assert line.startswith(f"Error: permission denied for {empty}/"), line
+        assert "make its folder writable" in line
+        new = locked / "new"
+        line = _only_error_line(_cli("--ledger", str(small_report_ledger), "report", str(new), tmp_path=tmp_path))
+        assert line.startswith(f"Error: permission denied for {new}; make its folder writable"), line
+        assert list(empty.iterdir()) == [] and list(locked.iterdir()) == []
+    finally:
+        for folder in (empty, locked):
+            folder.chmod(0o755)
+    assert table_hashes(small_report_ledger) == before
+
+
+def _file_hash(path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def test_unwritable_backup_folder_stops_the_migration(tmp_path):
+    from tests.core.test_migration import downgrade
+
+    folder = tmp_path / "old"
+    folder.mkdir()
+    path = folder / "l.duckdb"
+    with Ledger.open(path) as book:
+        book.record_actuals(pd.DataFrame({"series": ["a", "b"], "period": "2026-01", "actual": [1.0, 2.0]}))
+    downgrade(path, 3)
+    before = _file_hash(path)          # byte for byte: opening it with Backsight would migrate it
+    folder.chmod(0o555)                # no room for the backup copy beside it
+    try:
+        line = _only_error_line(_cli("--ledger", str(path), "runs", tmp_path=tmp_path))
+    finally:
+        folder.chmod(0o755)
+    assert line.startswith(f"Error: permission denied for {path}.schema-v3.bak; make its folder writable"), line
+    assert sorted(p.name for p in folder.iterdir()) == ["l.duckdb"] and _file_hash(path) == before
+    done = _cli("--ledger", str(path), "runs", tmp_path=tmp_path)      # writable again: migrates, one backup
+    assert done.returncode == 0 and f"the old file is kept at {path}.schema-v3.bak" in done.stderr
+
+
+REPORT_SCRIPT = """
+set -e
+mount -t tmpfs -o size=64k tmpfs "$1"
+set +e
+"$PY" -m ledger --ledger "$2" report "$1/site" --as-of 2100-01-01 > "$3/report.out" 2> "$3/report.err"
+echo $? > "$3/report.rc"
+"""
+
+
+def test_disk_full_during_a_report(small_report_ledger, tmp_path):
+    if shutil.which("unshare") is None or subprocess.run(["unshare", "-rm", "true"]).returncode != 0:
+        pytest.fail("this test needs `unshare -rm` to mount a private tmpfs (util-linux, user namespaces)")
+    before = table_hashes(small_report_ledger)
+    mount = tmp_path / "small"          # 64 kB: the report needs about 300 kB
+    mount.mkdir()
+    notes = tmp_path / "notes"
+    notes.mkdir()
+    env = dict(os.environ, PYTHONPATH=str(REPO), PY=sys.executable)
+    done = subprocess.run(["unshare", "-rm", "sh", "-c", textwrap.dedent(REPORT_SCRIPT), "sh", str(mount),
+                           str(small_report_ledger), str(notes)], capture_output=True, text=True, env=env, cwd=REPO,
+                          timeout=300)
+    assert done.returncode == 0, done.stderr
+    rc, out, err = ((notes / f"report.{k}").read_text() for k in ("rc", "out", "err"))
+    assert (rc.strip(), out) == ("1", "")
+    lines = err.splitlines()
+    assert len(lines) == 1, err
+    assert lines[0].startswith(f"Error: no space is left on the device holding {mount}/site/"), err
+    assert "free some space" in lines[0]
+    assert table_hashes(small_report_ledger) == before

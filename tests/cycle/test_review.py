@@ -151,10 +151,11 @@ def test_a_conflicting_run_refuses_the_review_after_staging(book, tmp_path):
     assert table_hashes(path) == before    # the month-2 actuals and runs were rolled back too
 
 
-def _store_review(store, review_id: int, keys: list[tuple[str, str]], mase: dict[str, float]) -> None:
+def _store_review(store, review_id: int, keys: list[tuple[str, str]], mase: dict[str, float],
+                  as_of: dt.datetime | None = None) -> None:
     """A stored review with the given (key, severity) findings and model MASE, written by hand."""
     store.con.execute("INSERT INTO reviews VALUES (?, ?, 'h', 'inbox', 0, 0, 0)",
-                      [review_id, dt.datetime(2026, review_id, 1)])
+                      [review_id, as_of or dt.datetime(2026, review_id, 1)])
     for key, severity in keys:
         kind, model, series, level, _ = key.split("|")
         store.con.execute("INSERT INTO review_findings VALUES (?, 0, ?, ?, ?, ?, ?, ?, '2026-01', 1.0, 'why')",
@@ -181,6 +182,21 @@ def test_changes_equal_a_hand_computed_diff(book):
     assert changes(book.store, since_review=1, mase_change=0.01).models.set_index("model").loc["b", "moved"]
     first = changes(book.store, since_review=2)
     assert first.then == 2 and first.findings["status"].tolist() == ["persisting", "persisting"]
+
+
+def test_the_latest_review_counts_whatever_the_wall_clock_says(book):
+    # A review's as-of is the ledger's clock, strictly after every recorded time; a wall clock set
+    # back (or records made while it ran ahead) can leave the newest review "in the future". The
+    # comparison then once fell back to the review before it, silently.
+    ahead = dt.datetime(2100, 1, 1)
+    _store_review(book.store, 1, [("drift|a|s1||", "act")], {"a": 0.8})
+    _store_review(book.store, 2, [("value|b|||", "act")], {"a": 0.9}, as_of=ahead)
+    got = changes(book.store)
+    assert (got.then, got.now) == (1, 2)
+    assert got.findings["status"].tolist() == ["new", "resolved"]
+    assert (book.changes().then, book.changes().now) == (1, 2)
+    earlier = changes(book.store, as_of=dt.datetime(2099, 1, 1))      # an explicit as-of still filters
+    assert (earlier.then, earlier.now) == (None, 1)
 
 
 def test_changes_of_real_reviews_match_the_sets_of_keys(book, tmp_path):

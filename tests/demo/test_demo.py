@@ -14,6 +14,9 @@ import pytest
 from ledger import Ledger
 from ledger.cli import app
 from ledger.cli.demo import summary_lines
+from ledger.demo import DEMO_OVERRIDES
+from ledger.findings.base import OVER_BASE
+from ledger.findings.summary import finding_counts
 
 COAST = {f"coast/{f}" for f in ("hoses", "seed", "soil", "tools", "planters")}
 
@@ -27,21 +30,51 @@ def demo(demo_site):
 
 
 def test_summary_printed(demo):
-    out, result, _ = demo
+    # Issue 15 item 6: one advice sentence (the report's), the top three findings one line each,
+    # three commands with the right --ledger; no per-horizon ranking block.
+    out, result, flags = demo
     lines = summary_lines(result)
     assert lines[0].startswith("Replayed Fernhollow Garden Supply (invented): 185 runs (39,960 forecasts), 1,905 actuals, "
                                "1 revision, 1 superseded run")
-    assert lines[1].startswith("Findings: ") and "drift" in lines[1] and "calibration" in lines[1]
-    assert lines[2] == "Lowest MASE by horizon (an estimate from past errors, not a promise):"
-    advice = [line for line in lines if line.startswith("Advice: ")]
-    assert len(advice) == 3 and any("incumbent-hw" in a for a in advice)       # one per challenger
-    top = lines.index("Top findings:")
-    assert [line[:5] for line in lines[top + 1:top + 4]] == ["  1. ", "  2. ", "  3. "]
-    tries = lines[lines.index("Try next:") + 1:-1]
-    ledger = f"--ledger {result.replay.ledger_path}"
-    assert len(tries) == 3 and all(t.startswith(f"  backsight {ledger} ") for t in tries)
-    assert len(lines) == 3 + 12 + 3 + 4 + 4 + 1
+    assert lines[1] == f"Findings: {finding_counts(flags)}"
+    assert lines[2] == f"Advice: {result.report.advice}"                 # the first screen's sentence, reused
+    html_text = html.unescape(re.sub(r"<[^>]+>", "", (out / "report" / "index.html").read_text(encoding="utf-8")))
+    assert result.report.advice in html_text
+    # the advice says why the lowest-MASE model is not the one to switch to (the apparent contradiction)
+    assert result.report.advice.startswith("Keep incumbent-hw: challenger-damped has the lowest MASE")
+    assert " but " in result.report.advice
+    assert not any("Lowest MASE" in line or line.startswith("  h=") for line in lines)
+    assert sum(line.startswith("Advice") for line in lines) == 1
+    assert lines[3] == "Top 3 findings:"
+    acting = flags[flags["severity"] != "note"].head(3)
+    for i, (line, row) in enumerate(zip(lines[4:7], acting.to_dict("records")), start=1):
+        assert line.startswith(f"  {i}. {row['severity']} {row['kind']} {row['model']}")
+        assert line.endswith(row["evidence"].split(";", 1)[0]) and "\n" not in line
+    assert lines[7] == "Try next:"
+    ledger = f"--ledger {shlex.quote(str(result.replay.ledger_path))}"
+    tries = lines[8:11]
+    assert all(t.startswith(f"  backsight {ledger} ") for t in tries)
+    assert tries[2].endswith("compare incumbent-hw challenger-damped --horizon 1")
     assert lines[-1] == f"Report: {(out / 'report' / 'index.html').resolve()}"
+    assert len(lines) == 12
+
+
+def test_the_demo_records_its_override_relation(demo):
+    # Issue 14 item 3: the override relation is in the ledger, from the override's first run on,
+    # and the report and the value findings use it without --adjusts.
+    out, result, flags = demo
+    with Ledger.open(result.replay.ledger_path, create=False, read_only=True) as book:
+        assert book.overrides() == DEMO_OVERRIDES == {"planner-override": "incumbent-hw"}
+        assert book.overrides(as_of="2023-01-05T08:59:59") == {}        # before the override's first run arrived
+        assert book.overrides(as_of="2023-01-05T09:00:01") == DEMO_OVERRIDES
+        none = book.flags(kinds=["value"], adjusts="")                   # the option replaces the record
+    step = flags[(flags["kind"] == "value") & (flags["check"] == OVER_BASE)]
+    assert step[["model", "series"]].values.tolist() == [["planner-override", ""]]
+    assert step["evidence"].iloc[0].startswith("no value added over its base incumbent-hw in the last 12 evaluation periods")
+    assert step["key"].iloc[0] == "value|planner-override|||base"
+    assert not (none["check"] == OVER_BASE).any()
+    page = (out / "report" / "index.html").read_text(encoding="utf-8")
+    assert "override of its base" in page
 
 
 def test_the_commands_to_try_next_run(demo, runner):
@@ -88,7 +121,10 @@ def test_planted_problems_are_found(demo):
     too_high = override[override["evidence"].str.startswith("forecasts too high")]
     assert len(_named(too_high)) >= 12                                  # the optimistic bias
     value = f[(f["kind"] == "value") & (f["model"] == "planner-override") & (f["series"] == "")]
-    assert len(value) == 1 and value["evidence"].iloc[0].startswith("no value added over seasonal-naive")
+    # one finding: no value over its base (the recorded relation), nor over the benchmark
+    assert value["check"].tolist() == [OVER_BASE] and value["severity"].tolist() == ["act"]
+    assert value["evidence"].iloc[0].startswith("no value added over its base incumbent-hw")
+    assert "; and no value added over seasonal-naive in the last 12 evaluation periods" in value["evidence"].iloc[0]
     quant = f[f["kind"] == "quantiles"]                                 # the challenger's thin-tailed quantiles
     assert quant["model"].tolist() == ["challenger-damped"]
     assert quant["check"].iloc[0] == "too narrow (over-confident)" and "PIT histogram not uniform" in quant["evidence"].iloc[0]

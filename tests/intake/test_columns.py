@@ -7,7 +7,7 @@ from decimal import Decimal
 
 import pandas as pd
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import given, strategies as st
 
 from ledger import Ledger
 from ledger.errors import InputError
@@ -81,7 +81,6 @@ LEVEL_TEXT = st.builds(lambda whole, frac, zeros: f"{'0' * zeros}{whole}" + (f".
                        st.integers(0, 1))
 
 
-@settings(max_examples=60, deadline=None)
 @given(LEVEL_TEXT, LEVEL_TEXT)
 def test_two_level_spellings_either_collide_by_name_or_stay_apart(tmp_path_factory, a, b):
     if a == b:

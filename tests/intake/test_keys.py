@@ -28,7 +28,7 @@ def _canonical(name: str) -> str:
     return unicodedata.normalize("NFC", name.strip())
 
 
-@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(names=st.lists(NAMES, min_size=1, max_size=4))
 def test_any_key_is_refused_or_stored_canonically(tmp_path_factory, names):
     path = tmp_path_factory.mktemp("k") / "l.duckdb"

@@ -9,9 +9,9 @@ import pandas as pd
 import pytest
 
 from ledger import Ledger
-from ledger.cli import app
 
-from tests.helpers import table_hashes, write
+from tests.cli.test_every_problem import _refused   # exit 1, every table's hash unchanged, the lines
+from tests.helpers import write
 
 
 @pytest.fixture
@@ -20,14 +20,6 @@ def base(tmp_path):
     with Ledger.open(path) as book:       # W is weekly: a monthly row of W is a recorded-frequency fault
         book.record_actuals(pd.DataFrame({"series": ["W"], "period": ["2025-W18"], "actual": [1.0]}))
     return path
-
-
-def _refused(runner, path, *args) -> list[str]:
-    before = table_hashes(path)
-    result = runner.invoke(app, ["--ledger", str(path), *args])
-    assert result.exit_code == 1, result.output
-    assert table_hashes(path) == before
-    return result.stderr.rstrip("\n").splitlines()
 
 
 # Six kinds of fault; the two whole-file kinds that need every row (duplicates, horizons) twice each.

@@ -1,5 +1,6 @@
 """Imports stream in chunks: reading a file in many small chunks gives exactly what reading it in
 one chunk gives — the same runs, hashes, tables, warnings and errors (rows counted across chunks).
+These are tests of the exact reader, so the fast road for plain CSV files (plaincsv) is turned off.
 """
 
 from __future__ import annotations
@@ -9,7 +10,7 @@ import pandas as pd
 import pytest
 
 from ledger import Ledger
-from ledger.intake import sources
+from ledger.intake import ingest, sources
 from ledger.errors import FrequencyError, InputError
 
 from tests.helpers import write
@@ -38,6 +39,7 @@ def _forecasts(n_series: int = 7) -> pd.DataFrame:
 def _record(tmp_path, name: str, rows: int | None, monkeypatch, frame: pd.DataFrame):
     """Snapshot ``frame`` from a CSV file into a new ledger, reading ``rows`` rows per chunk."""
     monkeypatch.setattr(sources, "CHUNK_ROWS", rows or 200_000)
+    monkeypatch.setattr(ingest, "PLAIN_ROAD", False)
     (tmp_path / name).mkdir()
     path = tmp_path / name / "forecasts.csv"
     frame.to_csv(path, index=False)
@@ -69,6 +71,7 @@ def test_many_small_chunks_give_the_same_ledger(tmp_path, monkeypatch):
 
 def _error(tmp_path, monkeypatch, frame: pd.DataFrame, rows: int = 10) -> str:
     monkeypatch.setattr(sources, "CHUNK_ROWS", rows)
+    monkeypatch.setattr(ingest, "PLAIN_ROAD", False)
     path = write(tmp_path / "bad.csv", frame.to_csv(index=False))
     with Ledger.open(tmp_path / "bad.duckdb") as book:
         before = table_hashes(book.store, TABLES)

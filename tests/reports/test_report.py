@@ -7,8 +7,8 @@ When a change to the numbers is intended, regenerate it and review the diff:
     BACKSIGHT_UPDATE_GOLD=1 /tmp/dev/bin/python -m pytest -q tests/test_report.py -k gold
 
 On a mismatch the test writes ``tests/gold/report_views.actual.json``; diff it against the gold
-file to see what changed. The ledger here is invented data (no real company or series), with
-planted problems: a biased, drifting incumbent on one series, intervals that are too narrow,
+file to see what changed. The ledger here (tests/reports/invented.py, built once per session by
+tests/reports/conftest.py) is invented data (no real company or series), with planted problems: a biased, drifting incumbent on one series, intervals that are too narrow,
 a gap in the actuals, a zero actual, and hostile series names.
 """
 
@@ -24,7 +24,6 @@ import re
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 import pytest
 
 from ledger import Ledger
@@ -36,81 +35,21 @@ from reports.series_views import build_series
 from reports.site import build_context, series_inputs
 from reports.views import build_model, build_overview, build_series_index
 from tests.helpers import TESTS
+from tests.reports.invented import AS_OF, HOSTILE, INCUMBENT, MODELS, PLAIN, build_ledger
 
 GOLD = TESTS / "gold" / "report_views.json"
 ACTUAL = GOLD.with_name("report_views.actual.json")
 
-HOSTILE = ["<script>alert(1)</script>", "../../etc", "North/Hoses", "north/hoses"]
-PLAIN = ["south/rakes & <b>shears</b>", "east/pots"]
-MODELS = ["challenger-ets", "incumbent-hw", "snaive"]
-INCUMBENT = "incumbent-hw"
-# As-of after every recorded time (recorded_at is the wall clock when the test runs).
-AS_OF = "2100-01-01"
-
-
-# ---------------------------------------------------------------- the invented ledger
-
-
-def _signal(n: int, level: float, rng) -> np.ndarray:
-    t = np.arange(n)
-    return level * (1 + 0.25 * np.sin(2 * np.pi * t / 12)) + rng.normal(0, 0.06 * level, n)
-
-
-def _forecast_rows(key: str, truth: np.ndarray, months: pd.PeriodIndex, level: float, rng) -> list[dict]:
-    """Three models' runs at 36 monthly origins, horizons 1-6, with 80% and 95% intervals."""
-    rows = []
-    sd = 0.06 * level
-    for o in range(12, 48):             # origins 2023-01 .. 2025-12; the last runs look ahead
-        for h in range(1, 7):
-            t = o + h
-            mean = level * (1 + 0.25 * np.sin(2 * np.pi * t / 12))
-            fc = {
-                "challenger-ets": (mean + rng.normal(0, 0.3 * sd), 1.0 * sd),
-                # planted: the incumbent's intervals are too narrow, and on North/Hoses it
-                # drifts to forecasts far too low from origin 38 on (e = y - f > 0)
-                "incumbent-hw": (mean + rng.normal(0, 0.8 * sd) + (-4 * sd if key == "North/Hoses" and o >= 38 else 0), 0.45 * sd),
-                "snaive": (truth[t - 12], 1.6 * sd),   # h <= 6 < 12: last season's actual is known
-            }
-            for model, (point, spread) in fc.items():
-                rows.append({"series": key, "model": model, "origin": str(months[o]), "period": str(months[t]),
-                             "forecast": round(float(point), 3),
-                             "lower_80": round(float(point - 1.2816 * spread), 3), "upper_80": round(float(point + 1.2816 * spread), 3),
-                             "lower_95": round(float(point - 1.96 * spread), 3), "upper_95": round(float(point + 1.96 * spread), 3)})
-    return rows
-
-
-def build_ledger(path: Path, *, keys=tuple(HOSTILE + PLAIN), seed: int = 20261130) -> Path:
-    """A seeded monthly ledger: 48 months of actuals (2022-01 to 2025-12), 3 models, 36 origins."""
-    rng = np.random.default_rng(seed)
-    months = pd.period_range("2022-01", periods=54, freq="M")   # actuals fill the first 48
-    actuals, forecasts = [], []
-    for i, key in enumerate(keys):
-        level = 100.0 * (i + 1)
-        truth = _signal(48, level, rng)
-        forecasts += _forecast_rows(key, truth, months, level, rng)
-        for t in range(48):
-            if key == "east/pots" and t in (30, 31):      # planted gap: two months missing
-                continue
-            value = 0.0 if key.startswith("south/") and t == 40 else round(float(truth[t]), 3)
-            actuals.append({"series": key, "period": str(months[t]), "actual": value})
-    with Ledger.open(path) as book:
-        book.snapshot(pd.DataFrame(forecasts), name="invented-forecasts.csv")
-        book.record_actuals(pd.DataFrame(actuals), name="invented-actuals.csv")
-    return path
 
 
 @pytest.fixture(scope="module")
-def ledger_file(tmp_path_factory) -> Path:
-    return build_ledger(tmp_path_factory.mktemp("report") / "invented.duckdb")
+def ledger_file(invented_ledger) -> Path:
+    return invented_ledger
 
 
 @pytest.fixture(scope="module")
-def site(ledger_file, tmp_path_factory):
-    out = tmp_path_factory.mktemp("site") / "out"
-    calls = []
-    result = render_report(ledger_file, out, as_of=AS_OF, title="Invented review <i>Q4</i>",
-                           incumbent=INCUMBENT, benchmark="snaive", progress=lambda *a: calls.append(a))
-    return result, calls
+def site(invented_site):
+    return invented_site
 
 
 @pytest.fixture(scope="module")
@@ -260,8 +199,8 @@ def test_every_page_is_written_with_its_sections(site, pages):
         assert not missing, (name, missing)
 
 
-def test_every_internal_link_resolves(site, pages):
-    out = site[0].out_dir
+def check_links(out: Path, pages: dict[str, str]) -> None:
+    """Ids are unique on each page, and every link names a written page and an id on it."""
     for name, text in pages.items():
         parsed = _parse(text)
         assert len(parsed.ids) == len(set(parsed.ids)), f"{name}: duplicate ids"
@@ -271,6 +210,10 @@ def test_every_internal_link_resolves(site, pages):
             assert (out / target).is_file(), (name, href)
             if fragment:
                 assert fragment in _parse(pages[target]).ids, (name, href)
+
+
+def test_every_internal_link_resolves(site, pages):
+    check_links(site[0].out_dir, pages)
 
 
 def test_no_page_refers_to_anything_outside_itself(pages):

@@ -1,6 +1,8 @@
 """The report in a real browser: headless Chromium renders pages at 1280 and 390 px wide.
 
-Screenshots go to $BACKSIGHT_SCREENSHOTS (default: pytest's temporary folder). Chromium is
+Screenshots are kept as test artefacts in $BACKSIGHT_SCREENSHOTS (default: build/report-screenshots/
+of the checkout, which git ignores and later runs overwrite; pytest's temporary folders are
+pruned after three runs, so they would not keep them). Chromium is
 required: CI (.ci/run) installs Debian's ``chromium``; without it this test fails, never skips.
 
 Overflow is measured on a copy of each page embedded as ``srcdoc`` in an iframe of the width
@@ -25,12 +27,12 @@ import pytest
 
 from reports import render_report
 from reports.names import page_name
-from tests.reports.stored_reviews import store_reviews
-from tests.reports.test_report import AS_OF, INCUMBENT, build_ledger
+from tests.reports.invented import AS_OF, INCUMBENT
 
 pytestmark = pytest.mark.browser
 
 WIDTHS = (1280, 390)
+SHOTS_DEFAULT = Path(__file__).resolve().parents[2] / "build" / "report-screenshots"
 CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
                   "--disable-background-networking", "--disable-component-update", "--disable-sync",
                   "--hide-scrollbars", "--mute-audio"]
@@ -52,17 +54,21 @@ def _run(args: list[str], profile: Path) -> subprocess.CompletedProcess:
 
 
 @pytest.fixture(scope="module")
-def site(tmp_path_factory) -> Path:
-    root = tmp_path_factory.mktemp("browser")
-    path = build_ledger(root / "invented.duckdb")
-    store_reviews(path)      # the first screen then also lists the changes since the last review
-    return render_report(path, root / "site", as_of=AS_OF, incumbent=INCUMBENT, benchmark="snaive",
-                         title="Invented review").out_dir
+def profile(tmp_path_factory) -> Path:
+    """One Chromium profile folder for the module: each launch with a fresh one paid for setting it up."""
+    return tmp_path_factory.mktemp("chromium-profile")
+
+
+@pytest.fixture(scope="module")
+def site(reviewed_ledger, tmp_path_factory) -> Path:
+    # reviewed: the first screen then also lists the changes since the last review
+    return render_report(reviewed_ledger, tmp_path_factory.mktemp("browser") / "site", as_of=AS_OF,
+                         incumbent=INCUMBENT, benchmark="snaive", title="Invented review").out_dir
 
 
 @pytest.fixture(scope="module")
 def shots(tmp_path_factory) -> Path:
-    folder = Path(os.environ.get("BACKSIGHT_SCREENSHOTS") or tmp_path_factory.mktemp("shots"))
+    folder = Path(os.environ.get("BACKSIGHT_SCREENSHOTS") or SHOTS_DEFAULT)
     folder.mkdir(parents=True, exist_ok=True)
     return folder
 
@@ -80,10 +86,10 @@ def _colours(png: Path) -> tuple[int, float]:
 
 @pytest.mark.parametrize("width", WIDTHS)
 @pytest.mark.parametrize("kind", list(PAGES))
-def test_screenshot_is_not_blank(site, shots, tmp_path, kind, width):
+def test_screenshot_is_not_blank(site, shots, tmp_path, profile, kind, width):
     png = shots / f"report-{kind}-{width}.png"
     png.unlink(missing_ok=True)
-    _run([f"--screenshot={png}", f"--window-size={width},1800", (site / PAGES[kind]).as_uri()], tmp_path / "profile")
+    _run([f"--screenshot={png}", f"--window-size={width},1800", (site / PAGES[kind]).as_uri()], profile)
     assert png.is_file() and png.stat().st_size > 10_000, png
     shape = matplotlib.image.imread(png).shape
     assert shape[1] == width, f"{png}: {shape[1]} px wide, expected {width}"
@@ -104,10 +110,10 @@ def _measuring_page(page: str) -> str:
 
 
 @pytest.mark.parametrize("kind", list(PAGES))
-def test_page_does_not_overflow_horizontally(site, tmp_path, kind):
+def test_page_does_not_overflow_horizontally(site, tmp_path, profile, kind):
     wrapper = tmp_path / "measure.html"
     wrapper.write_text(_measuring_page((site / PAGES[kind]).read_text(encoding="utf-8")), encoding="utf-8")
-    dom = _run(["--window-size=1400,1000", "--dump-dom", wrapper.as_uri()], tmp_path / "profile").stdout
+    dom = _run(["--window-size=1400,1000", "--dump-dom", wrapper.as_uri()], profile).stdout
     found = dict(re.findall(r'data-(w\d+|control)="(\d+x\d+)"', dom))
     assert set(found) == {"w1280", "w390", "control"}, f"measurement missing from the DOM: {found}"
     scroll, client = map(int, found["control"].split("x"))
@@ -134,29 +140,31 @@ def _probe_page(page: str, width: int, height: int) -> str:
     return f"<!DOCTYPE html><html><body style='margin:0'>{frame}<script>{script}</script></body></html>"
 
 
-def _probe(page_file: Path, width: int, height: int, tmp_path: Path) -> tuple[float, float, float, float]:
+def _probe(page_file: Path, width: int, height: int, tmp_path: Path, profile: Path) -> tuple[float, float, float, float]:
     wrapper = tmp_path / f"probe-{width}.html"
     wrapper.write_text(_probe_page(page_file.read_text(encoding="utf-8"), width, height), encoding="utf-8")
-    dom = _run(["--window-size=1400,1000", "--dump-dom", wrapper.as_uri()], tmp_path / "profile").stdout
+    dom = _run(["--window-size=1400,1000", "--dump-dom", wrapper.as_uri()], profile).stdout
     found = re.search(r'data-probe="([-\d.]+)x([-\d.]+)x([-\d.]+)x([-\d.]+)"', dom)
     assert found, "the probe wrote nothing into the DOM"
     return tuple(float(x) for x in found.groups())
 
 
-def test_first_screen_at_1280x800_is_the_review(site, shots, tmp_path):
-    review_bottom, matrix_top, _, _ = _probe(site / "index.html", 1280, 800, tmp_path)
+def test_first_screen_at_1280x800_is_the_review(site, shots, tmp_path, profile):
+    review_bottom, matrix_top, _, _ = _probe(site / "index.html", 1280, 800, tmp_path, profile)
     assert 0 < review_bottom <= 800, f"the review ends at {review_bottom} px, below the fold of 800 px"
     assert matrix_top >= review_bottom
-    png = shots / "report-index-first-screen-1280x800.png"
-    _run([f"--screenshot={png}", "--window-size=1280,800", (site / "index.html").as_uri()], tmp_path / "profile")
-    assert png.is_file() and png.stat().st_size > 10_000
+    for width in WIDTHS:
+        png = shots / f"report-index-first-screen-{width}x800.png"
+        png.unlink(missing_ok=True)
+        _run([f"--screenshot={png}", f"--window-size={width},800", (site / "index.html").as_uri()], profile)
+        assert png.is_file() and png.stat().st_size > 10_000
 
 
 @pytest.mark.parametrize("kind", ["index", "model", "series", "findings"])
-def test_no_table_column_is_off_screen_at_390(site, tmp_path, kind):
+def test_no_table_column_is_off_screen_at_390(site, tmp_path, profile, kind):
     """On a phone every table is a stack of labelled cards: no cell reaches past the screen."""
     name = {"findings": "findings.html"}.get(kind) or PAGES[kind]
-    _, _, right, client = _probe(site / name, 390, 900, tmp_path)
+    _, _, right, client = _probe(site / name, 390, 900, tmp_path, profile)
     assert 0 < right <= client + 0.5, f"{kind}: a table cell ends at {right} px on a {client} px screen"
 
 
@@ -167,19 +175,19 @@ def _pdf_pages(pdf: Path) -> int:
 
 
 @pytest.mark.parametrize("paper", ["A4", "letter"])
-def test_the_review_prints_on_one_page(site, tmp_path, paper):
+def test_the_review_prints_on_one_page(site, tmp_path, profile, paper):
     text = (site / "index.html").read_text(encoding="utf-8")
     first = text[:text.index('<section id="matrix"')] + "</main></body></html>"
     page = tmp_path / "first.html"
     page.write_text(first.replace("</head>", f"<style>@page {{ size: {paper}; }}</style></head>"), encoding="utf-8")
     pdf = tmp_path / "first.pdf"
-    _run(["--no-pdf-header-footer", f"--print-to-pdf={pdf}", page.as_uri()], tmp_path / "profile")
+    _run(["--no-pdf-header-footer", f"--print-to-pdf={pdf}", page.as_uri()], profile)
     assert _pdf_pages(pdf) == 1
 
 
-def test_printed_sections_start_on_new_pages_without_navigation(site, tmp_path):
+def test_printed_sections_start_on_new_pages_without_navigation(site, tmp_path, profile):
     pdf = tmp_path / "all.pdf"
-    _run(["--no-pdf-header-footer", f"--print-to-pdf={pdf}", (site / "index.html").as_uri()], tmp_path / "profile")
+    _run(["--no-pdf-header-footer", f"--print-to-pdf={pdf}", (site / "index.html").as_uri()], profile)
     sections = (site / "index.html").read_text(encoding="utf-8").count("\n<section id=")
     assert _pdf_pages(pdf) >= sections
     css = (site / "index.html").read_text(encoding="utf-8")
@@ -195,7 +203,7 @@ def young(request, tmp_path_factory):
     return request.param, render_report(root / "young.duckdb", root / "site", as_of=AS_OF, workers=0).out_dir
 
 
-def test_young_ledger_pages_open_without_console_messages(young, shots, tmp_path):
+def test_young_ledger_pages_open_without_console_messages(young, shots, tmp_path, profile):
     """Every page of a young or odd ledger loads in Chromium with nothing on the console (no
     blocked load, no error); the overview is kept as screenshots at 1280 and 390 px."""
     name, site_dir = young
@@ -204,11 +212,11 @@ def test_young_ledger_pages_open_without_console_messages(young, shots, tmp_path
                    "</iframe>" for p in pages)
     wrapper = tmp_path / "all.html"
     wrapper.write_text(f"<!DOCTYPE html><html><body>{body}</body></html>", encoding="utf-8")
-    done = _run(["--enable-logging=stderr", "--v=0", "--dump-dom", wrapper.as_uri()], tmp_path / "profile")
+    done = _run(["--enable-logging=stderr", "--v=0", "--dump-dom", wrapper.as_uri()], profile)
     console = [line for line in done.stderr.splitlines() if ":CONSOLE" in line]
     assert not console, f"{name}: {console[:3]}"
     assert done.stdout.count("<iframe") == len(pages) >= 4
     for width in WIDTHS:
         png = shots / f"young-{name}-index-{width}.png"
-        _run([f"--screenshot={png}", f"--window-size={width},1000", (site_dir / "index.html").as_uri()], tmp_path / "profile")
+        _run([f"--screenshot={png}", f"--window-size={width},1000", (site_dir / "index.html").as_uri()], profile)
         assert png.is_file() and png.stat().st_size > 5_000

@@ -152,3 +152,32 @@ def test_report_cli_takes_include_excluded(runner, ledger_file, tmp_path):
                                "--include-excluded"])
     assert done.exit_code == 0, done.stderr
     assert "cells of excluding events included" in _text((tmp_path / "out" / "index.html").read_text(encoding="utf-8"))
+
+
+def test_series_pages_cap_keeps_every_page_a_finding_names(ledger_file, oracle, tmp_path, runner):
+    """With more series than the cap, pages are drawn for the largest total scaled error and for
+    every series an act or watch finding names; the index lists every series and says so; no link is dead."""
+    from ledger.cli import report as cli_report  # noqa: F401
+    from ledger.cli.common import app
+    from reports.site import SERIES_PAGES
+
+    result = render_report(ledger_file, tmp_path / "site", as_of=AS_OF, workers=0, series_pages=2)
+    site = result.out_dir
+    with Ledger.open(ledger_file, create=False, read_only=True) as book:
+        flags = book.flags(as_of=AS_OF)
+        named = set(flags.loc[flags["severity"] != "note", "series"]) - {""}
+        per = book.scores(by=["series", "model"], as_of=AS_OF)
+    weight = (per["mase"].fillna(0) * (per["n"] - per["n_unscaled"])).groupby(per["series"]).sum()
+    top = set(weight.sort_values(ascending=False, kind="stable").index[:2])
+    drawn = {r["Series"] for r in _csv(site, "series-1.csv")}
+    assert drawn == set(SERIES)                                   # the index lists every series
+    pages = list(site.glob("s-*.html"))
+    assert len(pages) == result.series_pages == len(top | named) < len(SERIES)
+    index = (site / "series.html").read_text(encoding="utf-8")
+    assert f"Pages are drawn for {len(top | named)} of these {len(SERIES)} series" in _text(index)
+    for page in site.glob("*.html"):                              # every link to a series page resolves
+        for href in re.findall(r'href="(s-[^"]+\.html)"', page.read_text(encoding="utf-8")):
+            assert (site / href).is_file(), (page.name, href)
+    assert f"default {SERIES_PAGES}" in runner.invoke(app, ["report", "--help"]).stdout
+    bad = runner.invoke(app, ["--ledger", str(ledger_file), "report", str(tmp_path / "x"), "--series-pages", "0"])
+    assert bad.exit_code == 2 and "--series-pages" in bad.stderr

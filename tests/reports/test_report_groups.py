@@ -28,7 +28,8 @@ from reports.group_views import GROUPS_PAGE, NO_GROUP, build_groups, count_findi
 from reports.names import MARKER, page_name
 from ledger.wording import num, pct
 from reports.text import bias_words
-from tests.reports.test_report import _parse
+from tests.helpers import record_invented
+from tests.reports.test_report import _parse, check_links
 
 AS_OF = "2100-01-01"     # after every recorded time (recorded_at is the wall clock of the test run)
 MODELS = ("steady", "tilted")
@@ -67,11 +68,7 @@ def build_group_ledger(path: Path, seed: int = 20261207) -> Path:
                     for t in range(60) if (key, t) != GAP]
     attrs = pd.DataFrame({"series": list(REGIONS), "region": [v or "" for v in REGIONS.values()],
                           "family": ["tools"] * len(REGIONS)})
-    with Ledger.open(path) as book:
-        book.snapshot(pd.DataFrame(forecasts), name="invented-forecasts.csv")
-        book.record_actuals(pd.DataFrame(actuals), name="invented-actuals.csv")
-        book.record_attributes(attrs, name="invented-attributes.csv")
-    return path
+    return record_invented(path, forecasts, actuals, attrs)
 
 
 @pytest.fixture(scope="module")
@@ -159,15 +156,7 @@ def test_groups_page_is_written_and_linked_from_every_page(site):
 
 def test_every_internal_link_resolves(site):
     result, pages = site
-    for name, text in pages.items():
-        parsed = _parse(text)
-        assert len(parsed.ids) == len(set(parsed.ids)), f"{name}: duplicate ids"
-        for href in parsed.hrefs:
-            target, _, fragment = href.partition("#")
-            target = target or name
-            assert (result.out_dir / target).is_file(), (name, href)
-            if fragment:
-                assert fragment in _parse(pages[target]).ids, (name, href)
+    check_links(result.out_dir, pages)
 
 
 def test_each_group_lists_its_series_linked_to_their_pages(site, api):

@@ -1,6 +1,6 @@
 """The review report (issue 14): first screen, matrix, trends, forecast value added, CSV tables.
 
-Uses the invented ledger of ``test_report`` (planted: a drifting, biased incumbent with intervals
+Uses the invented ledger of ``tests/reports/invented.py`` (planted: a drifting, biased incumbent with intervals
 that are too narrow). Independent checks recompute figures from ``Ledger.cells`` with pandas.
 """
 
@@ -22,17 +22,15 @@ from reports.matrix import horizon_columns, pooled_mase
 from reports.tables import attach_csv, defuse
 from reports.trends import rolling
 from ledger.wording import num
-from tests.reports.stored_reviews import FINDINGS, MASE, store_reviews
-from tests.reports.test_report import AS_OF, INCUMBENT, build_ledger
+from tests.reports.invented import AS_OF, INCUMBENT
+from tests.reports.stored_reviews import FINDINGS, MASE
 
 OVERRIDE = {"challenger-ets": "incumbent-hw"}   # declared for the test: ets "adjusts" the incumbent
 
 
 @pytest.fixture(scope="module")
-def ledger_file(tmp_path_factory):
-    path = build_ledger(tmp_path_factory.mktemp("review") / "invented.duckdb")
-    store_reviews(path)      # two reviews before the as-of: the first screen lists what changed
-    return path
+def ledger_file(reviewed_ledger):
+    return reviewed_ledger
 
 
 @pytest.fixture(scope="module")

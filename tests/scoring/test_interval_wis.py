@@ -1,10 +1,10 @@
-"""The bounds-only WIS query (ledger.scoring.interval_wis) against the general one and the pure functions.
+"""The WIS of bounds-only runs (summed row by row in ledger.scoring.grouped) against the pure functions.
 
-A selection whose runs carry no quantiles takes the bounds-only path of ``scores``; the same
-cells scored beside a run with quantiles take the general path. Both must give the WIS of
+The bounds rows of a run without quantiles carry their share of their cell's WIS, divided by
+the cell's K (here K differs from cell to cell: some cells send one level only). Scored alone
+or beside a run with quantiles, the cells must give the WIS of
 ledger.stats.quantiles.weighted_interval_score (Bracher et al. 2021, eq. 2) with the point
-forecast as the median.
-"""
+forecast as the median."""
 
 from __future__ import annotations
 

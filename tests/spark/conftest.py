@@ -9,13 +9,26 @@ from ledger import Ledger
 from ..lake import synthetic
 
 
+# For a test run of many small queries, on top of the local settings of ledger.scoring.spark: compiling
+# each query's generated code, re-planning it adaptively and the JVM's optimising compiler are
+# expected to cost more CPU than they save on a few thousand rows; one garbage-collector thread on
+# a two-core machine. Expected, not yet measured (DEVELOPERS.md, "The lake and Spark").
+TEST_SETTINGS = {
+    "spark.sql.codegen.wholeStage": "false",
+    "spark.sql.adaptive.enabled": "false",
+    "spark.driver.extraJavaOptions": "-XX:TieredStopAtLevel=1 -XX:+UseSerialGC",
+    "spark.sql.execution.arrow.pyspark.fallback.enabled": "false",
+    "spark.default.parallelism": "2",
+}
+
+
 @pytest.fixture(scope="session")
 def spark():
     """Spark local[2]. Missing pyspark or Java fails the tests with what to install (never a skip)."""
     from ledger.scoring.spark import SparkUnavailable, session
 
     try:
-        spark = session("local[2]", app_name="backsight-tests")
+        spark = session("local[2]", app_name="backsight-tests", conf=TEST_SETTINGS)
     except SparkUnavailable as exc:
         pytest.fail(f"{exc}. The Spark parity tests need it; .ci/run installs the spark extra.")
     yield spark

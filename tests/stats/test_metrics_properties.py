@@ -14,7 +14,7 @@ from hypothesis import strategies as st
 
 from ledger.stats import metrics as M
 
-SETTINGS = settings(max_examples=100, deadline=None, derandomize=True)
+SETTINGS = settings(derandomize=True)
 
 # Two-decimal amounts in [-1e4, 1e4]: finite and bounded like real data, and two distinct values
 # differ by at least a cent, so float rounding stays far below the tolerances used here.

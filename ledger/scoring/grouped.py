@@ -326,12 +326,18 @@ class _Plan:
             {s.total("b.upper - b.lower", bd["width"])} AS s_width,
             {s.total(score, bd["is"])} AS s_is,
             {s.total(f"{score} / sc.q", bd["is_q"])} AS s_is_q, count(sc.q) AS n_is_q,
-            {s.total(f"{share} {disp} END", bd["wis"])} AS s_disp,
-            {s.total(f"{share} {over} END", bd["wis"])} AS s_over,
-            {s.total(f"{share} {under} END", bd["wis"])} AS s_under,
-            {s.total(f"{share} ({disp} + {over} + {under}) / sc.q END", bd["wis_q"])} AS s_wisq
+            {self._wis_sums(share, disp, over, under)}
         {frm}{keep}
         GROUP BY {group}"""
+
+    def _wis_sums(self, guard: str, disp: str, over: str, under: str) -> str:
+        """The four WIS sums of a row's share (dispersion, over, under, scaled total), each taken
+        only where ``guard`` (an open ``CASE WHEN … THEN``) holds."""
+        s, bd = self.sums, self.bound
+        return (f'{s.total(f"{guard} {disp} END", bd["wis"])} AS s_disp, '
+                f'{s.total(f"{guard} {over} END", bd["wis"])} AS s_over, '
+                f'{s.total(f"{guard} {under} END", bd["wis"])} AS s_under, '
+                f'{s.total(f"{guard} ({disp} + {over} + {under}) / sc.q END", bd["wis_q"])} AS s_wisq')
 
     def quantiles_sql(self) -> str:
         """Per group and quantile level, over the quantile rows of runs summed row by row (fast_q):
@@ -355,10 +361,7 @@ class _Plan:
             count(*) AS n, count(*) FILTER (WHERE {y} < {v}) AS n_below,
             {s.total(loss, bd["pinball_row"])} AS s_pin,
             {s.total(f"2 * ({loss}) / r.n_tau", bd["crps"])} AS s_crps,
-            {s.total(f"{wis} {disp} END", bd["wis"])} AS s_disp,
-            {s.total(f"{wis} {over} END", bd["wis"])} AS s_over,
-            {s.total(f"{wis} {under} END", bd["wis"])} AS s_under,
-            {s.total(f"{wis} ({disp} + {over} + {under}) / sc.q END", bd["wis_q"])} AS s_wisq
+            {self._wis_sums(wis, disp, over, under)}
         {frm}{keep}
         GROUP BY {group}"""
 

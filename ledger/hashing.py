@@ -53,7 +53,8 @@ def _keys(keys) -> tuple[bytes, bytes]:
     Arrow string array as the importer streams them): together injective."""
     array = keys.cast(pa.large_string()) if isinstance(keys, pa.Array) else \
         pa.array([str(k) for k in keys], pa.large_string())
-    offsets = np.frombuffer(array.buffers()[1], dtype="<i8")[: len(array) + 1]
+    # a slice of a batch (the importer hands each run its slice) starts at array.offset, not 0
+    offsets = np.frombuffer(array.buffers()[1], dtype="<i8")[array.offset: array.offset + len(array) + 1]
     data = array.buffers()[2]
     body = b"" if data is None else data.to_pybytes()[offsets[0]:offsets[-1]]
     return np.diff(offsets).astype("<i8").tobytes(), body

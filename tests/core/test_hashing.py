@@ -72,3 +72,15 @@ def test_minus_zero_and_zero_are_one_run(tmp_path):
         again = book.snapshot(pd.DataFrame({"series": ["a"], "period": "2026-02", "forecast": ["-0"]}),
                               model="m", origin="2026-01")
         assert [r.status for r in again.runs] == ["unchanged"]
+
+
+def test_a_slice_of_an_arrow_batch_hashes_as_its_own_keys():
+    # the importer hands each run the slice of its Arrow batch; a slice starts at array.offset
+    import pyarrow as pa
+
+    batch = pa.array(["first-run/a", "first-run/b", "x/a", "x/longer-name", "xé"], pa.large_string())
+    keys = batch.slice(2, 3)
+    part = {"series": keys, "period_index": np.array([5, 5, 5]), "point": np.array([1.0, 2.0, 3.0])}
+    plain = {**part, "series": np.array(["x/a", "x/longer-name", "xé"], dtype=object)}
+    assert run_content_hash("m", "monthly", 4, part) == run_content_hash("m", "monthly", 4, plain)
+

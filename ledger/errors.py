@@ -10,6 +10,7 @@ import contextlib
 import errno
 import os
 import re
+from pathlib import Path
 
 __all__ = [
     "LedgerError",
@@ -103,8 +104,6 @@ _FIXES = {
                   "another disk, and try again (the ledger is unchanged)",
     errno.EDQUOT: "the disk quota is used up for {path}; free some space and try again (the ledger is unchanged)",
     errno.EFBIG: "{path} would grow beyond the largest file allowed here; use another disk and try again",
-    errno.EACCES: "permission denied for {path}; make its folder writable (a ledger also needs room for "
-                  "its .wal and .tmp files beside it) or use another folder",
     errno.EPERM: "the operation is not permitted on {path}; use another folder",
     errno.EROFS: "{path} is on a read-only file system; use a writable folder",
     errno.ENOTDIR: "a part of {path} is a file, not a folder; give a path whose folders are folders",
@@ -135,10 +134,25 @@ def describe_os_error(exc: BaseException) -> str | None:
         found = _QUOTED.search(text)
         path = found[1] if found else None
     where = str(path) if path is not None else "a file it needed"
+    if code == errno.EACCES:
+        return _denied(where, path)
     fix = _FIXES.get(code)
     if fix is None:
         return f"{where}: {os.strerror(code)}"
     return fix.format(path=where)
+
+
+def _denied(where: str, path) -> str:
+    """Permission denied, with the folder to make writable: the refused path's own when it is a
+    folder, else the one it is (or would be) in; a ledger's .wal or .tmp names the ledger's folder."""
+    if path is None:
+        return f"permission denied for {where}; make its folder writable, or use another folder"
+    p = Path(path)
+    if p.suffix in (".wal", ".tmp"):
+        return (f"permission denied for {where}; a ledger writes its {p.suffix} file beside itself: make the "
+                f"folder {p.parent} writable, or move the ledger to a writable folder")
+    folder = p if p.is_dir() else p.parent
+    return f"permission denied for {where}; make the folder {folder} writable, or use another folder"
 
 
 @contextlib.contextmanager

@@ -10,15 +10,20 @@ or start with a dot, and every write is checked to resolve inside the output fol
 
 from __future__ import annotations
 
+import contextlib
+import errno
 import hashlib
+import os
 import re
-from collections.abc import Iterable
+import shutil
+import tempfile
+from collections.abc import Iterable, Iterator
 from pathlib import Path
 
 from ledger.errors import LedgerError, naming_file
 
 __all__ = ["NameClash", "UnsafePath", "FolderNotOurs", "MARKER", "claim_folder", "page_name", "page_names",
-           "safe_write"]
+           "safe_write", "staged_folder"]
 
 _SLUG_LEN = 40
 _DIGEST_LEN = 10
@@ -41,23 +46,89 @@ class FolderNotOurs(LedgerError):
 MARKER = ".backsight-report"
 
 
-def claim_folder(out: Path) -> None:
-    """Make ``out`` a report folder: create it, or accept it when empty or marked as a report's.
+def claim_folder(out: Path, ledger: Path | None = None) -> None:
+    """Check that ``out`` may hold a report: new, empty, or marked as a report's and holding only
+    what a report writes (pages, ``tables/`` of CSV files, the marker).
 
     Anything else is refused naming one of its files, so that a user's own ``index.html`` (or a
-    ledger file that happens to be named like a page) is never overwritten.
+    ledger file that happens to be named like a page) is never overwritten; the whole folder is
+    replaced by :func:`staged_folder`, so a file a report did not write would be lost with it.
     """
     if out.exists() and not out.is_dir():
         raise FolderNotOurs(f"{out} is a file, not a folder; give a new or empty folder for the report")
-    if out.is_dir() and not (out / MARKER).is_file():
-        found = sorted(p.name for p in out.iterdir())
-        if found:
-            raise FolderNotOurs(f"{out} holds {found[0]!r}{' and more' if len(found) > 1 else ''}, which no report "
-                                "wrote; give a new or empty folder (a report writes only where it wrote before)")
-    out.mkdir(parents=True, exist_ok=True)
-    with naming_file(out / MARKER):
-        (out / MARKER).write_text("This folder was written by backsight report; it may overwrite the files here.\n",
-                                  encoding="utf-8")
+    if not out.is_dir():
+        return
+    found = sorted(p.name for p in out.iterdir())
+    if (out / MARKER).is_file():
+        found = [name for name in found if not _written_by_a_report(out / name)]
+    if found:
+        raise FolderNotOurs(f"{out} holds {found[0]!r}{' and more' if len(found) > 1 else ''}, which no report "
+                            "wrote; give a new or empty folder (a report writes only where it wrote before)")
+    if ledger is not None and Path(ledger).resolve().is_relative_to(out.resolve()):
+        raise FolderNotOurs(f"the ledger {ledger} is inside {out}, which a report replaces whole; "
+                            "give a folder that does not hold the ledger")
+
+
+def _written_by_a_report(path: Path) -> bool:
+    if path.name == "tables" and path.is_dir() and not path.is_symlink():
+        return all(p.is_file() and not p.is_symlink() and p.suffix == ".csv" for p in path.iterdir())
+    return path.is_file() and not path.is_symlink() and (path.name == MARKER or path.suffix == ".html")
+
+
+@contextlib.contextmanager
+def staged_folder(out: Path, ledger: Path | None = None) -> Iterator[Path]:
+    """Yield a new hidden sibling of ``out`` to write a report into; swap it in for ``out`` when
+    the block ends without an error, so a report is written whole or not at all.
+
+    On any error (a full disk, a refused write, a bug) the sibling is removed and ``out``, with
+    the report written there before, is as it was. ``ledger`` (the ledger read) may not be inside.
+    """
+    if out.is_symlink():            # replace the folder it points to, and keep the link
+        out = out.resolve()
+    claim_folder(out, ledger)
+    if out.is_dir() and not os.access(out, os.W_OK):
+        # the swap would replace a folder its owner made read-only: refuse as a write into it would
+        raise PermissionError(errno.EACCES, os.strerror(errno.EACCES), str(out))
+    try:
+        out.parent.mkdir(parents=True, exist_ok=True)
+        work = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".partial", dir=out.parent))
+    except OSError as exc:          # name the folder asked for, not a temporary name never shown
+        raise type(exc)(exc.errno, exc.strerror, str(out)) from exc
+    try:
+        mask = os.umask(0)
+        os.umask(mask)
+        work.chmod(out.stat().st_mode & 0o7777 if out.is_dir() else 0o777 & ~mask)   # mkdtemp makes it 0700
+        with naming_file(work / MARKER):
+            (work / MARKER).write_text("This folder was written by backsight report; it may replace the files "
+                                       "here.\n", encoding="utf-8")
+        yield work
+        _swap(work, out)
+    except OSError as exc:
+        shutil.rmtree(work, ignore_errors=True)
+        inside = str(exc.filename or "")
+        if exc.errno is None or not inside.startswith(str(work)):
+            raise
+        # the message names the file as it would have been in ``out``, not the hidden sibling
+        raise type(exc)(exc.errno, exc.strerror, str(out) + inside[len(str(work)):]) from exc
+    except BaseException:
+        shutil.rmtree(work, ignore_errors=True)
+        raise
+
+
+def _swap(work: Path, out: Path) -> None:
+    """Put the finished ``work`` at ``out``; the old ``out`` is moved aside first and put back if
+    the second rename fails, then removed."""
+    if not out.exists():
+        os.rename(work, out)
+        return
+    old = work.with_name(work.name.removesuffix(".partial") + ".old")
+    os.rename(out, old)
+    try:
+        os.rename(work, out)
+    except OSError:
+        os.rename(old, out)
+        raise
+    shutil.rmtree(old, ignore_errors=True)
 
 
 def page_name(prefix: str, key: str) -> str:

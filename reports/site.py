@@ -34,7 +34,7 @@ from .data import LedgerData, check_roles, default_horizon, findings_job, load, 
 from .trends import ROLLING
 from .value_added import SEASONAL_NAIVE_NAMES, check_overrides
 from .group_views import GROUPS_PAGE, GroupData, build_groups, check_group_by, count_findings, load_groups
-from .names import claim_folder, page_names
+from .names import page_names, staged_folder
 from .review import rank_flags
 from .tables import write_page
 from .render import findings_table, render_page
@@ -121,10 +121,11 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
     the cap, every series an act or watch finding names; the series index says how many were drawn.
     """
     stamp = parse_as_of(as_of)
-    out = Path(out_dir)
-    claim_folder(out)
+    final = Path(out_dir)
     path = str(Path(ledger_path).resolve())
-    with Ledger.open(ledger_path, create=False, read_only=True) as book, \
+    # written into a hidden sibling and swapped in when complete: all or nothing (reports.names)
+    with staged_folder(final, Path(ledger_path)) as out, \
+            Ledger.open(ledger_path, create=False, read_only=True) as book, \
             _executor(_worker_count(series_count(book, stamp), workers)) as pool:
         group_by = check_group_by(book, group_by, stamp) if group_by is not None else None
         # Started first, on the models and incumbent load() will find, so that the findings
@@ -166,10 +167,12 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
         if groups is not None:
             _write_groups(count_findings(book, groups, data.findings.flags, stamp), ctx, out, tick)
         _write_series(pages, data, ctx, out, tick)
+        index_bytes = (out / "index.html").stat().st_size
+    out = final
     return ReportResult(out_dir=out.resolve(), index=out.resolve() / "index.html",
                         pages=len(FIXED_PAGES) + extra + len(data.models) + len(inputs), model_pages=len(data.models),
                         series_pages=len(inputs), findings=len(rows), cells_scored=overview.counts["cells_scored"],
-                        index_bytes=(out / "index.html").stat().st_size, state_hash=data.state_hash, as_of=ctx.footer.as_of,
+                        index_bytes=index_bytes, state_hash=data.state_hash, as_of=ctx.footer.as_of,
                         advice=overview.review.advice)
 
 

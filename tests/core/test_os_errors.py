@@ -35,7 +35,7 @@ def base(tmp_path):
 
 @pytest.mark.parametrize("code,needle", [
     (errno.ENOSPC, "no space is left on the device holding /x/f; free some space"),
-    (errno.EACCES, "permission denied for /x/f; make its folder writable"),
+    (errno.EACCES, "permission denied for /x/f; make the folder /x writable, or use another folder"),
     (errno.ENOTDIR, "a part of /x/f is a file, not a folder"),
     (errno.EISDIR, "/x/f is a folder; give a file"),
     (errno.EEXIST, "/x/f already exists and is not a folder"),
@@ -79,8 +79,24 @@ def test_permission_denied_on_the_ledger_folder(base, runner, monkeypatch, tmp_p
     data = tmp_path / "a.csv"
     data.write_text("series,period,actual\na,2026-02,2\n")
     line = _one_error_line(runner.invoke(app, ["--ledger", str(base), "actuals", str(data)]))
-    assert line.startswith(f"Error: permission denied for {base}.wal; make its folder writable")
+    assert line == (f"Error: permission denied for {base}.wal; a ledger writes its .wal file beside itself: "
+                    f"make the folder {base.parent} writable, or move the ledger to a writable folder")
     monkeypatch.undo()
+    assert table_hashes(base) == before
+
+
+def test_unwritable_ledger_folder_for_real(base, tmp_path):
+    # a real refusal: the folder is made read-only and root's override is dropped (setpriv, _cli)
+    before = table_hashes(base)
+    data = tmp_path / "a.csv"
+    data.write_text("series,period,actual\na,2026-02,2\n")
+    base.parent.chmod(0o555)
+    try:
+        line = _only_error_line(_cli("--ledger", str(base), "actuals", str(data), tmp_path=tmp_path))
+    finally:
+        base.parent.chmod(0o755)
+    assert line.startswith(f"Error: permission denied for {base}"), line
+    assert f"make the folder {base.parent} writable" in line and ".duckdb" not in line.split(";", 1)[1], line
     assert table_hashes(base) == before
 
 
@@ -94,7 +110,7 @@ def test_unwritable_export_folder(base, runner, monkeypatch, tmp_path):
     monkeypatch.setattr("pathlib.Path.mkdir", refuse)
     line = _one_error_line(runner.invoke(app, ["--ledger", str(base), "export", str(out)]))
     monkeypatch.undo()
-    assert line.startswith(f"Error: permission denied for {out}")
+    assert line == f"Error: permission denied for {out}; make the folder {out.parent} writable, or use another folder"
     assert table_hashes(base) == before
 
 
@@ -249,11 +265,10 @@ def test_unwritable_report_folder(small_report_ledger, tmp_path):
         folder.chmod(0o555)
     try:
         line = _only_error_line(_cli("--ledger", str(small_report_ledger), "report", str(empty), tmp_path=tmp_path))
-        assert line.startswith(f"Error: permission denied for {empty}/"), line
-        assert "make its folder writable" in line
+        assert line == f"Error: permission denied for {empty}; make the folder {empty} writable, or use another folder"
         new = locked / "new"
         line = _only_error_line(_cli("--ledger", str(small_report_ledger), "report", str(new), tmp_path=tmp_path))
-        assert line.startswith(f"Error: permission denied for {new}; make its folder writable"), line
+        assert line == f"Error: permission denied for {new}; make the folder {locked} writable, or use another folder"
         assert list(empty.iterdir()) == [] and list(locked.iterdir()) == []
     finally:
         for folder in (empty, locked):
@@ -280,7 +295,8 @@ def test_unwritable_backup_folder_stops_the_migration(tmp_path):
         line = _only_error_line(_cli("--ledger", str(path), "runs", tmp_path=tmp_path))
     finally:
         folder.chmod(0o755)
-    assert line.startswith(f"Error: permission denied for {path}.schema-v3.bak; make its folder writable"), line
+    assert line == (f"Error: permission denied for {path}.schema-v3.bak; make the folder {folder} writable, "
+                    "or use another folder"), line
     assert sorted(p.name for p in folder.iterdir()) == ["l.duckdb"] and _file_hash(path) == before
     done = _cli("--ledger", str(path), "runs", tmp_path=tmp_path)      # writable again: migrates, one backup
     assert done.returncode == 0 and f"the old file is kept at {path}.schema-v3.bak" in done.stderr
@@ -288,25 +304,37 @@ def test_unwritable_backup_folder_stops_the_migration(tmp_path):
 
 REPORT_SCRIPT = """
 set -e
-mount -t tmpfs -o size=64k tmpfs "$1"
+mount -t tmpfs -o size=$4 tmpfs "$1"
+"$PY" -m ledger --ledger "$2" report "$1/site" --as-of 2100-01-01 > /dev/null
+find "$1" -type f | sort | xargs sha256sum > "$3/before.txt"
 set +e
-"$PY" -m ledger --ledger "$2" report "$1/site" --as-of 2100-01-01 > "$3/report.out" 2> "$3/report.err"
+"$PY" -m ledger --ledger "$2" report "$1/site" --as-of 2100-01-02 > "$3/report.out" 2> "$3/report.err"
 echo $? > "$3/report.rc"
+set -e
+find "$1" | sort > "$3/listing.txt"
+find "$1" -type f | sort | xargs sha256sum > "$3/after.txt"
 """
 
 
-def test_disk_full_during_a_report(small_report_ledger, tmp_path):
+def test_disk_full_during_a_report_keeps_the_old_one(small_report_ledger, tmp_path):
+    """A real full disk (a tmpfs with room for one report but not two): the second report fails with
+    one Error line naming the page in OUTDIR it was writing; the first report is intact, byte for
+    byte, and no hidden partial folder is left."""
     if shutil.which("unshare") is None or subprocess.run(["unshare", "-rm", "true"]).returncode != 0:
         pytest.fail("this test needs `unshare -rm` to mount a private tmpfs (util-linux, user namespaces)")
     before = table_hashes(small_report_ledger)
-    mount = tmp_path / "small"          # 64 kB: the report needs about 300 kB
+    probe = tmp_path / "probe"
+    assert _cli("--ledger", str(small_report_ledger), "report", str(probe), "--as-of", "2100-01-01",
+                tmp_path=tmp_path).returncode == 0
+    size = sum(p.stat().st_size + 4096 for p in probe.rglob("*"))     # a page per file at most on tmpfs
+    mount = tmp_path / "small"
     mount.mkdir()
     notes = tmp_path / "notes"
     notes.mkdir()
     env = dict(os.environ, PYTHONPATH=str(REPO), PY=sys.executable)
     done = subprocess.run(["unshare", "-rm", "sh", "-c", textwrap.dedent(REPORT_SCRIPT), "sh", str(mount),
-                           str(small_report_ledger), str(notes)], capture_output=True, text=True, env=env, cwd=REPO,
-                          timeout=300)
+                           str(small_report_ledger), str(notes), f"{size * 3 // 2 // 1024}k"],
+                          capture_output=True, text=True, env=env, cwd=REPO, timeout=300)
     assert done.returncode == 0, done.stderr
     rc, out, err = ((notes / f"report.{k}").read_text() for k in ("rc", "out", "err"))
     assert (rc.strip(), out) == ("1", "")
@@ -314,4 +342,32 @@ def test_disk_full_during_a_report(small_report_ledger, tmp_path):
     assert len(lines) == 1, err
     assert lines[0].startswith(f"Error: no space is left on the device holding {mount}/site/"), err
     assert "free some space" in lines[0]
+    assert (notes / "after.txt").read_text() == (notes / "before.txt").read_text()   # the old report, unchanged
+    listing = (notes / "listing.txt").read_text().splitlines()
+    assert listing[:2] == [str(mount), f"{mount}/site"] and all(p.startswith(f"{mount}/site") for p in listing[1:])
     assert table_hashes(small_report_ledger) == before
+
+
+def test_any_error_mid_report_leaves_the_old_report(small_report_ledger, tmp_path, monkeypatch):
+    """A failure part-way (here the fifth page write raises ENOSPC, patched) leaves the report
+    written before exactly as it was, and no temporary folder beside it."""
+    from reports import render_report
+    import reports.tables
+
+    out = tmp_path / "site"
+    render_report(small_report_ledger, out, as_of="2100-01-01", workers=0)
+    old = {p.relative_to(out): p.read_bytes() for p in out.rglob("*") if p.is_file()}
+    real, calls = reports.tables.safe_write, []
+
+    def fail_on_fifth(folder, name, text):
+        calls.append(name)
+        if len(calls) == 5:
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(folder / name))
+        return real(folder, name, text)
+
+    monkeypatch.setattr(reports.tables, "safe_write", fail_on_fifth)
+    with pytest.raises(OSError) as info:
+        render_report(small_report_ledger, out, as_of="2100-01-02", workers=0)
+    assert len(calls) == 5 and info.value.filename == f"{out}/{calls[-1]}"     # named in OUTDIR, not the temporary folder
+    assert {p.relative_to(out): p.read_bytes() for p in out.rglob("*") if p.is_file()} == old
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(["r.duckdb", "site"])

@@ -12,6 +12,8 @@ runs the same tests with many more (BACKSIGHT_NAME_EXAMPLES).
 
 from __future__ import annotations
 
+import csv
+import io
 import os
 import tempfile
 import unicodedata
@@ -27,6 +29,7 @@ from ledger.intake.keys import key_problem
 from ledger.store import TABLES, Store
 from reports import render_report
 from reports.names import page_name
+from reports.tables import TABLES_DIR, defuse
 
 from tests.helpers import NAMES
 
@@ -169,6 +172,21 @@ def test_any_name_is_escaped_and_inert_in_the_report(series, models):
                 page = _parse(result.out_dir / page_name(prefix, identity(name)))
                 assert page.text["h1"].strip() == heading + identity(name)
                 assert page.text["title"].startswith(identity(name) + " · ")
+        _assert_downloads_hold(result.out_dir, keep_series, keep_models)
+
+
+def _assert_downloads_hold(out: Path, series: list[str], models: list[str]) -> None:
+    """The report's CSV downloads (tables/) name each series and model exactly, defused against
+    formulas as the README says of CSV files people open, and no cell is a live formula."""
+    cells: set[str] = set()
+    for path in (out / TABLES_DIR).glob("*.csv"):
+        rows = list(csv.reader(io.StringIO(path.read_text(encoding="utf-8"), newline="")))
+        cells.update(c for row in rows[1:] for c in row)
+    assert cells, "the report wrote no CSV downloads"
+    for cell in cells:
+        assert defuse(cell) == cell, cell          # nothing a spreadsheet would evaluate
+    for name in series + models:
+        assert defuse(identity(name)) in cells, (name, sorted(cells)[:20])
 
 
 @settings(max_examples=2 * EXAMPLES, deadline=None)

@@ -10,6 +10,8 @@ from ledger import Ledger
 from ledger.cli import app
 from reports.names import MARKER
 
+from tests.helpers import table_hashes
+
 
 @pytest.fixture
 def tiny(tmp_path):
@@ -57,7 +59,31 @@ def test_new_empty_and_own_folders_are_written(tiny, tmp_path, runner):
 def test_outdir_that_is_a_file(tiny, tmp_path, runner):
     target = tmp_path / "plain"
     target.write_text("x")
+    before = table_hashes(tiny)
     r = runner.invoke(app, ["--ledger", str(tiny), "report", str(target)])
-    assert r.exit_code == 1
+    assert r.exit_code == 1 and r.stdout == ""
     assert r.stderr == f"Error: {target} is a file, not a folder; give a new or empty folder for the report\n"
-    assert target.read_text() == "x"
+    assert target.read_text() == "x" and table_hashes(tiny) == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["l.duckdb", "plain"]      # no partial folder left
+
+
+def test_a_report_folder_is_replaced_whole_but_never_with_a_users_file(tiny, tmp_path, runner):
+    # the report replaces its folder whole (all or nothing), so a file no report writes, added
+    # to a report folder later, or the ledger moved into it, stops the report instead of being lost
+    out = tmp_path / "site"
+    args = ["--ledger", str(tiny), "report", str(out), "--as-of", "2026-12-01"]
+    assert runner.invoke(app, args).exit_code == 0
+    (out / "stale.html").write_text("a page an older report wrote")
+    assert runner.invoke(app, args).exit_code == 0
+    assert not (out / "stale.html").exists() and (out / "index.html").is_file()       # nothing stale survives
+    (out / "notes.txt").write_text("mine")
+    r = runner.invoke(app, args)
+    assert r.exit_code == 1 and r.stderr.startswith(f"Error: {out} holds 'notes.txt', which no report wrote"), r.stderr
+    assert (out / "notes.txt").read_text() == "mine"
+    (out / "notes.txt").unlink()
+    inside = out / "l.duckdb.html"             # a ledger named like a page, inside its own report folder
+    inside.write_bytes(tiny.read_bytes())
+    r = runner.invoke(app, ["--ledger", str(inside), "report", str(out), "--as-of", "2026-12-01"])
+    assert r.exit_code == 1 and r.stderr.startswith(f"Error: the ledger {inside} is inside {out}"), r.stderr
+    assert inside.read_bytes() == tiny.read_bytes()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["l.duckdb", "site"]

@@ -209,3 +209,11 @@ def test_a_long_command_breaks_with_shell_continuations():
     assert lines == ["  backsight --ledger some/where/demo.duckdb \\",
                      "      compare incumbent-hw challenger-damped"]
     assert command_lines(cmd, 200) == [cmd]
+
+
+def test_flags_help_names_every_kind_and_severity(runner):
+    from ledger.cli.findings import Kind, SeverityOpt
+    text = " ".join(runner.invoke(app, ["flags", "--help"], env={"COLUMNS": "200"}).stdout.split())
+    assert "drift, calibration, quantiles, value or data" in text and "act, watch or note" in text
+    assert [k.value for k in Kind] == ["drift", "calibration", "quantiles", "value", "data"]
+    assert [s.value for s in SeverityOpt] == ["act", "watch", "note"]

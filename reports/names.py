@@ -5,7 +5,8 @@ A series key or model name can be anything a forecast file holds: ``../../etc``,
 lower-case ASCII slug of the key (for people reading a folder listing) followed by a short
 SHA-256 digest of the exact key, so two keys that differ only in case, or that slug alike, still
 get distinct names, also on case-insensitive file systems. Names never contain a path separator
-or start with a dot, and every write is checked to resolve inside the output folder.
+or start with a dot, and every write is checked to resolve inside the output folder. A report
+is written into a hidden sibling folder and swapped in whole (:func:`staged_folder`).
 """
 
 from __future__ import annotations

@@ -231,11 +231,6 @@ class Ledger:
         """SHA-256 of all a report reads at the as-of: runs, actuals, series, attributes, settings."""
         return reads.report_state_hash(self.store, parse_as_of(as_of))
 
-    def quiet(self) -> "Ledger":
-        """Turn off DuckDB's progress bar on this connection (it writes to stdout); returns self."""
-        reads.hide_progress(self.store)
-        return self
-
     def quantile_cells(self, **selection) -> pd.DataFrame:
         """Every scored cell and quantile level: value, actual and whether the actual fell below."""
         from .scoring.quantile_reads import quantile_cells

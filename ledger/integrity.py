@@ -17,7 +17,7 @@ import dataclasses
 import duckdb
 
 from .hashing import chain_hash_sql, run_content_hash, run_rows, write_hash_sql
-from .store import DDL, SCHEMA_VERSION, Store, bounded_memory
+from .store import DDL, SCHEMA_VERSION, Store, bounded_memory, quiet
 
 __all__ = ["Problem", "verify"]
 
@@ -176,7 +176,7 @@ def _schema(store: Store) -> list[Problem]:
 
 
 def _reference() -> duckdb.DuckDBPyConnection:
-    con = duckdb.connect()
+    con = quiet(duckdb.connect())
     con.execute(DDL)
     return con
 

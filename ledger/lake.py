@@ -32,7 +32,7 @@ import duckdb
 from .errors import LedgerError
 from .manifest import (MANIFEST_NAME, ExportFile, Manifest, check_files, file_checksum, read_manifest,
                        write_manifest)
-from .store import DDL, SCHEMA_VERSION, TABLES, Store
+from .store import DDL, SCHEMA_VERSION, TABLES, Store, quiet
 
 __all__ = ["LAYOUT", "LakeExport", "LakeMismatch", "export_lake", "is_lake", "lake_readers", "open_lake",
            "escape_partition_value", "verify_lake"]
@@ -227,7 +227,7 @@ def open_lake(folder: str | os.PathLike, manifest: Manifest | None = None, *, lo
     """
     folder = Path(folder)
     manifest = manifest or read_manifest(folder)
-    con = duckdb.connect()
+    con = quiet(duckdb.connect())
     con.execute(DDL)
     for table, reader in lake_readers(folder, manifest).items():
         if reader:

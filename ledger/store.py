@@ -385,12 +385,19 @@ def _wait_seconds(wait: float | None) -> float:
         raise LedgerError(f"BACKSIGHT_WAIT={os.environ['BACKSIGHT_WAIT']!r} is not a number of seconds") from None
 
 
+def quiet(con: duckdb.DuckDBPyConnection) -> duckdb.DuckDBPyConnection:
+    """No progress bar on this connection: DuckDB draws it on stdout, which carries CSV and JSON
+    for programs (it cannot be set at connect time)."""
+    con.execute("SET enable_progress_bar = false")
+    return con
+
+
 def _connect(path: Path, *, read_only: bool, wait: float) -> duckdb.DuckDBPyConnection:
     deadline = time.monotonic() + wait
     pause = 0.05
     while True:
         try:
-            return duckdb.connect(str(path), read_only=read_only)
+            return quiet(duckdb.connect(str(path), read_only=read_only))
         except duckdb.IOException as exc:
             text = str(exc)
             if (age := _empty_file_age(path)) is not None:

@@ -209,12 +209,7 @@ def _findings(book: Ledger, models: list[str], as_of, horizon: int, incumbent, b
 # Jobs for worker processes: each opens the ledger read-only (DuckDB allows many readers).
 
 def _open(path: str) -> Ledger:
-    return quiet(Ledger.open(path, create=False, read_only=True))
-
-
-def quiet(book: Ledger) -> Ledger:
-    """No DuckDB progress bar: it would write to stdout, which the CLI keeps for the index path."""
-    return book.quiet()
+    return Ledger.open(path, create=False, read_only=True)
 
 
 def findings_job(path: str, as_of: dt.datetime, models: list[str], horizon: int, incumbent: str | None,

@@ -30,7 +30,7 @@ from ledger.wording import format_level
 
 from . import charts
 from .cycle_views import CycleData, SeriesCycle, build_series_cycle, load_cycle
-from .data import LedgerData, check_roles, default_horizon, findings_job, load, quiet, report_models, series_count
+from .data import LedgerData, check_roles, default_horizon, findings_job, load, report_models, series_count
 from .trends import ROLLING
 from .value_added import SEASONAL_NAIVE_NAMES, check_overrides
 from .group_views import GROUPS_PAGE, GroupData, build_groups, check_group_by, count_findings, load_groups
@@ -124,7 +124,7 @@ def render_report(ledger_path, out_dir, *, as_of=None, since: str | None = None,
     out = Path(out_dir)
     claim_folder(out)
     path = str(Path(ledger_path).resolve())
-    with quiet(Ledger.open(ledger_path, create=False, read_only=True)) as book, \
+    with Ledger.open(ledger_path, create=False, read_only=True) as book, \
             _executor(_worker_count(series_count(book, stamp), workers)) as pool:
         group_by = check_group_by(book, group_by, stamp) if group_by is not None else None
         # Started first, on the models and incumbent load() will find, so that the findings

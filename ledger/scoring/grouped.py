@@ -66,8 +66,6 @@ def scores(store: Store, sel: Selection, by: Sequence[str] = ("model", "horizon"
     con = store.con
     try:
         plan = _Plan(con, sel, keys, attrs, where)
-        if plan.sums.exact:   # DuckDB draws a progress bar on stdout after 2 s: not into a CSV on stdout
-            con.execute("SET enable_progress_bar = false")
         point = plan.run(plan.point_sql(), plan.params).df()
         bounds = plan.run(plan.bounds_sql(), plan.params).df()
         quant = general = slow_detail = None

@@ -20,7 +20,6 @@ from .cells import Selection, bounds_join, cells_sql, forecasts_sql
 
 __all__ = [
     "actual_history",
-    "hide_progress",
     "interval_counts",
     "latest_forecasts",
     "live_runs",
@@ -159,7 +158,3 @@ def report_state_hash(store: Store, as_of: dt.datetime) -> str:
     return digest.hexdigest()
 
 
-def hide_progress(store: Store) -> None:
-    """No DuckDB progress bar on this connection: it would write to stdout, which the CLI keeps
-    for the report's index path."""
-    store.con.execute("SET enable_progress_bar = false")

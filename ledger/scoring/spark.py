@@ -24,7 +24,7 @@ import pandas as pd
 
 from ..errors import LedgerError
 from ..manifest import MANIFEST_NAME, Manifest, parse_manifest
-from ..store import DDL, TABLES
+from ..store import DDL, TABLES, quiet
 from .dialect import SPARK, parse_statement
 
 __all__ = ["SparkUnavailable", "SparkLake", "session", "scores", "lake_ledger"]
@@ -87,7 +87,7 @@ def _spark_types() -> dict[str, str]:
 
     names = {"VARCHAR": "string", "DATE": "date", "INTEGER": "int", "BIGINT": "bigint",
              "DOUBLE": "double", "TIMESTAMP": "timestamp_ntz", "BOOLEAN": "boolean"}
-    con = duckdb.connect()
+    con = quiet(duckdb.connect())
     con.execute(DDL)
     rows = con.execute("SELECT table_name, column_name, data_type FROM information_schema.columns "
                        "ORDER BY table_name, ordinal_position").fetchall()

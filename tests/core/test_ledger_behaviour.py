@@ -181,3 +181,12 @@ def test_env_var_names_the_ledger(tmp_path, runner):
     RUN.to_csv(run, index=False)
     r = runner.invoke(app, ["snapshot", str(run), "--model", "m", "--origin", "2025-12"], env={"BACKSIGHT_LEDGER": str(path)})
     assert r.exit_code == 0 and path.exists()
+
+
+def test_no_connection_draws_a_progress_bar(ledger_path):
+    """DuckDB draws its bar on stdout after 2 s, where `--format csv` output goes: every
+    connection the ledger opens, writable or read-only, has it off."""
+    with Ledger.open(ledger_path) as book:
+        assert book.store.con.execute("SELECT current_setting('enable_progress_bar')").fetchone() == (False,)
+    with Ledger.open(ledger_path, create=False, read_only=True) as book:
+        assert book.store.con.execute("SELECT current_setting('enable_progress_bar')").fetchone() == (False,)

@@ -11,13 +11,16 @@ from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
 from .common import app, say
+from .terminal import command_lines, out_width
 from ..findings.summary import finding_counts
 from ..wording import plural
 
-__all__ = ["demo", "summary_lines"]
+__all__ = ["demo", "print_summary", "summary_lines"]
 
 #: Findings the summary lists (the report's first screen lists more).
 TOP = 3
+#: How each command to try next begins.
+_TRY = "  backsight "
 
 
 @app.command()
@@ -38,8 +41,18 @@ def demo(
             bar.update(task, completed=done, total=total, description=what[:12])
 
         result = build_demo(out, ledger_path=ledger, progress=progress)
+    print_summary(result)
+
+
+def print_summary(result) -> None:
+    """Print :func:`summary_lines` fitted to the width: sentences wrapped, each list item's
+    lines hanging under it, a command to copy broken with shell continuations, never shortened."""
     for line in summary_lines(result):
-        say(line)
+        if line.startswith(_TRY):
+            for part in command_lines(line, out_width()):
+                typer.echo(part)
+        else:
+            say(line)
 
 
 def summary_lines(result) -> list[str]:
@@ -59,9 +72,9 @@ def summary_lines(result) -> list[str]:
         lines += [f"  {i}. {_one_line(row)}" for i, row in enumerate(top.to_dict("records"), start=1)]
     ledger = f"--ledger {shlex.quote(str(r.ledger_path))}"
     lines += ["Try next:",
-              f"  backsight {ledger} flags --severity act",
-              f"  backsight {ledger} scores --by model --horizon 1",
-              f"  backsight {ledger} compare {shlex.quote(result.incumbent)} {shlex.quote(result.challenger)} --horizon 1"]
+              f"{_TRY}{ledger} flags --severity act",
+              f"{_TRY}{ledger} scores --by model --horizon 1",
+              f"{_TRY}{ledger} compare {shlex.quote(result.incumbent)} {shlex.quote(result.challenger)} --horizon 1"]
     return lines + [f"Report: {result.report.index}"]
 
 

@@ -48,6 +48,12 @@ class SeverityOpt(str, enum.Enum):
     note = "note"
 
 
+def _either(choices: type[enum.Enum]) -> str:
+    """'a, b or c' from an option's choices, so that the help cannot fall behind them."""
+    names = [c.value for c in choices]
+    return f"{', '.join(names[:-1])} or {names[-1]}"
+
+
 AlphaOpt = Annotated[float, typer.Option("--alpha", metavar="X", help="Significance level of the DM-HLN test (two-sided).")]
 # One row per finding in the table; impact and action when the findings carry them.
 _FLAG_TABLE = ["kind", "severity", "series", "model", "horizons", "level", "since", "figure", "impact", "check", "action"]
@@ -58,8 +64,8 @@ _FLAG_TABLE = ["kind", "severity", "series", "model", "horizons", "level", "sinc
 @with_selection()
 def flags(
     ctx: typer.Context,
-    kind: Annotated[list[Kind] | None, typer.Option("--kind", metavar="KIND", help="Only findings of this kind: drift, calibration, value or data (repeatable).")] = None,
-    severity: Annotated[list[SeverityOpt] | None, typer.Option("--severity", metavar="SEVERITY", help="Only findings of this severity: act, watch or note (repeatable).")] = None,
+    kind: Annotated[list[Kind] | None, typer.Option("--kind", metavar="KIND", help=f"Only findings of this kind: {_either(Kind)} (repeatable).")] = None,
+    severity: Annotated[list[SeverityOpt] | None, typer.Option("--severity", metavar="SEVERITY", help=f"Only findings of this severity: {_either(SeverityOpt)} (repeatable).")] = None,
     chosen: dict | None = None,
     by: Annotated[str | None, typer.Option("--by", metavar="ATTR", help="Count findings per value of this series attribute and kind.")] = None,
     long: Annotated[bool, typer.Option("--long", help="After the table, each finding's evidence as a sentence.")] = False,

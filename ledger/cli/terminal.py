@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import math
 import os
+import re
 import shutil
 import sys
 import unicodedata
@@ -26,7 +27,7 @@ from typing import Any
 import pandas as pd
 from rich.cells import cell_len
 
-__all__ = ["printable", "out_width", "wrap", "middle", "render_table", "cell_text", "SENTENCE_COLUMNS"]
+__all__ = ["printable", "out_width", "wrap", "command_lines", "middle", "render_table", "cell_text", "SENTENCE_COLUMNS"]
 
 ELLIPSIS = "…"
 GAP = "  "
@@ -99,22 +100,51 @@ def wrap(text: str, width: int | None) -> list[str]:
     """A sentence broken at spaces into lines of at most ``width`` cells.
 
     A single word longer than the width (a long name) is shortened in the middle rather than
-    split, so that no identifier is ever broken across lines.
+    split, so that no identifier is ever broken across lines. A leading indent and list marker
+    (``  1. ``, ``- ``) stay on the first line and the lines after it hang under the text, so a
+    wrapped item of a list still reads as one item.
     """
     text = printable(text)
     if width is None or cell_len(text) <= width:
         return [text]
+    marker = _MARKER.match(text).group(0)
+    if len(marker) >= width // 2:       # a terminal too narrow to hang lines under the text
+        marker = ""
+    hang = " " * len(marker)
     lines: list[str] = []
-    line = ""
-    for word in text.split(" "):
-        word = middle(word, width)
-        candidate = f"{line} {word}" if line else word
-        if cell_len(candidate) <= width:
-            line = candidate
+    line, words = marker, 0         # words: how many the current line holds after its indent
+    for word in text[len(marker):].split(" "):
+        word = middle(word, width - len(hang))
+        candidate = f"{line} {word}" if words else line + word
+        if cell_len(candidate) <= width or not words:
+            line, words = candidate, words + 1
         else:
-            if line:
-                lines.append(line)
-            line = word
+            lines.append(line)
+            line, words = hang + word, 1
+    lines.append(line)
+    return lines
+
+
+_MARKER = re.compile(r" *(?:\d+\. |- )?")
+
+
+def command_lines(command: str, width: int | None) -> list[str]:
+    """A shell command to copy: never shortened, and broken at spaces only with a trailing
+    ``\\`` on each line but the last (a POSIX shell joins them), the rest indented."""
+    command = printable(command)
+    if width is None or cell_len(command) <= width:
+        return [command]
+    lead = command[:len(command) - len(command.lstrip(" "))]
+    indent = lead + "    "
+    lines: list[str] = []
+    line, words = lead, 0
+    for word in command[len(lead):].split(" "):
+        candidate = f"{line} {word}" if words else line + word
+        if cell_len(candidate) + 2 <= width or not words:     # + 2: room for the " \\"
+            line, words = candidate, words + 1
+        else:
+            lines.append(line + " \\")
+            line, words = indent + word, 1
     lines.append(line)
     return lines
 

@@ -235,32 +235,43 @@ class _Labels:
         return self.stage.label_kinds(self.column)
 
 
-def _decide_frequency(source: str, columns: list[_Labels], freq: str | None, known: set[str]) -> str:
-    """The file's one frequency: from --freq, from its labels, or from the series' record."""
-    said_by = None
+def _decide_frequency(source: str, columns: list[_Labels], freq: str | None, known: set[str]) -> tuple[str, str | None]:
+    """The file's one frequency and what said so (``--freq``, a label column's name, or None for
+    the series' record): from --freq, else from the labels of the first column holding any (the
+    kind most of its rows hold), else from the series' record. Rows of another kind are
+    :func:`_other_frequencies`' to report."""
     if freq is not None:
         try:
-            freq = check_frequency(freq)
+            return check_frequency(freq), "--freq"
         except ValueError as exc:
             raise FrequencyError(f"--freq: {exc}") from None
-        said_by = f"--freq is {freq}"
     for labels in columns:
         kinds = labels.kinds()
-        if len(kinds) > 1:
-            second = sorted(kinds)[1]
-            raise InputError(source, f"mixes {' and '.join(sorted(kinds))} labels; one file holds one frequency",
-                             row=kinds[second], column=labels.column)
+        if len(kinds) > 1:      # the file's frequency is its rows' majority; the others are the mistakes
+            counts = labels.stage.kind_rows(labels.column)
+            return max(counts, key=lambda k: (counts[k][0], -counts[k][1])), labels.column
         if kinds:
-            kind, row = kinds.popitem()
-            if freq is not None and kind != freq:
-                raise InputError(source, f"is a {kind} label but {said_by}", row=row, column=labels.column)
-            freq, said_by = kind, f"column {labels.column} holds {kind} labels"
-    if freq is None and len(known) == 1:
-        freq = next(iter(known))
-    if freq is None:
-        raise InputError(source, "holds bare dates, which fit several frequencies; say which with "
-                         f"--freq ({', '.join(FREQUENCIES)})", row=1, column=columns[0].column)
-    return freq
+            return next(iter(kinds)), labels.column
+    if len(known) == 1:
+        return next(iter(known)), None
+    raise InputError(source, "holds bare dates, which fit several frequencies; say which with "
+                     f"--freq ({', '.join(FREQUENCIES)})", row=1, column=columns[0].column)
+
+
+def _other_frequencies(source: str, columns: list[_Labels], freq: str, said_by: str | None,
+                       problems: Problems) -> None:
+    """Every row whose label is of another frequency than the file's, each a problem; those rows
+    are then left out of the stage so the whole-file checks still run on the others."""
+    for labels in columns:
+        if set(labels.kinds()) <= {freq}:
+            continue
+        found, total = labels.stage.other_kinds(labels.column, freq)
+        problems.extend([InputError(source, f"is a {kind} label but --freq is {freq}" if said_by == "--freq" else
+                                    f"mixes {' and '.join(sorted((kind, freq)))} labels; one file holds one frequency"
+                                    if said_by == labels.column else
+                                    f"is a {kind} label but column {said_by} holds {freq} labels",
+                                    row=row, column=labels.column) for row, kind in found], total)
+        labels.stage.drop_other_kinds(labels.column, freq)
 
 
 def _extra_columns(columns: list[str], known: set[str], source: str) -> list[str]:
@@ -384,7 +395,9 @@ def _read_forecasts(store, data, model, origin, freq, name, progress, *, plain: 
         # With problems already found, the frequency's own problem may be their echo (no label
         # left to read it from): it is then not reported, and the whole-file checks are skipped.
         with (Problems(source) if problems else problems).guard():
-            frequency = _decide_frequency(source, [periods, origins], freq, stage.known_frequencies())
+            frequency, said_by = _decide_frequency(source, [periods, origins], freq, stage.known_frequencies())
+        if frequency is not None:
+            _other_frequencies(source, [periods, origins], frequency, said_by, problems)
         if frequency is not None and periods.seen:
             option = f"--origin {origin}" if origin is not None and "origin" not in columns and \
                 not periods.kinds() else None
@@ -621,7 +634,9 @@ def _read_actuals(store, data, freq, name, progress, *, plain: bool) -> ActualsF
         # With problems already found, the frequency's own problem may be their echo (no label
         # left to read it from): it is then not reported, and the whole-file checks are skipped.
         with (Problems(source) if problems else problems).guard():
-            frequency = _decide_frequency(source, [periods], freq, stage.known_frequencies())
+            frequency, said_by = _decide_frequency(source, [periods], freq, stage.known_frequencies())
+        if frequency is not None:
+            _other_frequencies(source, [periods], frequency, said_by, problems)
         if frequency is not None and periods.seen:
             _recorded(stage, source, frequency, problems)
             stage.resolve(frequency, ["period"], "series, period_index")

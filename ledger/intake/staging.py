@@ -122,6 +122,28 @@ class Stage:
                                 "AND kind IS NOT NULL GROUP BY kind", [column]).fetchall()
         return {kind: int(row) for kind, row in rows}
 
+    def kind_rows(self, column: str) -> dict[str, tuple[int, int]]:
+        """Each label kind in ``column`` with (how many rows hold one, the first such row); asked
+        only of a column holding several kinds, which is the one case a count by row is needed."""
+        rows = self.con.execute(
+            f"SELECT l.kind, count(*), min(s.row) FROM {self.table} s JOIN (SELECT DISTINCT label, kind FROM "
+            f"{self.table}_labels WHERE col = $col AND kind IS NOT NULL) l ON l.label = s.{column} GROUP BY l.kind",
+            {"col": column}).fetchall()
+        return {kind: (int(n), int(first)) for kind, n, first in rows}
+
+    def other_kinds(self, column: str, freq: str) -> tuple[list[tuple[int, str]], int]:
+        """Rows whose ``column`` label is of another frequency than ``freq``: (row, kind) of the
+        first :data:`SHOWN` in file order, and how many there are."""
+        return self._first_rows(
+            f"SELECT s.row, l.kind FROM {self.table} s JOIN (SELECT DISTINCT label, kind FROM {self.table}_labels "
+            f"WHERE col = $col AND kind <> $freq) l ON l.label = s.{column}", {"col": column, "freq": freq})
+
+    def drop_other_kinds(self, column: str, freq: str) -> None:
+        """Leave out the rows just refused for another frequency, so that the whole-file checks
+        (duplicates, horizons) still run on the rest instead of being skipped."""
+        self.con.execute(f"DELETE FROM {self.table} WHERE {column} IN (SELECT label FROM {self.table}_labels "
+                         "WHERE col = $col AND kind <> $freq)", {"col": column, "freq": freq})
+
     def resolve(self, freq: str, label_columns: list[str], order: str) -> None:
         """Build the ready table, sorted by ``order``: each label column becomes a start date and a
         period index (in SQL, with the formulas of :func:`ledger.periods.period_start` and

@@ -55,6 +55,57 @@ def test_six_faults_all_reported_in_file_order(runner, base, tmp_path):
     ]
 
 
+MIXED = ("series,period,forecast\n"
+         "A,2026-01,10\n"
+         "A,2026-01,11\n"
+         "A,2025-10,10\n"
+         "A,2026-W03,10\n"
+         "A,2026-02,x\n"
+         "A,2026-02,10\n"
+         "A,2026-02,12\n"
+         "A,2025-11,10\n"
+         "A,2026Q2,10\n"
+         "W,2026-03,10\n"
+         "W,2026-04,10\n")
+
+
+def test_whole_file_checks_name_every_row_beside_the_per_row_ones(runner, base, tmp_path):
+    # Two rows of other frequencies, three repeats, two periods before the origin, one bad number and
+    # one series recorded weekly: all reported in one pass (the other-frequency rows do not stop
+    # the duplicate and horizon checks); the recorded frequency is named once per series.
+    f = write(tmp_path / "mixed.csv", MIXED)
+    lines = _refused(runner, base, "snapshot", str(f), "--model", "m", "--origin", "2025-12")
+    assert lines == [
+        "Error: mixed.csv: 9 problems; nothing was written",
+        "mixed.csv row 2 column period: a second forecast for the same series, period, model and origin (first at row 1)",
+        "mixed.csv row 3 column period: target period 2025-10 is not after the origin 2025-12",
+        "mixed.csv row 4 column period: mixes monthly and weekly labels; one file holds one frequency",
+        "mixed.csv row 5 column forecast: 'x' is not a finite number",
+        "mixed.csv row 6 column period: a second forecast for the same series, period, model and origin (first at row 5)",
+        "mixed.csv row 7 column period: a second forecast for the same series, period, model and origin (first at row 5)",
+        "mixed.csv row 8 column period: target period 2025-11 is not after the origin 2025-12",
+        "mixed.csv row 9 column period: mixes monthly and quarterly labels; one file holds one frequency",
+        "mixed.csv row 10 column series: series 'W' is recorded as weekly, but this file is monthly; "
+        "a series keeps the frequency it was first recorded with",
+    ]
+
+
+def test_the_file_frequency_is_its_majority_and_freq_names_every_other_row(runner, base, tmp_path):
+    f = write(tmp_path / "q.csv", "series,period,actual\nB,2026Q1,1\nB,2026-02,1\nB,2026-03,1\nB,2026-04,1\n"
+                                 "B,2026Q3,1\n")
+    assert _refused(runner, base, "actuals", str(f)) == [
+        "Error: q.csv: 2 problems; nothing was written",
+        "q.csv row 1 column period: mixes monthly and quarterly labels; one file holds one frequency",
+        "q.csv row 5 column period: mixes monthly and quarterly labels; one file holds one frequency",
+    ]
+    assert _refused(runner, base, "actuals", str(f), "--freq", "quarterly") == [
+        "Error: q.csv: 3 problems; nothing was written",
+        "q.csv row 2 column period: is a monthly label but --freq is quarterly",
+        "q.csv row 3 column period: is a monthly label but --freq is quarterly",
+        "q.csv row 4 column period: is a monthly label but --freq is quarterly",
+    ]
+
+
 def test_at_most_twenty_then_how_many_more(runner, base, tmp_path):
     rows = "".join(f"A,2026-{m:02d},x{m}\n" for m in range(1, 13)) + "".join(
         f"A,2027-{m:02d},y{m}\n" for m in range(1, 13)) + "A,2028-01,z\n"

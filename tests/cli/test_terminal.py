@@ -191,3 +191,29 @@ def test_help_has_no_internal_metavars(runner):
         assert result.exit_code == 0
         for bad in ("list[", "<int", "{", "<str>", "<path>", "<float>"):
             assert bad not in result.stdout, (name, bad)
+
+
+def test_a_wrapped_list_item_hangs_under_its_text():
+    from ledger.cli.terminal import wrap
+    item = "  2. act drift m: forecasts too high on 9 series from about 2023-02: a/b, c/d, e/f"
+    assert wrap(item, 40) == ["  2. act drift m: forecasts too high on",
+                              "     9 series from about 2023-02: a/b,",
+                              "     c/d, e/f"]
+    assert wrap("plain words here", 10) == ["plain", "words here"]
+
+
+def test_a_long_command_breaks_with_shell_continuations():
+    from ledger.cli.terminal import command_lines
+    cmd = "  backsight --ledger some/where/demo.duckdb compare incumbent-hw challenger-damped"
+    lines = command_lines(cmd, 50)
+    assert lines == ["  backsight --ledger some/where/demo.duckdb \\",
+                     "      compare incumbent-hw challenger-damped"]
+    assert command_lines(cmd, 200) == [cmd]
+
+
+def test_flags_help_names_every_kind_and_severity(runner):
+    from ledger.cli.findings import Kind, SeverityOpt
+    text = " ".join(runner.invoke(app, ["flags", "--help"], env={"COLUMNS": "200"}).stdout.split())
+    assert "drift, calibration, quantiles, value or data" in text and "act, watch or note" in text
+    assert [k.value for k in Kind] == ["drift", "calibration", "quantiles", "value", "data"]
+    assert [s.value for s in SeverityOpt] == ["act", "watch", "note"]

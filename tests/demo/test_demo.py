@@ -13,7 +13,7 @@ import pytest
 
 from ledger import Ledger
 from ledger.cli import app
-from ledger.cli.demo import summary_lines
+from ledger.cli.demo import print_summary, summary_lines
 from ledger.demo import DEMO_OVERRIDES
 from ledger.findings.base import OVER_BASE
 from ledger.findings.summary import finding_counts
@@ -57,6 +57,31 @@ def test_summary_printed(demo):
     assert tries[2].endswith("compare incumbent-hw challenger-damped --horizon 1")
     assert lines[-1] == f"Report: {(out / 'report' / 'index.html').resolve()}"
     assert len(lines) == 12
+
+
+@pytest.mark.parametrize("width", [80, 120])
+def test_the_printed_summary_fits_the_terminal(demo, runner, width, monkeypatch, capsys):
+    # Issue 15 tests: under COLUMNS=80 and 120 no line is longer than the width; a finding wrapped
+    # over lines hangs under its number; a command wider than the terminal is broken with shell
+    # continuations (never shortened) and, joined back as a shell would, runs.
+    _, result, _ = demo
+    monkeypatch.setenv("COLUMNS", str(width))
+    print_summary(result)
+    printed = capsys.readouterr().out.splitlines()
+    assert printed and max(len(line) for line in printed) <= width
+    assert "…" not in "\n".join(printed)
+    shown = printed.index("Top 3 findings:")
+    items = printed[shown + 1:printed.index("Try next:")]
+    assert [line[:5] for line in items if not line.startswith("     ")] == ["  1. ", "  2. ", "  3. "]
+    assert " ".join(line.strip() for line in items) == " ".join(
+        line.strip() for line in summary_lines(result)[4:7])
+    tries = re.sub(r" \\\n +", " ", "\n".join(printed[printed.index("Try next:") + 1:-1]))
+    assert tries.splitlines() == [line for line in summary_lines(result) if line.startswith("  backsight ")]
+    if width == 80:
+        assert any(line.endswith(" \\") for line in printed)    # the compare command is 98 characters
+    for line in tries.splitlines():
+        ran = runner.invoke(app, shlex.split(line)[1:])
+        assert ran.exit_code == 0, (line, ran.output)
 
 
 def test_the_demo_records_its_override_relation(demo):

@@ -36,6 +36,7 @@ from matplotlib.textpath import text_to_path
 __all__ = [
     "BAND",
     "INK",
+    "LEGEND_CHARS",
     "LEGEND_COLS",
     "PALETTE",
     "RC",
@@ -137,16 +138,19 @@ class _SVGCanvas(FigureCanvasSVG):
 
 _WIDTH = 6.0      # inches; pages scale the SVG to their width
 LEGEND_COLS = 3
+#: Characters of 8-point legend text one legend row holds, handles and gaps included: a label is
+#: cut to LEGEND_CHARS // columns (26 at three columns, 39 at two).
+LEGEND_CHARS = 78
 
 
-def figure(height: float, entries: int, rows: int = 1, ratios=None) -> tuple[Figure, list]:
+def figure(height: float, entries: int, rows: int = 1, ratios=None, cols: int = LEGEND_COLS) -> tuple[Figure, list]:
     """A figure with fixed margins and room for a legend of ``entries`` items below the plot.
 
     Fixed margins, not constrained layout: a layout engine draws the figure twice, which
     doubles the cost of the thousand series charts of a large report. The legend sits under
     the axes so that the plot keeps the full width on a phone.
     """
-    legend_rows = math.ceil(entries / LEGEND_COLS)
+    legend_rows = math.ceil(entries / cols)
     total = height + 0.2 * legend_rows
     fig = Figure(figsize=(_WIDTH, total))
     _SVGCanvas(fig)
@@ -156,17 +160,17 @@ def figure(height: float, entries: int, rows: int = 1, ratios=None) -> tuple[Fig
     return fig, list(axes)
 
 
-def legend(fig: Figure) -> None:
+def legend(fig: Figure, cols: int = LEGEND_COLS) -> None:
     handles, labels = [], []
     for ax in fig.axes:
         h, lab = ax.get_legend_handles_labels()
         handles += h
         labels += lab
     if handles:
-        fig.legend(handles, labels, loc="lower center", ncols=LEGEND_COLS, bbox_to_anchor=(0.5, 0.0))
+        fig.legend(handles, labels, loc="lower center", ncols=cols, bbox_to_anchor=(0.5, 0.0))
 
 
-def short(name: str, limit: int = 26) -> str:
+def short(name: str, limit: int = LEGEND_CHARS // LEGEND_COLS) -> str:
     """Legend labels are cut to ``limit`` characters (tables carry the full names)."""
     return name if len(name) <= limit else name[: limit - 1] + "…"
 

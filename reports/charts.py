@@ -15,7 +15,8 @@ import numpy as np
 
 from ledger.wording import format_level
 
-from .chart_base import BAND, INK, PALETTE, RC, Chart, clean_svg, figure, legend, model_styles, render, short, ticks
+from .chart_base import (BAND, INK, LEGEND_CHARS, LEGEND_COLS, PALETTE, RC, Chart, clean_svg, figure, legend,
+                         model_styles, render, short, ticks)
 from .series_chart import Fan, legend_entries, series_chart
 
 __all__ = [
@@ -74,19 +75,22 @@ def lines_chart(chart_id: str, title: str, summary: str, periods: Sequence[str],
 
 def horizon_chart(chart_id: str, title: str, summary: str, horizons: Sequence[int],
                   values: Mapping[str, Sequence[float]], styles: Mapping[str, dict], *, ylabel: str,
-                  references: Sequence[float] = ()) -> Chart:
-    """One line per model (or level) across horizons; ``references`` draws dotted guide lines."""
+                  references: Sequence[float] = (), legend_cols: int = LEGEND_COLS) -> Chart:
+    """One line per model (or level) across horizons; ``references`` draws dotted guide lines;
+    fewer ``legend_cols`` leave room for longer labels (a style's optional ``fill`` colours the
+    marker's face, so one colour can draw two lines apart)."""
     with matplotlib.rc_context(RC):
-        fig, (ax,) = figure(2.8, len(values))
+        fig, (ax,) = figure(2.8, len(values), cols=legend_cols)
         for model, ys in values.items():
             st = styles[model]
-            ax.plot(list(horizons), list(ys), label=short(model), color=st["color"], linestyle=st["linestyle"],
-                    marker=st["marker"], markersize=3.5)
+            ax.plot(list(horizons), list(ys), label=short(model, LEGEND_CHARS // legend_cols), color=st["color"],
+                    linestyle=st["linestyle"], marker=st["marker"], markersize=3.5,
+                    markerfacecolor=st.get("fill", st["color"]))
         for ref in references:
             ax.axhline(ref, color=BAND, linewidth=0.9, linestyle=(0, (1, 2)))
         ax.set_xticks(list(horizons))
         ax.set(title=title, ylabel=ylabel, xlabel="Horizon h (periods ahead of the origin)")
-        legend(fig)
+        legend(fig, legend_cols)
         return render(fig, chart_id, title, summary)
 
 

@@ -104,14 +104,17 @@ def fva_chart(steps: pd.DataFrame, styles: dict) -> charts.Chart | None:
         by_h = {h: fva_rows(steps[(steps["model"] == row.model) & (steps["reference"] == row.reference)], [h])
                 for h in horizons}
         values[label] = [r[0].fva if r else math.nan for r in by_h.values()]
-        step_styles[label] = styles.get(row.model, charts.model_styles([label])[label])
+        style = styles.get(row.model, charts.model_styles([label])[label])
+        # a model's override step shares its colour with its benchmark step: hollow markers tell them apart
+        step_styles[label] = style if row.step == "against the benchmark" else {**style, "fill": "white"}
     words = "; ".join(f"{k}: {num(v[0])}% at h={horizons[0]}, {num(v[-1])}% at h={horizons[-1]}"
                       for k, v in values.items() if not (np.isnan(v[0]) and np.isnan(v[-1])))
     return charts.horizon_chart(
         "c-fva", "Forecast value added by horizon",
         f"One line per step: 100·(1 − MASE of the model / MASE of its reference) on common cells; above 0 the step "
         f"adds value, below 0 it makes the forecast worse. {words}.",
-        horizons, values, step_styles, ylabel="Value added (% lower MASE)", references=[0.0])
+        horizons, values, step_styles, ylabel="Value added (% lower MASE)", references=[0.0],
+        legend_cols=2)    # "model vs reference" labels: two columns keep them whole
 
 
 def fva_table(steps: pd.DataFrame) -> list[FvaRow]:

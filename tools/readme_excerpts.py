@@ -137,6 +137,11 @@ EXCERPTS: dict[str, Excerpt] = {
         _s("scores", "--by", "model", "--format", "csv", pipe=fields(9)),
     ), ledger="fresh"),
     "attributes": Excerpt((_s("attributes", "attributes.csv"),), ledger="copy"),
+    "totals": Excerpt((
+        _s("attributes", "attributes.csv"),
+        _s("scores", "--totals", "region", "--by", "model,horizon", "--model", "incumbent-hw", "--horizon", "1",
+           "--horizon", "2"),
+    ), ledger="copy"),
     "adjusts": Excerpt((_s("adjusts"),)),
     "verify": Excerpt((
         _s("verify"),

@@ -23,7 +23,7 @@ from rich.console import Console
 from rich.markup import escape
 from typer.core import TyperCommand, TyperGroup
 
-from .terminal import out_width, printable, render_table, wrap
+from .terminal import error_lines, out_width, printable, render_table, wrap
 from ..version import __version__
 from ..api import DEFAULT_PATH, Ledger
 from ..errors import LedgerError, describe_os_error
@@ -41,7 +41,7 @@ class _Group(TyperGroup):
             return super().invoke(ctx)
         except LedgerError as exc:
             # Messages quote names and values from the input: shown inert, never raw.
-            typer.echo("\n".join(printable(line) for line in f"Error: {exc}".split("\n")), err=True)
+            typer.echo("\n".join(error_lines(f"Error: {exc}")), err=True)
             raise typer.Exit(EXIT_ERROR) from None
         except BrokenPipeError:
             # The reader left (``backsight changes | head``): stop quietly, as the Python docs advise
@@ -52,7 +52,7 @@ class _Group(TyperGroup):
             message = describe_os_error(exc)
             if message is None:
                 raise
-            typer.echo(f"Error: {message}", err=True)
+            typer.echo("\n".join(error_lines(f"Error: {message}")), err=True)
             raise typer.Exit(EXIT_ERROR) from None
 
 

@@ -27,7 +27,7 @@ from typing import Any
 import pandas as pd
 from rich.cells import cell_len
 
-__all__ = ["printable", "out_width", "wrap", "command_lines", "middle", "render_table", "cell_text", "SENTENCE_COLUMNS"]
+__all__ = ["printable", "out_width", "wrap", "error_lines", "command_lines", "middle", "render_table", "cell_text", "SENTENCE_COLUMNS"]
 
 ELLIPSIS = "…"
 GAP = "  "
@@ -126,6 +126,33 @@ def wrap(text: str, width: int | None) -> list[str]:
 
 
 _MARKER = re.compile(r" *(?:\d+\. |- )?")
+
+
+def error_lines(message: str, stream=None) -> list[str]:
+    """An error message as printed on ``stream`` (stderr): one line per problem, so a log or a
+    pipe can be searched line by line; on a terminal each line is broken at spaces to its width,
+    the rest hanging two spaces in, and a word wider than that (a path, a name) is kept whole.
+    """
+    stream = stream or sys.stderr
+    try:
+        width = out_width(stream) if stream.isatty() else None
+    except (AttributeError, ValueError, OSError):
+        width = None
+    out: list[str] = []
+    for text in (printable(line) for line in message.split("\n")):
+        if width is None or cell_len(text) <= width:
+            out.append(text)
+            continue
+        line, hang = "", " " * min(2, width // 4)
+        for word in text.split(" "):
+            candidate = f"{line} {word}" if line.strip() else line + word
+            if cell_len(candidate) <= width or not line.strip():
+                line = candidate
+            else:
+                out.append(line)
+                line = hang + word
+        out.append(line)
+    return out
 
 
 def command_lines(command: str, width: int | None) -> list[str]:

@@ -16,6 +16,7 @@ from rich.cells import cell_len
 
 from ledger import Ledger
 from ledger.cli import app
+from ledger.cli.terminal import error_lines
 
 from tests import planted
 
@@ -217,3 +218,31 @@ def test_flags_help_names_every_kind_and_severity(runner):
     assert "drift, calibration, quantiles, value or data" in text and "act, watch or note" in text
     assert [k.value for k in Kind] == ["drift", "calibration", "quantiles", "value", "data"]
     assert [s.value for s in SeverityOpt] == ["act", "watch", "note"]
+
+
+class _Stream(io.StringIO):
+    def __init__(self, tty: bool):
+        super().__init__()
+        self.tty = tty
+
+    def isatty(self) -> bool:
+        return self.tty
+
+
+@pytest.mark.parametrize("width", [80, 120])
+def test_error_lines_fit_a_terminal_and_stay_one_line_in_a_pipe(monkeypatch, width):
+    path = "/data/" + "deep/" * 20 + "forecasts.csv"          # 111 characters: wider than either width
+    names = ", ".join(f"north/series-{i}" for i in range(20))
+    message = (f"Error: unknown series 'north/hose'; did you mean 'north/hoses'? known series: {names}\n"
+               f"{path} row 7 column period: 'x' is not a monthly label")
+    monkeypatch.setenv("COLUMNS", str(width))
+    assert error_lines(message, _Stream(tty=False)) == message.split("\n")
+    lines = error_lines(message, _Stream(tty=True))
+    assert len(lines) > 2
+    # every line fits except the one that holds the path alone, which is never cut
+    assert all(len(line) <= width for line in lines if path not in line)
+    assert any(line.strip() == path for line in lines)
+    # nothing lost, nothing split: the words come back in order
+    assert " ".join(" ".join(lines).split()) == " ".join(message.split())
+    starts = [i for i, line in enumerate(lines) if line.startswith(("Error:", path))]
+    assert starts == [0, starts[1]] and all(line.startswith("  ") for i, line in enumerate(lines) if i not in starts)

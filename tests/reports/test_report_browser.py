@@ -128,29 +128,34 @@ def test_page_does_not_overflow_horizontally(site, tmp_path, profile, kind):
 
 def _probe_page(page: str, width: int, height: int) -> str:
     """A wrapper with the page in an iframe of width x height and a script that writes, into the
-    DOM, where the review ends, where the matrix starts, and the right edge of the widest table cell."""
+    DOM, where the review ends, where the matrix starts, the right edge of the widest table cell,
+    the page's width and the narrowest caption as a share of its table's width (1 without captions)."""
     frame = (f'<iframe id="f" width="{width}" height="{height}" style="border:0;display:block" '
              f'srcdoc="{html.escape(page, quote=True)}"></iframe>')
     script = ("window.addEventListener('load', function () { var d = document.getElementById('f').contentDocument;"
               "var r = d.getElementById('review'), m = d.getElementById('matrix'), right = 0;"
               "d.querySelectorAll('td, th').forEach(function (c) { var b = c.getBoundingClientRect();"
               " if (b.width > 0) { right = Math.max(right, b.right); } });"
+              "var share = 1; d.querySelectorAll('table > caption').forEach(function (c) {"
+              " var t = c.parentElement.getBoundingClientRect().width;"
+              " if (t > 0) { share = Math.min(share, c.getBoundingClientRect().width / t); } });"
               "document.body.setAttribute('data-probe', [r ? r.getBoundingClientRect().bottom : -1,"
-              " m ? m.getBoundingClientRect().top : -1, right, d.documentElement.clientWidth].join('x')); });")
+              " m ? m.getBoundingClientRect().top : -1, right, d.documentElement.clientWidth, share].join('x')); });")
     return f"<!DOCTYPE html><html><body style='margin:0'>{frame}<script>{script}</script></body></html>"
 
 
-def _probe(page_file: Path, width: int, height: int, tmp_path: Path, profile: Path) -> tuple[float, float, float, float]:
+def _probe(page_file: Path, width: int, height: int, tmp_path: Path,
+           profile: Path) -> tuple[float, float, float, float, float]:
     wrapper = tmp_path / f"probe-{width}.html"
     wrapper.write_text(_probe_page(page_file.read_text(encoding="utf-8"), width, height), encoding="utf-8")
     dom = _run(["--window-size=1400,1000", "--dump-dom", wrapper.as_uri()], profile).stdout
-    found = re.search(r'data-probe="([-\d.]+)x([-\d.]+)x([-\d.]+)x([-\d.]+)"', dom)
+    found = re.search(r'data-probe="([-\d.]+)x([-\d.]+)x([-\d.]+)x([-\d.]+)x([-\d.e]+)"', dom)
     assert found, "the probe wrote nothing into the DOM"
     return tuple(float(x) for x in found.groups())
 
 
 def test_first_screen_at_1280x800_is_the_review(site, shots, tmp_path, profile):
-    review_bottom, matrix_top, _, _ = _probe(site / "index.html", 1280, 800, tmp_path, profile)
+    review_bottom, matrix_top, *_ = _probe(site / "index.html", 1280, 800, tmp_path, profile)
     assert 0 < review_bottom <= 800, f"the review ends at {review_bottom} px, below the fold of 800 px"
     assert matrix_top >= review_bottom
     for width in WIDTHS:
@@ -162,10 +167,12 @@ def test_first_screen_at_1280x800_is_the_review(site, shots, tmp_path, profile):
 
 @pytest.mark.parametrize("kind", ["index", "model", "series", "findings"])
 def test_no_table_column_is_off_screen_at_390(site, tmp_path, profile, kind):
-    """On a phone every table is a stack of labelled cards: no cell reaches past the screen."""
+    """On a phone every table is a stack of labelled cards: no cell reaches past the screen, and
+    each caption spans its cards (it shrank to a word a line while the table was a block)."""
     name = {"findings": "findings.html"}.get(kind) or PAGES[kind]
-    _, _, right, client = _probe(site / name, 390, 900, tmp_path, profile)
+    _, _, right, client, share = _probe(site / name, 390, 900, tmp_path, profile)
     assert 0 < right <= client + 0.5, f"{kind}: a table cell ends at {right} px on a {client} px screen"
+    assert share > 0.9, f"{kind}: a table caption is {share:.0%} of its table's width"
 
 
 def _pdf_pages(pdf: Path) -> int:

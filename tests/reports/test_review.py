@@ -173,6 +173,24 @@ def test_value_added_equals_an_independent_computation(site, ledger_file, pages)
     assert "override of its base" in section and 'id="c-fva-fig"' in section
 
 
+def test_value_added_legend_names_each_step_whole_and_tells_a_models_two_steps_apart(pages):
+    """Labels such as "challenger-ets vs incumbent-hw" (30 characters) were cut at 26 in a
+    three-column legend; the override step of a model is drawn with hollow markers, its
+    benchmark step with filled ones, in the model's one colour."""
+    index = pages["index.html"]
+    start = index.index('id="c-fva-fig"')
+    svg = index[start:index.index("</svg>", start)]
+    legend = set(re.findall(r"<text[^>]*>([^<]*)</text>", svg))
+    for step in ("challenger-ets vs snaive", "incumbent-hw vs snaive", "challenger-ets vs incumbent-hw"):
+        assert step in legend
+    marks = re.findall(r'<use [^>]*style="fill: (#[0-9a-f]{6}); stroke: (#[0-9a-f]{6})', svg)
+    fills: dict[str, set[str]] = {}
+    for fill, stroke in marks:
+        fills.setdefault(stroke, set()).add(fill)
+    two = [stroke for stroke, f in fills.items() if len(f) == 2]
+    assert len(two) == 1 and fills[two[0]] == {two[0], "#ffffff"}      # challenger-ets: filled and hollow
+
+
 def test_bad_override_is_a_one_line_error(runner, ledger_file, tmp_path):
     from ledger.cli import report as cli_report  # noqa: F401
     from ledger.cli.common import app

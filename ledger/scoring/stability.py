@@ -44,6 +44,7 @@ from ..store import Store
 from .attributes import attributes_sql, known_attributes
 from .cells import Selection, scale_sql
 from .events import excluded_spans_sql
+from .repeatable import sums_for
 
 __all__ = ["StabilityKey", "STABILITY_KEYS", "STABILITY_COLUMNS", "revisions_sql", "stability", "forecast_paths"]
 
@@ -79,10 +80,12 @@ def revisions_sql(sel: Selection) -> tuple[str, dict]:
 
 
 # The figures of one group, over its revisions in use (r.used) only; n_excluded counts the rest.
+# The shares are means of 0/1, exact in any order; the revision mean is an order-independent sum
+# (ledger.scoring.repeatable), so the figures are the same bits on every run.
 _AGG = """
     count(DISTINCT r.series || '|' || CAST(r.period_index AS VARCHAR)) FILTER (WHERE r.used) AS n_targets,
     count(*) FILTER (WHERE r.used) AS n_revisions,
-    avg(abs(r.point - r.prev_point) / r.q) FILTER (WHERE r.used) AS revision,
+    {revision} AS revision,
     avg(CASE WHEN r.actual IS NOT NULL AND r.point <> r.prev_point THEN
              CASE WHEN abs(r.actual - r.point) < abs(r.actual - r.prev_point) THEN 1.0 ELSE 0.0 END END)
         FILTER (WHERE r.used) AS toward,
@@ -126,9 +129,13 @@ def stability(store: Store, sel: Selection, by: Sequence[str] = ("series", "mode
     select = "".join(f"{c} AS {k}, " for k, c in cols.items())
     group = f"GROUP BY {', '.join(cols.values())} ORDER BY {', '.join(cols.values())}" if keys else ""
     used = "TRUE" if sel.include_excluded else "NOT excluded"
-    frame = store.con.execute(f"SELECT {select}{_AGG} "
-                              f"FROM (SELECT *, {used} AS used FROM ({sql}) v) r {' '.join(joins)} {group}",
-                              params).df()
+    source = f"(SELECT *, {used} AS used FROM ({sql}) v) r"
+    size, rows = store.con.execute(f"SELECT max(abs(r.point - r.prev_point) / r.q) FILTER (WHERE r.used), "
+                                   f"count(*) FROM {source}", params).fetchone()
+    revision = sums_for(store.con, int(rows or 1)).mean(
+        "CASE WHEN r.used THEN abs(r.point - r.prev_point) / r.q END", float(size or 0.0))
+    frame = store.con.execute(f"SELECT {select}{_AGG.format(revision=revision)} "
+                              f"FROM {source} {' '.join(joins)} {group}", params).df()
     for c in _COUNTS:
         frame[c] = frame[c].astype("int64")
     if "horizon" in keys:

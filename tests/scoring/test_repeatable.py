@@ -31,6 +31,20 @@ def test_scores_csv_is_the_same_on_every_run(demo_site, runner, by):
     assert outputs.pop().count("\n") > 10     # groups were scored, not an empty table
 
 
+@pytest.mark.parametrize("by", ["series,model", "model"])
+def test_stability_csv_is_the_same_on_every_run(demo_site, runner, by):
+    """Before the revision mean used the same sums, three runs on the demo ledger printed three files."""
+    _, result = demo_site
+    args = ["--ledger", str(result.replay.ledger_path), "stability", "--by", by, "--format", "csv"]
+    outputs = set()
+    for _ in range(4):
+        run = runner.invoke(app, args)
+        assert run.exit_code == 0, run.stderr
+        outputs.add(run.stdout)
+    assert len(outputs) == 1
+    assert outputs.pop().count("\n") > 3
+
+
 def _values(n: int = 200_000) -> np.ndarray:
     """Values whose plain double sum depends on the order: mixed signs, magnitudes 1e-6..1e9."""
     rng = np.random.default_rng(5)

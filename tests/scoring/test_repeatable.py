@@ -18,15 +18,21 @@ from ledger.cli import app
 from ledger.scoring.repeatable import Sums
 
 
-@pytest.mark.parametrize("by", ["model,horizon", "series,model", "model,period"])
-def test_scores_csv_is_the_same_on_every_run(demo_site, runner, by):
+def _outputs(demo_site, runner, command: str, by: str) -> set[str]:
+    """The distinct CSV outputs of four runs of ``command --by BY`` on the demo ledger."""
     _, result = demo_site
-    args = ["--ledger", str(result.replay.ledger_path), "scores", "--by", by, "--format", "csv"]
+    args = ["--ledger", str(result.replay.ledger_path), command, "--by", by, "--format", "csv"]
     outputs = set()
     for _ in range(4):
         run = runner.invoke(app, args)
         assert run.exit_code == 0, run.stderr
         outputs.add(run.stdout)
+    return outputs
+
+
+@pytest.mark.parametrize("by", ["model,horizon", "series,model", "model,period"])
+def test_scores_csv_is_the_same_on_every_run(demo_site, runner, by):
+    outputs = _outputs(demo_site, runner, "scores", by)
     assert len(outputs) == 1
     assert outputs.pop().count("\n") > 10     # groups were scored, not an empty table
 
@@ -34,13 +40,7 @@ def test_scores_csv_is_the_same_on_every_run(demo_site, runner, by):
 @pytest.mark.parametrize("by", ["series,model", "model"])
 def test_stability_csv_is_the_same_on_every_run(demo_site, runner, by):
     """Before the revision mean used the same sums, three runs on the demo ledger printed three files."""
-    _, result = demo_site
-    args = ["--ledger", str(result.replay.ledger_path), "stability", "--by", by, "--format", "csv"]
-    outputs = set()
-    for _ in range(4):
-        run = runner.invoke(app, args)
-        assert run.exit_code == 0, run.stderr
-        outputs.add(run.stdout)
+    outputs = _outputs(demo_site, runner, "stability", by)
     assert len(outputs) == 1
     assert outputs.pop().count("\n") > 3
 

@@ -61,8 +61,8 @@ def _run_parts(frame: ForecastFrame):
     names = [f"{side}_{i}" for i in range(len(frame.levels)) for side in ("lo", "hi")]
     names += [f"q_{j}" for j in range(len(frame.taus))]
     select = ", ".join(["model", "origin_index", "origin", "series", "period_index", "point", *names])
-    key, origin, pending = None, None, None
-    for batch in stage.batches(select, "model, origin_index, series, period_index"):
+    key, origin, pending, done = None, None, None, set()
+    for batch in stage.batches(select):
         cols = {c: batch.column(c).to_numpy(zero_copy_only=False) for c in ("model", "origin_index", "period_index")}
         cols |= {c: batch.column(c).to_numpy(zero_copy_only=False).astype("float64") for c in ["point", *names]}
         series, origins = batch.column("series"), batch.column("origin")
@@ -71,8 +71,11 @@ def _run_parts(frame: ForecastFrame):
         for a, b in zip(starts, np.r_[starts[1:], len(batch)]):
             if pending is not None and (model[a], o_index[a]) != key:
                 yield str(key[0]), int(key[1]), origin, _joined(pending)
+                done.add(key)
                 pending = None
             if pending is None:
+                if (model[a], o_index[a]) in done:     # the ready table lost its order: never hash half a run
+                    raise RuntimeError(f"staged rows of run {model[a]!r} {o_index[a]} are not together")
                 key, origin, pending = (model[a], o_index[a]), origins[int(a)].as_py(), {c: [] for c in [*cols, "series"]}
             for c, values in cols.items():
                 pending[c].append(values[a:b])

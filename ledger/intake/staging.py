@@ -200,7 +200,9 @@ class Stage:
     def series(self) -> list[str]:
         return [r[0] for r in self.con.execute(f"SELECT DISTINCT series FROM {self.ready} ORDER BY series").fetchall()]
 
-    def batches(self, select: str, order: str, rows: int = 102_400) -> Iterator[pa.RecordBatch]:
-        """The ready table in ``order``, as Arrow record batches of at most ``rows`` rows (no
-        pandas frame per batch: a back-fill of thousands of small runs would spend its time there)."""
-        yield from self.con.sql(f"SELECT {select} FROM {self.ready} ORDER BY {order}").to_arrow_reader(rows)
+    def batches(self, select: str, rows: int = 102_400) -> Iterator[pa.RecordBatch]:
+        """The ready table in the order :meth:`resolve` sorted it, as Arrow record batches of at
+        most ``rows`` rows (no pandas frame per batch: a back-fill of thousands of small runs
+        would spend its time there). No ORDER BY: DuckDB keeps insertion order (its default,
+        ``preserve_insertion_order``), and sorting a million rows again cost a tenth of a second."""
+        yield from self.con.sql(f"SELECT {select} FROM {self.ready}").to_arrow_reader(rows)

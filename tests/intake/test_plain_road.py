@@ -5,13 +5,18 @@ A file it cannot vouch for goes to the exact reader, so every message is the exa
 
 from __future__ import annotations
 
+import csv
+import struct
+
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import HealthCheck, given, settings, strategies as st
 
 from ledger import Ledger
 from ledger.errors import InputError
 from ledger.intake import ingest
+from ledger.intake.plaincsv import NotPlain
 
 from tests.helpers import TESTS, write
 from tests.intake.test_bad_inputs import ARGS, READ, SNAP
@@ -95,3 +100,49 @@ def test_rows_are_numbered_in_file_order_deep_in_a_large_file(tmp_path, monkeypa
         book.snapshot(path, model="m", origin="2029-12")
     assert str(err.value) == ("big.csv row 300001 column period: a second forecast for the same series, period, "
                               "model and origin (first at row 123457)")
+
+
+# Cell texts near the edge of what a number is: digits with signs, points, exponents, digit
+# groups (1_000, 1,000), white space (ASCII and Unicode), words (inf, nan), letters of hex.
+_NEAR_NUMBERS = st.one_of(
+    st.text(alphabet="0123456789.eE+-_ \t\u00a0\u2003,infatyINFATYxX", min_size=1, max_size=9),
+    st.floats(allow_nan=True, allow_infinity=True).map(repr),
+    st.from_regex(r"\A[-+]?[0-9]{0,4}(\.[0-9]{0,6})?([eE][-+]?[0-9]{1,4})?\Z", fullmatch=True),
+    st.from_regex(r"\A[-+]?[0-9]{1,3}([_,' ][0-9]{1,3}){1,2}(\.[0-9]+)?([eE][0-9_]{1,3})?\Z", fullmatch=True),
+)
+
+
+def _staged_values(book, path, plain: bool):
+    """The staged actual of each row, or None when the road refuses (or cannot vouch for) the file."""
+    try:
+        with ingest._read_actuals(book.store, path, None, None, None, plain=plain) as frame:
+            rows = book.store.con.execute(f"SELECT row, value FROM {frame.stage.ready} ORDER BY row").fetchall()
+    except (NotPlain, InputError):
+        return None
+    return [(row, struct.pack("<d", value)) for row, value in rows]    # bit for bit: -0.0 is not 0.0
+
+
+@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(texts=st.lists(_NEAR_NUMBERS, min_size=1, max_size=4))
+def test_a_number_the_fast_road_reads_is_the_number_the_exact_reader_reads(tmp_path_factory, texts):
+    """The fast road casts number cells with DuckDB; whatever text it accepts, the exact reader
+    (Arrow's cast, then pandas) accepts too and reads to the same double, bit for bit."""
+    folder = tmp_path_factory.mktemp("numbers")
+    path = folder / "a.csv"
+    with open(path, "w", encoding="utf-8", newline="") as out:
+        writer = csv.writer(out)
+        writer.writerow(["series", "period", "actual"])
+        writer.writerows([f"s{i}", "2026-01", text] for i, text in enumerate(texts))
+    with Ledger.open(folder / "n.duckdb") as book:
+        fast = _staged_values(book, path, plain=True)
+        if fast is not None:
+            assert _staged_values(book, path, plain=False) == fast, texts
+
+
+def test_the_fast_road_leaves_digit_groups_to_the_exact_reader(tmp_path):
+    """DuckDB's cast reads 1_000 as 1000; the exact reader refuses it, so the fast road must not vouch for it."""
+    path = write(tmp_path / "a.csv", "series,period,actual\ns0,2026-01,1_000\n")
+    with Ledger.open(tmp_path / "n.duckdb") as book:
+        assert _staged_values(book, path, plain=True) is None
+        with pytest.raises(InputError, match="'1_000' is not a finite number"):
+            book.record_actuals(path)

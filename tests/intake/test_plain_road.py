@@ -146,3 +146,13 @@ def test_the_fast_road_leaves_digit_groups_to_the_exact_reader(tmp_path):
         assert _staged_values(book, path, plain=True) is None
         with pytest.raises(InputError, match="'1_000' is not a finite number"):
             book.record_actuals(path)
+
+
+def test_keys_with_underscores_still_take_the_fast_road(tmp_path, monkeypatch):
+    """A '_' below the header sends the numbers through a text read and a cast, not to the exact reader."""
+    frame = _forecasts()
+    frame["series"] = frame["series"].str.replace("s", "store_", regex=False)
+    path = tmp_path / "f.csv"
+    frame.to_csv(path, index=False)
+    plain, exact = _both_roads(tmp_path, monkeypatch, path, lambda book, p: book.snapshot(p))
+    assert plain[:2] == exact[:2] and len(plain[1]) == 6

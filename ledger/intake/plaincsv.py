@@ -1,11 +1,12 @@
 """The fast road for a plain CSV file: DuckDB's own reader, every check in SQL, no row in Python.
 
-A forecast or actuals file is read by DuckDB's CSV reader into a temporary table of text (in
-strict mode: a ragged row, a stray quote or a byte that is not UTF-8 stops it), and one SQL pass
-asks whether every cell is in a *plain* form: keys already trimmed, in NFC and free of the
-characters :mod:`keys` refuses, at most 200 bytes; numbers written as plain decimals
-(``-12.5``, ``1e3``) that are finite; bounds paired and ordered, quantiles not decreasing; period
-labels that :func:`ledger.periods.parse_label` reads. For such a file the exact reader
+A forecast or actuals file is read by DuckDB's CSV reader into a temporary table (in strict
+mode: a ragged row, a stray quote or a byte that is not UTF-8 stops it), and SQL asks whether
+every cell is in a *plain* form: keys already trimmed, in NFC and free of the characters
+:mod:`keys` refuses, at most 200 bytes (once per distinct key); numbers that DuckDB reads as the
+exact reader does, finite (the reader parses them, or, when the file holds a '_', a cast of their
+text that refuses digit groups such as ``1_000``); bounds paired and ordered, quantiles not
+decreasing; period labels that :func:`ledger.periods.parse_label` reads. For such a file the exact reader
 (:mod:`csvread`, pandas' parser and the Arrow checks of :mod:`ingest`) would find no problem
 and stage the same values, so the rows are staged from SQL and the whole-file checks that
 follow are the same code for both roads.

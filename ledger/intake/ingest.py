@@ -402,7 +402,7 @@ def _read_forecasts(store, data, model, origin, freq, name, progress, *, plain: 
             option = f"--origin {origin}" if origin is not None and "origin" not in columns and \
                 not periods.kinds() else None
             _recorded(stage, source, frequency, problems, option)
-            stage.resolve(frequency, ["period", "origin"], "model, origin_index, series, period_index")
+            stage.resolve(frequency, ["period", "origin"], ["model", "origin_index", "series", "period_index"])
             with problems.guard():
                 stage.check_horizons(source, frequency, MAX_HORIZON)
             with problems.guard():
@@ -639,7 +639,7 @@ def _read_actuals(store, data, freq, name, progress, *, plain: bool) -> ActualsF
             _other_frequencies(source, [periods], frequency, said_by, problems)
         if frequency is not None and periods.seen:
             _recorded(stage, source, frequency, problems)
-            stage.resolve(frequency, ["period"], "series, period_index")
+            stage.resolve(frequency, ["period"], ["series", "period_index"])
             with problems.guard():
                 stage.check_unique(source, ["series", "period_index"], "period",
                                    "a second actual for the same series and period")

@@ -22,7 +22,6 @@ from __future__ import annotations
 
 import contextlib
 import dataclasses
-import mmap
 import os
 from collections import Counter
 from pathlib import Path
@@ -40,6 +39,7 @@ __all__ = ["NotPlain", "PlainCsv", "MAX_COLUMNS"]
 #: Wider files take the exact reader (a plain-form test per column would outgrow its worth).
 MAX_COLUMNS = 200
 _LABEL_BATCH = 200_000       # distinct labels parsed at a time, so memory stays flat
+_SCAN_BLOCK = 1 << 24        # bytes read at a time when searching the file for '_'
 # White space at either end of a key (Unicode's, as Arrow's utf8_trim_whitespace trims it).
 _EDGE_SPACE = r"^[\s\x{0B}\x{85}\p{Z}]|[\s\x{0B}\x{85}\p{Z}]$"
 _DECIMAL = r"-?[0-9]+(\.[0-9]+)?([eE][-+]?[0-9]{1,3})?"
@@ -124,9 +124,15 @@ class PlainCsv:
                 con.execute(f"DROP TABLE IF EXISTS {raw}")
 
     def _underscore_in_body(self) -> bool:
-        """Whether a '_' byte follows the header line (a memory-mapped search: no copy of the file)."""
-        with open(self.path, "rb") as f, mmap.mmap(f.fileno(), 0, access=mmap.ACCESS_READ) as data:
-            return data.find(b"_", data.find(b"\n") + 1) >= 0
+        """Whether a '_' byte follows the header line. Read through one reused buffer: a memory map
+        of a multi-GB file would count every page it touched as resident memory."""
+        buffer = bytearray(_SCAN_BLOCK)
+        with open(self.path, "rb") as f:
+            f.readline()
+            while n := f.readinto(buffer):
+                if buffer.find(b"_", 0, n) >= 0:
+                    return True
+        return False
 
     def _stage(self, con, raw, table, cols, typed, keys, numbers, pairs, ordered) -> int:
         exprs, plain, key_columns, value = ["rowid + 1 AS row"], [], [], {}

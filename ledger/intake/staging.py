@@ -18,6 +18,7 @@ from collections.abc import Iterator
 import duckdb
 import numpy as np
 import pyarrow as pa
+import pyarrow.compute as pc
 
 from ..errors import InputError
 from ..periods import period_label, period_sql
@@ -27,6 +28,8 @@ from .problems import SHOWN, raise_found
 __all__ = ["Stage"]
 
 _names = itertools.count()
+#: Rows compared at a time when checking the ready table's order.
+ORDER_BATCH = 1 << 20
 
 
 class Stage:
@@ -38,6 +41,7 @@ class Stage:
         self.ready = f"{self.table}_ready"
         self._closed = False
         self._labels_made = False
+        self._unique: list[str] | None = None
         # DuckDB spills beyond this cap, so a multi-GB import stays under 2 GB of RSS
         self._memory = bounded_memory(con)
         self._memory.__enter__()
@@ -144,11 +148,17 @@ class Stage:
         self.con.execute(f"DELETE FROM {self.table} WHERE {column} IN (SELECT label FROM {self.table}_labels "
                          "WHERE col = $col AND kind <> $freq)", {"col": column, "freq": freq})
 
-    def resolve(self, freq: str, label_columns: list[str], order: str) -> None:
-        """Build the ready table, sorted by ``order``: each label column becomes a start date and a
-        period index (in SQL, with the formulas of :func:`ledger.periods.period_start` and
-        :func:`~ledger.periods.period_index`). Sorted once here, so that the writes that follow
-        keep its order without sorting again."""
+    def resolve(self, freq: str, label_columns: list[str], order: list[str]) -> None:
+        """Build the ready table in the order of the key columns ``order``: each label column
+        becomes a start date and a period index (in SQL, with the formulas of
+        :func:`ledger.periods.period_start` and :func:`~ledger.periods.period_index`). In that
+        order once here, so that the writes that follow keep it without sorting again.
+
+        Most files come in that order already (a run at a time, series and periods ascending),
+        and sorting tens of millions of rows under the memory cap spills and takes minutes; so
+        the rows are joined in file order, one streamed pass checks the order, and only a file
+        out of order is sorted. Keys strictly increasing also means no key repeats, which
+        :meth:`check_unique` then need not ask again."""
         raw, lab = f"{self.table}_labels", f"{self.table}_lab"
         start, index = period_sql("l.day", freq)
         self.con.execute(f"CREATE TEMP TABLE {lab} AS SELECT label, {start} AS day, {index} AS idx FROM "
@@ -157,10 +167,44 @@ class Stage:
         for i, col in enumerate(label_columns):
             joins.append(f"JOIN {lab} l{i} ON l{i}.label = s.{col}")
             exprs.append(f"l{i}.day AS {col}, l{i}.idx AS {col}_index")
-        self.con.execute(f"CREATE TEMP TABLE {self.ready} AS SELECT s.* EXCLUDE ({', '.join(label_columns)}), "
-                         f"{', '.join(exprs)} FROM {self.table} s {' '.join(joins)} ORDER BY {order}")
+        select = f"SELECT s.* EXCLUDE ({', '.join(label_columns)}), {', '.join(exprs)} FROM {self.table} s {' '.join(joins)}"
+        # No ORDER BY: the joins keep the file's order as a rule (DuckDB preserves insertion
+        # order), and whatever order they give is checked below, so nothing rests on the rule.
+        self.con.execute(f"CREATE TEMP TABLE {self.ready} AS {select}")
+        ordered, strictly = self._in_order(order)
+        if not ordered:
+            self.con.execute(f"CREATE OR REPLACE TEMP TABLE {self.ready} AS SELECT * FROM {self.ready} "
+                             f"ORDER BY {', '.join(order)}")
+        self._unique = list(order) if strictly else None
         for table in (self.table, lab, raw):
             self.con.execute(f"DROP TABLE {table}")
+
+    def _in_order(self, keys: list[str]) -> tuple[bool, bool]:
+        """(whether the ready table's rows are in the order of ``keys``, and strictly so), by
+        comparing each row with the next in Arrow, a batch at a time (strings byte-wise, as
+        DuckDB's ORDER BY compares them)."""
+        last, strictly = None, True
+        for batch in self.con.sql(f"SELECT {', '.join(keys)} FROM {self.ready}").to_arrow_reader(ORDER_BATCH):
+            n = batch.num_rows
+            if n == 0:
+                continue
+            first = tuple(batch.column(i)[0].as_py() for i in range(len(keys)))
+            if last is not None and (first < last or first == last):
+                if first < last:
+                    return False, False
+                strictly = False
+            if n > 1:
+                less = equal = None
+                for i in reversed(range(len(keys))):
+                    a, b = batch.column(i).slice(0, n - 1), batch.column(i).slice(1)
+                    lt, eq = pc.less(a, b), pc.equal(a, b)
+                    less = lt if less is None else pc.or_(lt, pc.and_(eq, less))
+                    equal = eq if equal is None else pc.and_(eq, equal)
+                if not pc.all(pc.or_(less, equal)).as_py():
+                    return False, False
+                strictly = strictly and pc.all(less).as_py()
+            last = tuple(batch.column(i)[n - 1].as_py() for i in range(len(keys)))
+        return True, strictly
 
     def check_horizons(self, source: str, freq: str, max_horizon: int) -> None:
         """Refuse every row whose target period is too far after its origin or not after it."""
@@ -176,6 +220,8 @@ class Stage:
 
     def check_unique(self, source: str, keys: list[str], column: str, what: str) -> None:
         """Refuse every row that repeats the keys of an earlier row (naming that row)."""
+        if self._unique == list(keys):      # resolve saw every key strictly after the one before
+            return
         by = ", ".join(keys)
         # A grouping finds whether any key repeats at half the cost of the window that names the rows.
         if not self.con.execute(f"SELECT count(*) FROM {self.ready} GROUP BY {by} HAVING count(*) > 1 LIMIT 1").fetchall():

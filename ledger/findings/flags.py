@@ -16,7 +16,7 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
-from .calibration import calibration_findings
+from .calibration import calibration_findings, level_tests
 from .drift import drift_findings, sequence_tests
 from ..errors import UnknownName
 from .base import (
@@ -64,7 +64,7 @@ def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: 
         found += drift_findings(cells, seasons, options, subjects=subjects, recent_from=recent_from, total=total,
                                 tested=_tested_on_executors(store, everyone, subjects, options))
     if "calibration" in kinds:
-        found += calibration_findings(interval_misses(store, sel), freqs, options, recent_from=recent_from,
+        found += calibration_findings(level_tests(interval_misses(store, sel), freqs, options, recent_from), options,
                                       total=total)
     if "quantiles" in kinds:
         found += quantile_findings(quantile_cells(store, sel), options)

@@ -154,8 +154,8 @@ def level_tests(icells: pd.DataFrame, freqs: dict[str, str], options: FlagOption
     data["prev"] = data.groupby(["model", "level", "series", "horizon"])["miss"].shift(1).astype("float64")
     data["recent"] = data["period_index"].to_numpy() >= data["freq"].map(recent_from).to_numpy(dtype=float)
     cols = {c: data[c].to_numpy() for c in ("miss", "below", "above", "period_index", "horizon", "prev")}
-    cols.update(freq=data["freq"].to_numpy(dtype=object), series=data["series"].to_numpy(dtype=object), recent=data["recent"].to_numpy(dtype=bool),
-                ratio=data["ratio"].to_numpy(dtype=float, na_value=np.nan),
+    cols.update(freq=data["freq"].to_numpy(dtype=object), series=data["series"].to_numpy(dtype=object),
+                recent=data["recent"].to_numpy(dtype=bool), ratio=data["ratio"].to_numpy(dtype=float, na_value=np.nan),
                 dist=data["dist"].to_numpy(dtype=float, na_value=np.nan))
     rows = _bucket_tests(data, cols, options)
     if options.series_calibration:

@@ -16,7 +16,7 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
-from .calibration import calibration_findings
+from .calibration import TEST_FIELDS, calibration_findings, level_tests
 from .drift import drift_findings, sequence_tests
 from ..errors import UnknownName
 from .base import (
@@ -29,7 +29,7 @@ from .base import (
 )
 from .data import data_findings, series_models
 from .quantiles import quantile_findings
-from ..scoring.cells import Selection, cells_sql, interval_misses, score_cells
+from ..scoring.cells import Selection, cells_sql, interval_misses, interval_misses_sql, score_cells
 from ..scoring.quantile_reads import quantile_cells
 from ..scoring.attributes import check_attribute, series_attributes
 from ..overrides import overrides_for, parse_overrides
@@ -64,8 +64,10 @@ def flags(store: Store, sel: Selection, *, kinds: Sequence[str] = KINDS, cells: 
         found += drift_findings(cells, seasons, options, subjects=subjects, recent_from=recent_from, total=total,
                                 tested=_tested_on_executors(store, everyone, subjects, options))
     if "calibration" in kinds:
-        found += calibration_findings(interval_misses(store, sel), freqs, options, recent_from=recent_from,
-                                      total=total)
+        tested = _calibration_on_executors(store, sel, freqs, options, recent_from)
+        if tested is None:
+            tested = level_tests(interval_misses(store, sel), freqs, options, recent_from)
+        found += calibration_findings(tested, options, total=total)
     if "quantiles" in kinds:
         found += quantile_findings(quantile_cells(store, sel), options)
     if "value" in kinds:
@@ -92,6 +94,24 @@ def _tested_on_executors(store: Store, sel: Selection, subjects: Sequence[str], 
              "WHERE list_contains($drift_models, model)")
     return apply_in_groups(query, {**params, "drift_models": list(subjects)}, keys=("model", "horizon"),
                            fn=functools.partial(sequence_tests, options=options), schema=_SEQUENCE_SCHEMA)
+
+
+# The Spark schema of level_tests' rows (calibration.TEST_FIELDS).
+_LEVEL_SCHEMA = ", ".join(f"{name} {dict(str='string', float='double', int='long')[kind]}" for name, kind in TEST_FIELDS)
+
+
+def _calibration_on_executors(store: Store, sel: Selection, freqs: dict[str, str], options: FlagOptions,
+                              recent_from: dict[str, int]):
+    """The calibration tests and action figures, computed where the interval misses live when the
+    store can run a function per group of a query's rows (a Spark lake: one model × level per
+    grouped pandas UDF); None for a ledger file, whose misses are tested in process."""
+    apply_in_groups = getattr(store, "apply_in_groups", None)
+    if apply_in_groups is None:
+        return None
+    sql, params = interval_misses_sql(sel)
+    return apply_in_groups(sql, params, keys=("model", "level"),
+                           fn=functools.partial(level_tests, freqs=freqs, options=options, recent_from=recent_from),
+                           schema=_LEVEL_SCHEMA)
 
 
 def recent_window(cells: pd.DataFrame, recent: int) -> tuple[dict[str, int], float]:

@@ -56,7 +56,7 @@ from ..store import Store, latest_actuals_sql, live_runs_sql
 
 __all__ = ["GroupKey", "GROUP_KEYS", "Selection", "bounds_join", "cells_sql", "scale_sql", "forecasts_sql", "period_filter",
            "selection_filter", "model_filter", "excluded_cells_sql", "lagged_sql", "running_scale_sql", "score_cells",
-           "interval_cells", "interval_misses", "POINT_COLUMNS"]
+           "interval_cells", "interval_misses", "interval_misses_sql", "POINT_COLUMNS"]
 
 GroupKey = Literal["series", "model", "horizon", "origin", "period"]
 GROUP_KEYS: tuple[str, ...] = get_args(GroupKey)
@@ -283,13 +283,19 @@ def interval_misses(store: Store, sel: Selection) -> pd.DataFrame:
     Fewer columns than :func:`interval_cells`: the findings of a large ledger read millions of
     these rows.
     """
+    sql, params = interval_misses_sql(sel)
+    return store.con.execute(f"{sql}\n        ORDER BY c.model, b.level, c.series, c.horizon, c.period_index",
+                             params).df()
+
+
+def interval_misses_sql(sel: Selection) -> tuple[str, dict]:
+    """SQL (and parameters) for the rows of :func:`interval_misses`, in no order (aliases c, b)."""
     sql, params = cells_sql(sel)
-    return store.con.execute(f"""
+    return f"""
         SELECT c.model, c.series, c.period_index, c.horizon, b.level,
                c.actual < b.lower AS below, c.actual > b.upper AS above,
                CASE WHEN c.e >= 0 AND b.upper > c.point THEN c.e / (b.upper - c.point)
                     WHEN c.e < 0 AND c.point > b.lower THEN -c.e / (c.point - b.lower) END AS ratio,
                (greatest(b.lower - c.actual, 0) + greatest(c.actual - b.upper, 0)) / c.q AS dist
         FROM ({sql}) c
-        {bounds_join()}
-        ORDER BY c.model, b.level, c.series, c.horizon, c.period_index""", params).df()
+        {bounds_join()}""", params

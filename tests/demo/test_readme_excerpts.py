@@ -52,3 +52,4 @@ def test_readme_excerpt_matches_the_demo_ledger(demo_site, name):
 def test_the_comparison_can_fail():
     assert same("a,1.0000000000001\n", "a,1.0000000000002\n")
     assert not same("a,1.01\n", "a,1.02\n") and not same("a,1.0\n", "b,1.0\n")
+    assert not same("a,12.695708\n", "a,12.695738\n")             # 2.4e-6 relative: a real change

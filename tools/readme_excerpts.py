@@ -227,8 +227,8 @@ _FLOAT = re.compile(r"-?\d+\.\d+(?:[eE][-+]?\d+)?")
 def same(a: str, b: str, rel: float = 1e-6) -> bool:
     """Equal text, numbers with a decimal point equal to ``rel``: the reference methods are fitted
     by numerical optimisation, whose result agrees from one machine to another only to its
-    tolerance (the theta backtest's MAPE moved by 1.1e-9 relative from one machine of ours to another of the same
-    kind of machine), so full-precision CSV digits past that are not the excerpt's content."""
+    tolerance (the theta backtest's MAPE moved by 1.1e-9 relative from one of our machines to
+    another), so full-precision CSV digits past that are not the excerpt's content."""
     if _FLOAT.sub("#", a) != _FLOAT.sub("#", b):
         return False
     return all(abs(float(x) - float(y)) <= rel * max(abs(float(x)), abs(float(y)), 1e-300)

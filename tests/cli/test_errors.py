@@ -6,7 +6,10 @@ checks that a content hash of every table is unchanged afterwards.
 
 from __future__ import annotations
 
+import shutil
+
 import pytest
+from typer.testing import CliRunner
 
 from ledger.cli import app
 from ledger.store import SCHEMA_VERSION
@@ -58,14 +61,25 @@ FORECAST_CASES = {
 }
 
 
-@pytest.fixture
-def base(tmp_path, runner):
-    path = tmp_path / "l.duckdb"
-    act = write(tmp_path / "act.csv", "series,period,actual\nA,2025-11,5\nA,2025-12,6\n")
-    run = write(tmp_path / "run.csv", "series,period,forecast\nA,2026-01,7\n")
+@pytest.fixture(scope="module")
+def built(tmp_path_factory):
+    """The small ledger every test starts from, recorded once for the module."""
+    root = tmp_path_factory.mktemp("errors")
+    path, runner = root / "l.duckdb", CliRunner()
+    act = write(root / "act.csv", "series,period,actual\nA,2025-11,5\nA,2025-12,6\n")
+    run = write(root / "run.csv", "series,period,forecast\nA,2026-01,7\n")
     assert runner.invoke(app, ["--ledger", str(path), "actuals", str(act)]).exit_code == 0
     assert runner.invoke(app, ["--ledger", str(path), "snapshot", str(run), "--model", "m",
                                "--origin", "2025-12"]).exit_code == 0
+    assert not path.with_name(path.name + ".wal").exists(), "the ledger was not closed"
+    return path
+
+
+@pytest.fixture
+def base(built, tmp_path):
+    # most tests try to write (and some do), so each gets its own copy of the file
+    path = tmp_path / "l.duckdb"
+    shutil.copyfile(built, path)
     return path
 
 

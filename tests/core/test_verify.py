@@ -3,6 +3,8 @@ chains, orphans, schema) and physical (a truncated file, flipped bytes), never w
 
 from __future__ import annotations
 
+import shutil
+
 import duckdb
 import pandas as pd
 import pytest
@@ -11,9 +13,10 @@ from ledger import Ledger
 from ledger.cli import app
 
 
-@pytest.fixture
-def sound(tmp_path):
-    path = tmp_path / "l.duckdb"
+@pytest.fixture(scope="module")
+def sound_once(tmp_path_factory):
+    """The sound ledger, recorded once for the module; every test damages its own copy."""
+    path = tmp_path_factory.mktemp("sound") / "l.duckdb"
     with Ledger.open(path) as book:
         book.record_actuals(pd.DataFrame({"series": ["a", "b", "c"], "period": "2026-01", "actual": [1.0, 2.0, 3.0]}))
         book.record_actuals(pd.DataFrame({"series": ["a"], "period": "2026-01", "actual": [1.5]}))
@@ -23,6 +26,14 @@ def sound(tmp_path):
         book.snapshot(frame.assign(forecast=[1.1, 2.1]), model="m", origin="2026-01", supersede=True)
         book.snapshot(frame, model="other", origin="2026-01")
         assert book.verify() == []
+    assert not path.with_name(path.name + ".wal").exists(), "the ledger was not closed"
+    return path
+
+
+@pytest.fixture
+def sound(sound_once, tmp_path):
+    path = tmp_path / "l.duckdb"
+    shutil.copyfile(sound_once, path)
     return path
 
 
@@ -94,15 +105,23 @@ def _damage_bytes(path, how):
     path.write_bytes(bytes(data))
 
 
-@pytest.mark.parametrize("how", ["truncated", "flipped"])
-def test_physical_damage_is_listed_never_a_traceback(tmp_path, runner, how):
-    path = tmp_path / "big.duckdb"
+@pytest.fixture(scope="module")
+def big_once(tmp_path_factory):
+    path = tmp_path_factory.mktemp("big") / "big.duckdb"
     with Ledger.open(path) as book:      # big enough that the data lies in many blocks
         n = 20_000
         book.record_actuals(pd.DataFrame({"series": [f"s{i % 500}" for i in range(n)],
                                           "period": [f"{2000 + i // 6000}-{i // 500 % 12 + 1:02d}" for i in range(n)],
                                           "actual": range(n)}))
         book.store.con.execute("CHECKPOINT")
+    assert not path.with_name(path.name + ".wal").exists(), "the ledger was not closed"
+    return path
+
+
+@pytest.mark.parametrize("how", ["truncated", "flipped"])
+def test_physical_damage_is_listed_never_a_traceback(big_once, tmp_path, runner, how):
+    path = tmp_path / "big.duckdb"
+    shutil.copyfile(big_once, path)    # the bytes are damaged in this copy only
     _damage_bytes(path, how)
     result = runner.invoke(app, ["--ledger", str(path), "verify"])
     assert result.exit_code == 1

@@ -3,11 +3,13 @@
 from __future__ import annotations
 
 import json
+import shutil
 
 import numpy as np
 
 import pandas as pd
 import pytest
+from typer.testing import CliRunner
 
 from ledger import Ledger
 from ledger.cli import app
@@ -16,16 +18,31 @@ from tests.cycle.test_review import _month, _narrow_inbox
 from tests.helpers import table_hashes
 
 
-@pytest.fixture
-def reviewed(tmp_path, runner):
-    path, inbox = tmp_path / "l.duckdb", tmp_path / "inbox"
+@pytest.fixture(scope="module")
+def first_review(tmp_path_factory):
+    """Month 0 reviewed once for the module: the review and its report took most of each test's time."""
+    root = tmp_path_factory.mktemp("reviewed")
+    path, inbox = root / "l.duckdb", root / "inbox"
     _month(inbox, 0)
-    r = runner.invoke(app, ["--ledger", str(path), "review", str(inbox), "--out", str(tmp_path / "rep")])
+    r = CliRunner().invoke(app, ["--ledger", str(path), "review", str(inbox), "--out", str(root / "rep")])
     assert r.exit_code == 0, r.output
+    assert not path.with_name(path.name + ".wal").exists(), "the ledger was not closed"
     return path, inbox, r
 
 
-def test_review_prints_what_it_recorded_and_writes_the_report(reviewed, tmp_path):
+@pytest.fixture
+def reviewed(first_review, tmp_path):
+    # the tests review again and record events, so each gets its own ledger and report folder
+    # (the report too, so a second review replaces a report as it would after a first); the inbox
+    # is only read, and stays where the first review found it
+    built, inbox, r = first_review
+    path = tmp_path / "l.duckdb"
+    shutil.copyfile(built, path)
+    shutil.copytree(built.parent / "rep", tmp_path / "rep")
+    return path, inbox, r
+
+
+def test_review_prints_what_it_recorded_and_writes_the_report(reviewed, first_review, tmp_path):
     path, inbox, r = reviewed
     lines = r.stdout.splitlines()
     assert lines[0].startswith("review 1: 5 run(s) and 108 actual(s) recorded from 4 file(s); as-of ")
@@ -33,7 +50,7 @@ def test_review_prints_what_it_recorded_and_writes_the_report(reviewed, tmp_path
         stored = book.reviews().iloc[0]
         found = book.changes().findings
     assert lines[0].endswith(f"state {stored['state_hash'][:12]}")
-    assert lines[1] == f"{len(found)} finding(s); report {tmp_path / 'rep' / 'index.html'}"
+    assert lines[1] == f"{len(found)} finding(s); report {first_review[0].parent / 'rep' / 'index.html'}"
     html = (tmp_path / "rep" / "index.html").read_text(encoding="utf-8")
     assert stored["state_hash"][:12] in html
 

@@ -201,19 +201,10 @@ def test_printed_sections_start_on_new_pages_without_navigation(site, tmp_path, 
     assert re.search(r"@media print \{.*?header\.site \.brand, header\.site nav \{ display: none; \}", css, re.S)
 
 
-@pytest.fixture(scope="module", params=sorted(__import__("tests.reports.young_ledgers", fromlist=["MATRIX"]).MATRIX))
-def young(request, tmp_path_factory):
-    from tests.reports.young_ledgers import MATRIX
-
-    root = tmp_path_factory.mktemp(f"young-{request.param}")
-    MATRIX[request.param](root / "young.duckdb")
-    return request.param, render_report(root / "young.duckdb", root / "site", as_of=AS_OF, workers=0).out_dir
-
-
-def test_young_ledger_pages_open_without_console_messages(young, shots, tmp_path, profile):
+def test_young_ledger_pages_open_without_console_messages(young_site, shots, tmp_path, profile):
     """Every page of a young or odd ledger loads in Chromium with nothing on the console (no
     blocked load, no error); the overview is kept as screenshots at 1280 and 390 px."""
-    name, site_dir = young
+    name, site_dir = young_site.name, young_site.result.out_dir
     pages = sorted(site_dir.glob("*.html"))
     body = "".join(f'<iframe width="1280" height="600" srcdoc="{html.escape(p.read_text(encoding="utf-8"), quote=True)}">'
                    "</iframe>" for p in pages)

@@ -8,7 +8,6 @@ import re
 import pytest
 
 from reports import render_report
-from tests.reports.young_ledgers import MATRIX
 
 AS_OF = "2100-01-01"
 
@@ -17,16 +16,8 @@ def _text(page: str) -> str:
     return html.unescape(re.sub(r"\s+", " ", re.sub(r"<[^>]+>", " ", page)))
 
 
-@pytest.fixture(scope="module", params=sorted(MATRIX))
-def young_site(request, tmp_path_factory):
-    root = tmp_path_factory.mktemp(request.param)
-    says = MATRIX[request.param](root / "young.duckdb")
-    result = render_report(root / "young.duckdb", root / "site", as_of=AS_OF, workers=0)
-    return request.param, says, result
-
-
 def test_every_page_renders_and_says_what_is_missing(young_site):
-    name, says, result = young_site
+    name, says, result = young_site.name, young_site.says, young_site.result
     pages = {p.name: p.read_text(encoding="utf-8") for p in result.out_dir.glob("*.html")}
     assert {"index.html", "findings.html", "series.html", "methods.html"} <= set(pages)
     index = _text(pages["index.html"])

@@ -148,17 +148,18 @@ class Stage:
         self.con.execute(f"DELETE FROM {self.table} WHERE {column} IN (SELECT label FROM {self.table}_labels "
                          "WHERE col = $col AND kind <> $freq)", {"col": column, "freq": freq})
 
-    def resolve(self, freq: str, label_columns: list[str], order: list[str]) -> None:
-        """Build the ready table in the order of the key columns ``order``: each label column
-        becomes a start date and a period index (in SQL, with the formulas of
-        :func:`ledger.periods.period_start` and :func:`~ledger.periods.period_index`). In that
-        order once here, so that the writes that follow keep it without sorting again.
+    def resolve(self, freq: str, label_columns: list[str], keys: list[str], together: int = 0) -> None:
+        """Build the ready table: each label column becomes a start date and a period index (in
+        SQL, with the formulas of :func:`ledger.periods.period_start` and
+        :func:`~ledger.periods.period_index`), with the rows of each value of the first
+        ``together`` key columns (a run: model and origin) next to each other, as the writer
+        reads them a run at a time.
 
-        Most files come in that order already (a run at a time, series and periods ascending),
-        and sorting tens of millions of rows under the memory cap spills and takes minutes; so
-        the rows are joined in file order, one streamed pass checks the order, and only a file
-        out of order is sorted. Keys strictly increasing also means no key repeats, which
-        :meth:`check_unique` then need not ask again."""
+        Sorting tens of millions of rows under the memory cap spills and takes minutes, and most
+        files come a run at a time already; so the rows are joined in file order, one streamed
+        pass checks the order, and only a file whose runs are not each in one block (in
+        ascending order) is sorted by ``keys``. Keys strictly increasing in the file also means
+        that no key repeats, which :meth:`check_unique` then need not ask again."""
         raw, lab = f"{self.table}_labels", f"{self.table}_lab"
         start, index = period_sql("l.day", freq)
         self.con.execute(f"CREATE TEMP TABLE {lab} AS SELECT label, {start} AS day, {index} AS idx FROM "
@@ -171,40 +172,34 @@ class Stage:
         # No ORDER BY: the joins keep the file's order as a rule (DuckDB preserves insertion
         # order), and whatever order they give is checked below, so nothing rests on the rule.
         self.con.execute(f"CREATE TEMP TABLE {self.ready} AS {select}")
-        ordered, strictly = self._in_order(order)
-        if not ordered:
+        grouped, strictly = self._in_order(keys, together)
+        if not grouped:
             self.con.execute(f"CREATE OR REPLACE TEMP TABLE {self.ready} AS SELECT * FROM {self.ready} "
-                             f"ORDER BY {', '.join(order)}")
-        self._unique = list(order) if strictly else None
+                             f"ORDER BY {', '.join(keys)}")
+        self._unique = list(keys) if strictly else None
         for table in (self.table, lab, raw):
             self.con.execute(f"DROP TABLE {table}")
 
-    def _in_order(self, keys: list[str]) -> tuple[bool, bool]:
-        """(whether the ready table's rows are in the order of ``keys``, and strictly so), by
-        comparing each row with the next in Arrow, a batch at a time (strings byte-wise, as
-        DuckDB's ORDER BY compares them)."""
-        last, strictly = None, True
+    def _in_order(self, keys: list[str], together: int) -> tuple[bool, bool]:
+        """(whether the ready table's rows ascend in their first ``together`` keys, and whether
+        they strictly ascend in all ``keys``), by comparing each row with the next in Arrow, a
+        batch at a time (strings byte-wise, as DuckDB's ORDER BY compares them)."""
+        last, grouped, strictly = None, True, True
         for batch in self.con.sql(f"SELECT {', '.join(keys)} FROM {self.ready}").to_arrow_reader(ORDER_BATCH):
             n = batch.num_rows
             if n == 0:
                 continue
             first = tuple(batch.column(i)[0].as_py() for i in range(len(keys)))
-            if last is not None and (first < last or first == last):
-                if first < last:
-                    return False, False
-                strictly = False
+            if last is not None:
+                grouped = grouped and first[:together] >= last[:together]
+                strictly = strictly and first > last
             if n > 1:
-                less = equal = None
-                for i in reversed(range(len(keys))):
-                    a, b = batch.column(i).slice(0, n - 1), batch.column(i).slice(1)
-                    lt, eq = pc.less(a, b), pc.equal(a, b)
-                    less = lt if less is None else pc.or_(lt, pc.and_(eq, less))
-                    equal = eq if equal is None else pc.and_(eq, equal)
-                if not pc.all(pc.or_(less, equal)).as_py():
-                    return False, False
-                strictly = strictly and pc.all(less).as_py()
+                grouped = grouped and _ascending(batch, together, strict=False)
+                strictly = strictly and _ascending(batch, len(keys), strict=True)
+            if not grouped:
+                return False, False
             last = tuple(batch.column(i)[n - 1].as_py() for i in range(len(keys)))
-        return True, strictly
+        return grouped, strictly
 
     def check_horizons(self, source: str, freq: str, max_horizon: int) -> None:
         """Refuse every row whose target period is too far after its origin or not after it."""
@@ -252,3 +247,18 @@ class Stage:
         would spend its time there). No ORDER BY: DuckDB keeps insertion order (its default,
         ``preserve_insertion_order``), and sorting a million rows again cost a tenth of a second."""
         yield from self.con.sql(f"SELECT {select} FROM {self.ready}").to_arrow_reader(rows)
+
+
+def _ascending(batch: pa.RecordBatch, width: int, *, strict: bool) -> bool:
+    """Whether each row of ``batch`` is after the row before it (or equal, unless ``strict``) in
+    its first ``width`` columns, compared lexicographically."""
+    if width == 0:
+        return True
+    n = batch.num_rows
+    less = equal = None
+    for i in reversed(range(width)):
+        a, b = batch.column(i).slice(0, n - 1), batch.column(i).slice(1)
+        lt, eq = pc.less(a, b), pc.equal(a, b)
+        less = lt if less is None else pc.or_(lt, pc.and_(eq, less))
+        equal = eq if equal is None else pc.and_(eq, equal)
+    return bool(pc.all(less if strict else pc.or_(less, equal)).as_py())

@@ -1,7 +1,8 @@
-"""The ready table is sorted only when the file is out of order (ledger/intake/staging.py,
-``Stage.resolve``): a file in run, series and period order skips the sort and, when its keys
-strictly increase, the duplicate grouping; any other order is sorted. Whichever way, the ledger
-is the one the sorted file gives, and a repeated key is still refused with its rows."""
+"""The ready table is sorted only when a file's runs are not each in one block, in ascending
+order (ledger/intake/staging.py, ``Stage.resolve``): a file a run at a time skips the sort and,
+when its keys strictly increase, the duplicate grouping too; any other order is sorted. Whichever
+way, the ledger is the one the sorted file gives, and a repeated key is still refused with its
+rows."""
 
 from __future__ import annotations
 
@@ -34,8 +35,8 @@ def _spy_sorts(monkeypatch) -> list[str]:
     sorts = []
     original = staging.Stage._in_order
 
-    def spy(self, keys):
-        ordered, strictly = original(self, keys)
+    def spy(self, keys, together):
+        ordered, strictly = original(self, keys, together)
         if not ordered:
             sorts.append(self.ready)
         return ordered, strictly
@@ -54,11 +55,18 @@ def test_any_row_order_gives_the_ledger_of_the_sorted_file(tmp_path, monkeypatch
     assert sorts == []                                          # in order: no sort
     boundary, i = frame.copy(), batch - 1 if batch < len(frame) else 0
     boundary.iloc[[i, i + 1]] = boundary.iloc[[i + 1, i]].to_numpy()   # two neighbours swapped, across a batch edge
-    orders = {"shuffled": frame.sample(frac=1, random_state=5), "reversed": frame.iloc[::-1],
-              "swapped": boundary}
-    for name, rows in orders.items():
+    runs_back = frame.sort_values(["model", "origin"], ascending=False, kind="stable")   # each run whole, runs descending
+    sorted_ones = {"shuffled": frame.sample(frac=1, random_state=5), "reversed": frame.iloc[::-1],
+                   "runs descending": runs_back}
+    for name, rows in sorted_ones.items():
         assert _ledger(tmp_path, name, rows) == expected, name
-    assert len(sorts) == len(orders)
+    assert len(sorts) == len(sorted_ones)
+    # within a run the order is the hash's business (it sorts a run's rows): no sort of the table
+    within = {"swapped": boundary, "series descending": frame.sort_values(
+        ["model", "origin", "series", "period"], ascending=[True, True, False, True], kind="stable")}
+    for name, rows in within.items():
+        assert _ledger(tmp_path, name, rows) == expected, name
+    assert len(sorts) == len(sorted_ones)
 
 
 def test_a_repeated_key_in_a_sorted_file_is_refused_with_both_rows(tmp_path, monkeypatch):
@@ -91,11 +99,13 @@ def test_the_order_check_compares_every_neighbour(tmp_path):
             con.executemany("INSERT INTO _o_ready VALUES (?, ?, ?)", rows)
             stage = staging.Stage.__new__(staging.Stage)
             stage.con, stage.ready = con, "_o_ready"
+            pairs = list(zip(rows, rows[1:]))
             for batch in (1, 2, 5, 1 << 20):
-                staging.ORDER_BATCH = batch
-                try:
-                    got = stage._in_order(["model", "origin_index", "series"])
-                finally:
-                    staging.ORDER_BATCH = 1 << 20
-                pairs = list(zip(rows, rows[1:]))
-                assert got == (all(a <= b for a, b in pairs), all(a < b for a, b in pairs)), (rows, batch)
+                for together in (0, 1, 2, 3):
+                    staging.ORDER_BATCH = batch
+                    try:
+                        got = stage._in_order(["model", "origin_index", "series"], together)
+                    finally:
+                        staging.ORDER_BATCH = 1 << 20
+                    grouped = all(a[:together] <= b[:together] for a, b in pairs)
+                    assert got == (grouped, grouped and all(a < b for a, b in pairs)), (rows, batch, together)

@@ -402,8 +402,7 @@ def _read_forecasts(store, data, model, origin, freq, name, progress, *, plain: 
             option = f"--origin {origin}" if origin is not None and "origin" not in columns and \
                 not periods.kinds() else None
             _recorded(stage, source, frequency, problems, option)
-            stage.resolve(frequency, ["period", "origin"], ["model", "origin_index", "series", "period_index"],
-                          together=2)
+            stage.resolve(frequency, ["period", "origin"], ["model", "origin_index", "series", "period_index"])
             with problems.guard():
                 stage.check_horizons(source, frequency, MAX_HORIZON)
             with problems.guard():

@@ -26,6 +26,7 @@ import dataclasses
 import os
 import re
 import shutil
+import subprocess
 import sys
 import tempfile
 from collections.abc import Callable
@@ -73,6 +74,7 @@ class Step:
     pipe: tuple[str, Callable[[str], str]] = ("", _identity)
     fails: bool = False
     comment: str = ""
+    own_process: bool = False      # run as ``python -m ledger`` in a process of its own, stdout only
 
 
 @dataclasses.dataclass(frozen=True)
@@ -81,8 +83,8 @@ class Excerpt:
     ledger: Literal["demo", "copy", "fresh"] = "demo"
 
 
-def _s(*args: str, pipe=("", _identity), fails: bool = False, comment: str = "") -> Step:
-    return Step(tuple(args), pipe, fails, comment)
+def _s(*args: str, pipe=("", _identity), fails: bool = False, comment: str = "", own_process: bool = False) -> Step:
+    return Step(tuple(args), pipe, fails, comment, own_process)
 
 
 #: Invented input files (file name -> text) that the excerpts read.
@@ -151,6 +153,10 @@ EXCERPTS: dict[str, Excerpt] = {
         _s("export", "lake", "--partition"),
         _s("export", "lake", "--partition", comment="later: only what is new"),
         _s("scores", "--lake", "lake", "--by", "model", comment="DuckDB over the lake"),
+        # Spark in a process of its own (a JVM, its log on stderr), so the test session's own
+        # Spark session keeps its settings
+        _s("scores", "--engine", "spark", "--lake", "lake", "--by", "model", pipe=(" 2>/dev/null", _identity),
+           comment="Spark local[2] over the lake", own_process=True),
     ), ledger="copy"),
     "events": Excerpt((_s("events", "events.csv"),), ledger="copy"),
     "stability": Excerpt((_s("stability", "--by", "model", "--format", "csv"),)),
@@ -174,6 +180,16 @@ def run(args: list[str], *, fails: bool = False) -> str:
         raise RuntimeError(f"backsight {' '.join(args)} gave exit code {result.exit_code}: {result.output}"
                            f"{result.exception!r}")
     return result.output
+
+
+def run_process(args: list[str]) -> str:
+    """What ``backsight ARGS`` prints on stdout when run in a new process (in the current folder)."""
+    env = {**os.environ, "COLUMNS": str(WIDTH)}
+    env.pop("BACKSIGHT_LEDGER", None)
+    done = subprocess.run([sys.executable, "-m", "ledger", *args], capture_output=True, text=True, env=env)
+    if done.returncode != 0:
+        raise RuntimeError(f"backsight {' '.join(args)} gave exit code {done.returncode}: {done.stderr[-2000:]}")
+    return done.stdout
 
 
 @contextlib.contextmanager
@@ -205,7 +221,8 @@ def excerpt(ledger: Path, name: str) -> str:
             shown, cut = step.pipe
             note = f"      # {step.comment}" if step.comment else ""
             lines.append(f"$ backsight {' '.join([*prefix, *step.args])}{shown}{note}\n")
-            lines.append(cut(run([*prefix, *step.args], fails=step.fails)))
+            args = [*prefix, *step.args]
+            lines.append(cut(run_process(args) if step.own_process else run(args, fails=step.fails)))
     return "".join(lines) + "```\n"
 
 

@@ -85,8 +85,11 @@ if engine == "spark":
     fields = open(f"/proc/{pid}/stat").read().rsplit(")", 1)[1].split()
     jvm_cpu = (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")   # utime + stime
 use = resource.getrusage(resource.RUSAGE_SELF)
+# VmHWM, not ru_maxrss: Linux keeps ru_maxrss across exec, so a child would report its parent's
+# memory at the fork (the builder's 1.5 GB) as its own
+own_peak = max(int(l.split()[1]) for l in open("/proc/self/status") if l.startswith("VmHWM:")) / 1024
 print(json.dumps({"groups": len(frame), "open": t1 - t0, "score": t2 - t1, "total": t2 - t0,
-                  "cpu": use.ru_utime + use.ru_stime + jvm_cpu, "rss": use.ru_maxrss / 1024, "jvm": jvm_peak,
+                  "cpu": use.ru_utime + use.ru_stime + jvm_cpu, "rss": own_peak, "jvm": jvm_peak,
                   "load": os.getloadavg()[0]}))
 """
 

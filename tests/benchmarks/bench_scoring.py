@@ -40,7 +40,7 @@ sys.argv[0] = "backsight"
 try:
     app()
 finally:
-    print(round(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024), file=sys.stderr)
+    print(round(max(int(l.split()[1]) for l in open('/proc/self/status') if l.startswith('VmHWM:')) / 1024), file=sys.stderr)
 """
 
 

@@ -122,7 +122,7 @@ def _staged_values(book, path, plain: bool):
     return [(row, struct.pack("<d", value)) for row, value in rows]    # bit for bit: -0.0 is not 0.0
 
 
-@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(texts=st.lists(_NEAR_NUMBERS, min_size=1, max_size=4))
 def test_a_number_the_fast_road_reads_is_the_number_the_exact_reader_reads(tmp_path_factory, texts):
     """The fast road casts number cells with DuckDB; whatever text it accepts, the exact reader

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import shutil
 from pathlib import Path
 
 from hypothesis import strategies as st
@@ -17,6 +18,15 @@ def table_hashes(path) -> dict[str, str]:
     """Content hash of every table (meta excluded only for its created_at row, which never changes)."""
     with Ledger.open(path, create=False) as book:
         return {t: book.store.table_hash(t) for t in TABLES}
+
+
+def copy_ledger(source: Path, folder: Path) -> Path:
+    """A copy of the closed ledger ``source`` in ``folder``, under its own name: a ledger is built
+    once for a module or session, and each test that writes works on a copy of its own."""
+    assert not source.with_name(source.name + ".wal").exists(), "the ledger was not closed"
+    target = Path(folder) / source.name
+    shutil.copyfile(source, target)
+    return target
 
 
 def write(path, text: str):

@@ -6,7 +6,6 @@ checks that a content hash of every table is unchanged afterwards.
 
 from __future__ import annotations
 
-import shutil
 
 import pytest
 from typer.testing import CliRunner
@@ -14,7 +13,7 @@ from typer.testing import CliRunner
 from ledger.cli import app
 from ledger.store import SCHEMA_VERSION
 
-from tests.helpers import table_hashes, write
+from tests.helpers import copy_ledger, table_hashes, write
 
 FORECAST_CASES = {
     "missing_col": ("series,period\nA,2026-01\n",
@@ -71,16 +70,13 @@ def built(tmp_path_factory):
     assert runner.invoke(app, ["--ledger", str(path), "actuals", str(act)]).exit_code == 0
     assert runner.invoke(app, ["--ledger", str(path), "snapshot", str(run), "--model", "m",
                                "--origin", "2025-12"]).exit_code == 0
-    assert not path.with_name(path.name + ".wal").exists(), "the ledger was not closed"
     return path
 
 
 @pytest.fixture
 def base(built, tmp_path):
     # most tests try to write (and some do), so each gets its own copy of the file
-    path = tmp_path / "l.duckdb"
-    shutil.copyfile(built, path)
-    return path
+    return copy_ledger(built, tmp_path)
 
 
 def _refused(runner, path, args, expected):

@@ -3,7 +3,6 @@ chains, orphans, schema) and physical (a truncated file, flipped bytes), never w
 
 from __future__ import annotations
 
-import shutil
 
 import duckdb
 import pandas as pd
@@ -11,6 +10,7 @@ import pytest
 
 from ledger import Ledger
 from ledger.cli import app
+from tests.helpers import copy_ledger
 
 
 @pytest.fixture(scope="module")
@@ -26,15 +26,12 @@ def sound_once(tmp_path_factory):
         book.snapshot(frame.assign(forecast=[1.1, 2.1]), model="m", origin="2026-01", supersede=True)
         book.snapshot(frame, model="other", origin="2026-01")
         assert book.verify() == []
-    assert not path.with_name(path.name + ".wal").exists(), "the ledger was not closed"
     return path
 
 
 @pytest.fixture
 def sound(sound_once, tmp_path):
-    path = tmp_path / "l.duckdb"
-    shutil.copyfile(sound_once, path)
-    return path
+    return copy_ledger(sound_once, tmp_path)
 
 
 CHAIN = "actual revisions whose chain hash does not match"
@@ -114,14 +111,12 @@ def big_once(tmp_path_factory):
                                           "period": [f"{2000 + i // 6000}-{i // 500 % 12 + 1:02d}" for i in range(n)],
                                           "actual": range(n)}))
         book.store.con.execute("CHECKPOINT")
-    assert not path.with_name(path.name + ".wal").exists(), "the ledger was not closed"
     return path
 
 
 @pytest.mark.parametrize("how", ["truncated", "flipped"])
 def test_physical_damage_is_listed_never_a_traceback(big_once, tmp_path, runner, how):
-    path = tmp_path / "big.duckdb"
-    shutil.copyfile(big_once, path)    # the bytes are damaged in this copy only
+    path = copy_ledger(big_once, tmp_path)    # the bytes are damaged in this copy only
     _damage_bytes(path, how)
     result = runner.invoke(app, ["--ledger", str(path), "verify"])
     assert result.exit_code == 1

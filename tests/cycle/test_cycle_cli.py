@@ -15,7 +15,7 @@ from ledger import Ledger
 from ledger.cli import app
 from ledger.cycle.gate import GATE_EXIT, GATE_LEVELS, at_or_above
 from tests.cycle.test_review import _month, _narrow_inbox
-from tests.helpers import table_hashes
+from tests.helpers import copy_ledger, table_hashes
 
 
 @pytest.fixture(scope="module")
@@ -26,7 +26,6 @@ def first_review(tmp_path_factory):
     _month(inbox, 0)
     r = CliRunner().invoke(app, ["--ledger", str(path), "review", str(inbox), "--out", str(root / "rep")])
     assert r.exit_code == 0, r.output
-    assert not path.with_name(path.name + ".wal").exists(), "the ledger was not closed"
     return path, inbox, r
 
 
@@ -36,8 +35,7 @@ def reviewed(first_review, tmp_path):
     # (the report too, so a second review replaces a report as it would after a first); the inbox
     # is only read, and stays where the first review found it
     built, inbox, r = first_review
-    path = tmp_path / "l.duckdb"
-    shutil.copyfile(built, path)
+    path = copy_ledger(built, tmp_path)
     shutil.copytree(built.parent / "rep", tmp_path / "rep")
     return path, inbox, r
 

@@ -9,7 +9,6 @@ one copy serves them all; a test that writes works on a copy (as reviewed_ledger
 
 from __future__ import annotations
 
-import shutil
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -19,6 +18,7 @@ from reports import ReportResult, render_report
 from tests.reports.invented import AS_OF, INCUMBENT, build_ledger
 from tests.reports.stored_reviews import store_reviews
 from tests.reports.young_ledgers import MATRIX
+from tests.helpers import copy_ledger
 
 # The title is markup on purpose: the report tests check that it is escaped.
 TITLE = "Invented review <i>Q4</i>"
@@ -33,9 +33,7 @@ def invented_ledger(tmp_path_factory):
 def reviewed_ledger(invented_ledger, tmp_path_factory):
     """A copy of the invented ledger (copying the file is cheaper than building it) with two reviews
     stored before the as-of, so the first screen lists what changed (test_review, the browser test)."""
-    path = tmp_path_factory.mktemp("reviewed") / "invented.duckdb"
-    assert not invented_ledger.with_name(invented_ledger.name + ".wal").exists(), "the ledger was not closed"
-    shutil.copyfile(invented_ledger, path)
+    path = copy_ledger(invented_ledger, tmp_path_factory.mktemp("reviewed"))
     store_reviews(path)
     return path
 

@@ -3,7 +3,6 @@ counted in n_excluded, put back by include_excluded, and reproduced as they were
 
 from __future__ import annotations
 
-import shutil
 from pathlib import Path
 
 import numpy as np
@@ -14,6 +13,7 @@ from ledger import Ledger
 from ledger.errors import InputError
 from ledger.periods import index_start, period_index
 from ledger.store import utc_now
+from tests.helpers import copy_ledger
 
 SERIES = ["n1", "n2", "s1", "s2"]
 REGION = {"n1": "north", "n2": "north", "s1": "south", "s2": "south"}
@@ -39,16 +39,13 @@ def built(tmp_path_factory) -> Path:
                 rows = [{"series": s, "period": _label(origin + h), "forecast": round(float(rng.uniform(50, 150)), 1)}
                         for s in SERIES for h in (1, 2)]
                 book.snapshot(pd.DataFrame(rows), model=model, origin=_label(origin))
-    assert not path.with_name(path.name + ".wal").exists(), "the ledger was not closed"
     return path
 
 
 @pytest.fixture
 def book(built, tmp_path):
     # the tests record events; each writes into its own copy, so none sees another's
-    path = tmp_path / "ev.duckdb"
-    shutil.copyfile(built, path)
-    with Ledger.open(path, create=False) as book:
+    with Ledger.open(copy_ledger(built, tmp_path), create=False) as book:
         yield book
 
 

@@ -144,7 +144,6 @@ class PlainCsv:
                 exprs.append(f"{cols[name]} AS {name}")
             else:
                 if name in cols:      # the column must say what the option says
-                    key_columns.append(cols[name])
                     self._check_distinct(con, raw, cols[name], f"{cols[name]} IS NOT DISTINCT FROM {_text(option)}")
                 exprs.append(f"{_text(option)} AS {name}")
         for name, (column, blank_ok) in numbers.items():

@@ -12,7 +12,7 @@ from __future__ import annotations
 import os
 from collections.abc import Sequence
 
-import pandas as pd
+from .lazy import pandas as pd
 
 from .findings.base import KINDS, check_models
 from .scoring.attributes import AttributesResult, parse_where, series_attributes, write_attributes

@@ -19,7 +19,7 @@ from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import Literal, get_args
 
-import pandas as pd
+from .lazy import pandas as pd
 
 from .api import Ledger
 from .store import utc_now

@@ -29,8 +29,8 @@ import hashlib
 from collections.abc import Sequence
 
 import numpy as np
-import pandas as pd
-import pyarrow as pa
+from .lazy import pandas as pd
+from .lazy import pyarrow as pa
 
 __all__ = ["run_content_hash", "run_rows", "chain_hash_sql", "write_hash_sql"]
 

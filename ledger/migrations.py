@@ -10,7 +10,7 @@ import hashlib
 from collections.abc import Callable
 
 import numpy as np
-import pandas as pd
+from .lazy import pandas as pd
 
 from .hashing import chain_hash_sql, run_content_hash, run_rows, write_hash_sql
 

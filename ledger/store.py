@@ -17,7 +17,7 @@ from pathlib import Path
 
 import duckdb
 import numpy as np
-import pandas as pd
+from .lazy import pandas as pd
 
 from .version import __version__
 from .errors import LedgerBusy, LedgerError, NotALedger, SchemaTooNew, SchemaTooOld, describe_os_error

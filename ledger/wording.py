@@ -20,7 +20,7 @@ import math
 from collections.abc import Iterable
 from decimal import Decimal
 
-import pandas as pd
+from .lazy import pandas as pd
 
 from .periods import index_start, period_label
 from .stats.quantiles import TAU_DIGITS

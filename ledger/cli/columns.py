@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import UnknownName
 from ..scoring.selection import unknown_message

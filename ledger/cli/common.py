@@ -17,7 +17,7 @@ from pathlib import Path
 from typing import Annotated
 
 import duckdb
-import pandas as pd
+from ..lazy import pandas as pd
 import typer
 from rich.console import Console
 from rich.markup import escape

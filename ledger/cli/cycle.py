@@ -11,7 +11,7 @@ import sys
 from pathlib import Path
 from typing import Annotated
 
-import pandas as pd
+from ..lazy import pandas as pd
 import typer
 
 from ..cycle.gate import GATE_EXIT, GATE_LEVELS, at_or_above

@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Annotated
 
-import pandas as pd
+from ..lazy import pandas as pd
 import typer
 
 from .common import (
@@ -25,6 +25,7 @@ from .common import (
 from .columns import choose_columns
 from .engines import Engine, EngineOpt, LakeOpt, SparkMasterOpt, reading_ledger
 from .filters import ModelOpt, selection, with_selection
+from ..lazy import preload
 from ..overrides import parse_overrides
 from ..wording import plural
 from ..scoring.totals import INTERVAL_NOTE
@@ -43,6 +44,7 @@ def snapshot(
     supersede: Annotated[bool, typer.Option("--supersede", help="Replace a different run of the same model and origin (the old one is kept).")] = False,
 ) -> None:
     """Record a forecast run (or a back-fill of many runs) in the ledger."""
+    preload()   # pyarrow's conversions to NumPy import pandas; load it while DuckDB reads the file
     with open_ledger(ctx, create=True) as book, busy(f"Recording {file.name}") as step:
         result = book.snapshot(file, model=model, origin=origin, freq=freq, note=note, supersede=supersede,
                                progress=lambda done, total: step(read_share(done, total)))
@@ -88,6 +90,7 @@ def scores(
     spark_master: SparkMasterOpt = None,
 ) -> None:
     """Accuracy per group: MAE, RMSE, MAPE, sMAPE, WAPE, MASE, RMSSE, bias, coverage, interval score, WIS."""
+    preload()   # the result comes back as a data frame; load pandas while the queries run
     keys = [k.strip().lower() for k in (by or ("model" if totals else "model,horizon")).split(",") if k.strip()]
     with reading_ledger(ctx, engine, lake, spark_master) as book, busy("Scoring"):
         if totals is not None:

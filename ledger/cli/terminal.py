@@ -24,7 +24,7 @@ import unicodedata
 from collections.abc import Sequence
 from typing import Any
 
-import pandas as pd
+from ..lazy import pandas as pd
 from rich.cells import cell_len
 
 __all__ = ["printable", "out_width", "wrap", "error_lines", "command_lines", "middle", "render_table", "cell_text", "SENTENCE_COLUMNS"]

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import dataclasses
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import UnknownName
 from ..scoring.cells import Selection, cells_sql

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from typing import get_args
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import UnknownName
 from ..findings.base import Severity

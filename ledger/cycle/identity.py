@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 __all__ = ["finding_key", "with_keys"]
 

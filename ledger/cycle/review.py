@@ -20,7 +20,7 @@ import dataclasses
 import datetime as dt
 from pathlib import Path
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import LedgerError, ReviewRefused
 from ..findings.base import FlagOptions

@@ -27,7 +27,7 @@ import math
 from collections.abc import Iterable, Sequence
 from typing import Literal, get_args
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..stats.signals import DRIFT_H
 from ..errors import UnknownName

@@ -53,7 +53,7 @@ import functools
 import math
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 from scipy import stats
 
 from ..stats import intervals

@@ -18,7 +18,7 @@ Checks (all on what the ledger held at the as-of):
 
 from __future__ import annotations
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..stats.demand import demand_interval_stats, gaps
 from .base import Finding, FlagOptions

@@ -38,7 +38,7 @@ from __future__ import annotations
 import dataclasses
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..stats.changepoint import (MIN_SEGMENT, bias_scan, bonferroni_pair, cusum_onset, residual_phi, robust_spread,
                                  size_shift, whiten)

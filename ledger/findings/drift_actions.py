@@ -5,7 +5,7 @@ as a share of the ledger (the pure correction figure is :func:`ledger.stats.reca
 from __future__ import annotations
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 
 __all__ = ["best_other", "share", "SeriesIndex"]
 

@@ -14,7 +14,7 @@ import functools
 from collections.abc import Sequence
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 
 from .calibration import TEST_FIELDS, calibration_findings, level_tests
 from .drift import drift_findings, sequence_tests

@@ -31,7 +31,7 @@ import dataclasses
 import math
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..stats.intervals import benjamini_hochberg, holm
 from ..stats.quantiles import pit_from_quantiles, pit_uniformity, quantile_binomial

@@ -20,7 +20,7 @@ import math
 from collections.abc import Sequence
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..stats.comparison import DMResult, dm_hln, relative_mae, win_share
 from ..errors import LedgerError

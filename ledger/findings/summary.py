@@ -11,7 +11,7 @@ from collections.abc import Sequence
 from typing import get_args
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import UnknownName
 from ..scoring.cells import Selection

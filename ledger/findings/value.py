@@ -42,7 +42,7 @@ import math
 from collections.abc import Mapping, Sequence
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..stats.intervals import benjamini_hochberg
 from ..stats.comparison import DMResult, dm_hln

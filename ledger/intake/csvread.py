@@ -22,7 +22,7 @@ from collections import Counter
 from collections.abc import Iterator
 from pathlib import Path
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import InputError
 from ..wording import list_names, shorten

@@ -16,9 +16,9 @@ import difflib
 import re
 
 import numpy as np
-import pandas as pd
-import pyarrow as pa
-import pyarrow.compute as pc
+from ..lazy import pandas as pd
+from ..lazy import pyarrow as pa
+from ..lazy import pyarrow_compute as pc
 
 from .columns import bound_columns, is_level_column, misspelt_column, quantile_columns
 from .keys import case_twins_warning, check_option, normalise_keys

@@ -14,8 +14,8 @@ from __future__ import annotations
 import unicodedata
 
 import numpy as np
-import pyarrow as pa
-import pyarrow.compute as pc
+from ..lazy import pyarrow as pa
+from ..lazy import pyarrow_compute as pc
 
 from ..errors import InputError, LedgerError
 from ..wording import list_names, shorten

@@ -11,8 +11,8 @@ import dataclasses
 import duckdb
 
 import numpy as np
-import pandas as pd
-import pyarrow as pa
+from ..lazy import pandas as pd
+from ..lazy import pyarrow as pa
 
 from ..errors import RunConflict
 from ..hashing import chain_hash_sql, run_content_hash, write_hash_sql

@@ -14,7 +14,7 @@ from collections import Counter
 from collections.abc import Iterator
 from pathlib import Path
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from .csvread import CHUNK_ROWS, iter_csv_chunks
 from ..errors import InputError

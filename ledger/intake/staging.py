@@ -17,8 +17,8 @@ from collections.abc import Iterator
 
 import duckdb
 import numpy as np
-import pyarrow as pa
-import pyarrow.compute as pc
+from ..lazy import pyarrow as pa
+from ..lazy import pyarrow_compute as pc
 
 from ..errors import InputError
 from ..periods import period_label, period_sql

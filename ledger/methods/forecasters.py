@@ -44,7 +44,7 @@ from collections.abc import Callable, Sequence
 from functools import lru_cache
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 from scipy.stats import norm
 from statsmodels.tools.sm_exceptions import ConvergenceWarning, EstimationWarning
 from statsmodels.tsa.exponential_smoothing.ets import ETSModel

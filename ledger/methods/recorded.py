@@ -24,7 +24,7 @@ import dataclasses
 import re
 from collections.abc import Callable, Sequence
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import UnknownName
 from ..intake.ingest import MAX_HORIZON, read_actuals, read_forecasts

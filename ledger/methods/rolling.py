@@ -25,7 +25,7 @@ from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass, field
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 
 from .forecasters import LEVEL_DIGITS, forecast, min_history, season_length_note, short_history_note
 from .names import FillMethod, check_fill, check_levels, check_methods

@@ -12,7 +12,7 @@ import dataclasses
 import re
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import InputError, UnknownName
 from ..intake.sources import read_table

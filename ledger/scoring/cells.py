@@ -46,7 +46,7 @@ import datetime as dt
 from collections.abc import Sequence
 from typing import Literal, get_args
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import LedgerError
 from ..periods import index_start, parse_label, period_index

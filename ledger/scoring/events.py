@@ -19,7 +19,7 @@ import datetime as dt
 import re
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import InputError
 from ..intake.csvread import shorten

@@ -30,7 +30,7 @@ from collections.abc import Sequence
 
 import re
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import UnknownName
 from ..periods import period_label

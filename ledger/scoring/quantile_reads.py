@@ -9,7 +9,7 @@ from __future__ import annotations
 import contextlib
 from collections.abc import Iterator
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..stats.quantiles import TAU_DIGITS
 from ..store import Store

@@ -15,7 +15,7 @@ central interval has no WIS; a cell with quantiles has crps_q whether or not the
 
 from __future__ import annotations
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..stats.quantiles import TAU_DIGITS
 from ..wording import quantile_name

@@ -12,7 +12,7 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..store import Store, latest_actuals_sql, live_runs_sql
 from ..wording import format_level

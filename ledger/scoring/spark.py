@@ -20,7 +20,7 @@ import sys
 import warnings
 from collections.abc import Sequence
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import LedgerError
 from ..manifest import MANIFEST_NAME, Manifest, parse_manifest

@@ -37,7 +37,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import Literal, get_args
 
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import UnknownName
 from ..store import Store

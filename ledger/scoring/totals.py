@@ -20,7 +20,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 
 from .attributes import TOTAL_OF, check_attribute, series_attributes
 

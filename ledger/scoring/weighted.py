@@ -18,7 +18,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 import numpy as np
-import pandas as pd
+from ..lazy import pandas as pd
 
 from ..errors import UnknownName
 from .attributes import check_attribute, series_attributes

@@ -346,10 +346,10 @@ def _action(t: _Test) -> str:
     lv = format_level(t.level)
     if not math.isfinite(t.factor):
         return f"widen or narrow the {lv}% intervals; no recent cell to fit a factor on"
-    text = f"scale the {lv}% half-widths by {t.factor:.2f} to reach {lv}% over the {t.n_recent} recent cells"
+    text = f"scale the {lv}% half-widths by {t.factor:.2f} to reach {lv}% over the {t.n_recent:,} recent cells"
     if math.isfinite(t.cover):
         text += (f"; a factor fitted on the cells before {label(t.start, t.freq)} ({t.before:.2f}) would have "
-                 f"covered {t.cover:.0%} of those {t.n_recent} cells, out of sample")
+                 f"covered {t.cover:.0%} of those {t.n_recent:,} cells, out of sample")
     return text
 
 
@@ -359,9 +359,9 @@ def _model_finding(coverage: list, clustered: list, totals: _Test, total: float)
     misses, n = totals.misses, totals.n
     direction = worst.direction
     others = [_where(t) for t, _ in sorted(coverage, key=lambda ta: _edge(ta[0].bucket)) if t is not worst]
-    text = (f"{lv}% intervals missed {misses} of {n} actuals since {label(worst.since, worst.freq)}; expected about "
-            f"{about(n * (1 - worst.level / 100))}; worst at {_where(worst)}: {worst.misses} of {worst.n}, expected "
-            f"about {about(worst.expected)} ({direction}: {worst.below} below, {worst.above} above; {worst.zone}, "
+    text = (f"{lv}% intervals missed {misses:,} of {n:,} actuals since {label(worst.since, worst.freq)}; expected about "
+            f"{about(n * (1 - worst.level / 100))}; worst at {_where(worst)}: {worst.misses:,} of {worst.n:,}, expected "
+            f"about {about(worst.expected)} ({direction}: {worst.below:,} below, {worst.above:,} above; {worst.zone}, "
             f"Kupiec {pval(worst.kupiec_p)}, adjusted {pval(adj)})")
     if others:
         text += f"; also {direction} at {', '.join(others)}"
@@ -390,7 +390,7 @@ def _worst_series(cols: dict, idx: np.ndarray, top: int = 3) -> str:
     misses = np.bincount(at, weights=cols["miss"][one].astype(np.int64), minlength=names.size).astype(np.int64)
     rate = misses / size
     order = np.lexsort((np.arange(names.size), -size, -rate))[:top]
-    return "; series missing most at horizon 1: " + ", ".join(f"{names[i]} ({misses[i]} of {size[i]})" for i in order)
+    return "; series missing most at horizon 1: " + ", ".join(f"{names[i]} ({misses[i]:,} of {size[i]:,})" for i in order)
 
 
 def _clustered_finding(clustered: list, totals: _Test, total: float) -> Finding:
@@ -399,7 +399,7 @@ def _clustered_finding(clustered: list, totals: _Test, total: float) -> Finding:
     since = label(t.since, t.freq)
     overall = (t.n01 + t.n11) / (t.n00 + t.n01 + t.n10 + t.n11)
     rate_after = t.n11 / (t.n10 + t.n11) if t.n10 + t.n11 else math.nan
-    text = (f"{lv}% interval misses cluster at horizon 1 since {since}: {t.n11} of {t.n10 + t.n11} "
+    text = (f"{lv}% interval misses cluster at horizon 1 since {since}: {t.n11:,} of {t.n10 + t.n11:,} "
             f"actuals after a miss were missed again, against {overall:.0%} of all actuals "
             f"(Christoffersen LR {t.statistic:.1f}, adjusted {pval(adj)}; conditional coverage "
             f"LR {t.cc_statistic:.1f}, {pval(t.cc_p)})")
@@ -415,8 +415,8 @@ def _series_finding(t: _Test, adj: float, total: float) -> Finding:
     lv, rate = format_level(t.level), t.rate
     x = t.below + t.above
     direction = "more" if x / t.n > rate else "less"
-    text = (f"{lv}% intervals at horizon 1 missed {x} of {t.n} actuals since {label(t.since, t.freq)} "
-            f"({t.below} below, {t.above} above), {direction} often than the model's own {rate:.0%} at horizon 1 "
+    text = (f"{lv}% intervals at horizon 1 missed {x:,} of {t.n:,} actuals since {label(t.since, t.freq)} "
+            f"({t.below:,} below, {t.above:,} above), {direction} often than the model's own {rate:.0%} at horizon 1 "
             f"(nominal {1 - t.level / 100:.0%}; exact binomial, adjusted {pval(adj)})")
     return Finding(kind="calibration", series=t.series, model=t.model, horizon=1, level=t.level,
                    since=label(t.since, t.freq), figure=1 - x / t.n, evidence=text,
@@ -437,16 +437,16 @@ def _single(bucket: str) -> int | None:
 
 def _small_note(t: _Test, options: FlagOptions) -> Finding:
     since = label(t.since, t.freq)
-    text = (f"{format_level(t.level)}% intervals at {_where(t)}: {t.n} actuals since {since}; "
-            f"not enough data to judge (need {options.min_cells})")
+    text = (f"{format_level(t.level)}% intervals at {_where(t)}: {t.n:,} actuals since {since}; "
+            f"not enough data to judge (need {options.min_cells:,})")
     return Finding(kind="calibration", series=t.series, model=t.model, horizon=_single(t.bucket), level=t.level,
                    since=since, figure=float(t.n), evidence=text, check="not enough data",
                    severity="note", horizons=t.bucket, measure="cells", n=t.n)
 
 
 def _skipped_note(t: _Test, options: FlagOptions) -> Finding:
-    text = (f"{format_level(t.level)}% intervals not judged per series on {t.unjudged} of {t.n} series: "
-            f"fewer than {options.min_cells} cells each; not enough data to judge")
+    text = (f"{format_level(t.level)}% intervals not judged per series on {t.unjudged:,} of {t.n:,} series: "
+            f"fewer than {options.min_cells:,} cells each; not enough data to judge")
     return Finding(kind="calibration", series="", model=t.model, horizon=None, level=t.level, since="",
                    figure=float(t.unjudged), evidence=text, check="not enough data", severity="note",
                    horizons="all", measure="series not judged", n=t.n)

@@ -105,7 +105,7 @@ def _gap_findings(series: str, g: pd.DataFrame) -> list[Finding]:
     for start, length in gaps(g["period_index"].to_numpy()):
         span = label(start, freq) + (f" to {label(start + length - 1, freq)}" if length > 1 else "")
         plural = "s" if length > 1 else ""
-        text = f"no actual for {span} ({length} period{plural}) between recorded ones; reported, not filled in"
+        text = f"no actual for {span} ({length:,} period{plural}) between recorded ones; reported, not filled in"
         out.append(_data(series, "", label(start, freq), length, text, "gap", "missing periods", len(g)))
     return out
 
@@ -115,7 +115,7 @@ def _zero_findings(series: str, g: pd.DataFrame) -> list[Finding]:
     if zeros.empty:
         return []
     first = label(int(zeros["period_index"].iloc[0]), str(g["frequency"].iloc[0]))
-    text = f"{len(zeros)} of {len(g)} actuals are zero (first {first}); MAPE leaves those cells out"
+    text = f"{len(zeros):,} of {len(g):,} actuals are zero (first {first}); MAPE leaves those cells out"
     return [_data(series, "", first, len(zeros), text, "zero actuals", "zero actuals", len(g))]
 
 
@@ -127,7 +127,7 @@ def _demand_findings(series: str, g: pd.DataFrame, options: FlagOptions) -> list
         return []
     kind = "lumpy" if got.classification == "lumpy" else "intermittent"
     first = label(int(g["period_index"].iloc[0]), str(g["frequency"].iloc[0]))
-    text = (f"{kind} demand: {got.nonzero} of {got.n} actuals are non-zero, average demand interval "
+    text = (f"{kind} demand: {got.nonzero:,} of {got.n:,} actuals are non-zero, average demand interval "
             f"{got.adi:.2f} periods ({options.adi:g} or more is intermittent: Syntetos, Boylan & Croston 2005); "
             "percentage errors mislead here")
     return [_data(series, "", first, got.adi, text, f"{kind} demand", "average demand interval", got.n)]
@@ -140,8 +140,8 @@ def _short_findings(rows: pd.DataFrame, options: FlagOptions) -> list[Finding]:
         first, last = label(int(g["origin_index"].iloc[0]), freq), label(int(g["origin_index"].iloc[-1]), freq)
         span = first if first == last else f"{first} to {last}"
         plural = "s" if len(g) > 1 else ""
-        text = (f"forecasts from {len(g)} origin{plural} ({span}) had fewer than {options.seasons * m} actuals "
-                f"of history ({options.seasons} seasons of {m}); the shortest had {int(g['history'].min())}")
+        text = (f"forecasts from {len(g):,} origin{plural} ({span}) had fewer than {options.seasons * m:,} actuals "
+                f"of history ({options.seasons} seasons of {m}); the shortest had {int(g['history'].min()):,}")
         out.append(_data(str(series), "", first, g["history"].min(), text, "short history",
                          "shortest history (actuals)", len(g)))
     return out
@@ -152,7 +152,7 @@ def _no_actual_findings(rows: pd.DataFrame) -> list[Finding]:
     for r in rows.itertuples(index=False):
         first, last = label(r.first_due, r.frequency), label(r.last_due, r.frequency)
         plural = "s" if r.runs > 1 else ""
-        text = (f"forecast in {r.runs} run{plural} with {r.due} targets now due ({first} to {last}), "
+        text = (f"forecast in {r.runs:,} run{plural} with {r.due:,} targets now due ({first} to {last}), "
                 "but no actual has ever been recorded for this series")
         out.append(_data(str(r.series), str(r.model), first, r.due, text, "no actuals", "targets due", r.due))
     return out
@@ -163,7 +163,7 @@ def _overdue_findings(rows: pd.DataFrame) -> list[Finding]:
     for (run_id, model, freq, origin), g in rows.groupby(["run_id", "model", "frequency", "origin_index"], sort=False):
         missing, upto = int(g["missing"].sum()), label(int(g["last_due"].max()), freq)
         names = list_names(sorted(g["series"].astype(str)))
-        text = (f"run {run_id} ({model} at {label(origin, freq)}): {missing} forecasts for periods up to {upto} "
+        text = (f"run {run_id} ({model} at {label(origin, freq)}): {missing:,} forecasts for periods up to {upto} "
                 f"came due after their series' last actual and have none (series {names})")
         out.append(_data("", str(model), label(int(g["first_due"].min()), freq), missing, text,
                          "overdue actuals", "forecasts due without actuals", missing))

@@ -319,7 +319,7 @@ def _pair_finding(items: list[_Assessed], index: SeriesIndex, cols: dict, total:
     if q.bias:
         direction = "forecasts too low" if lead.mean_after > 0 else "forecasts too high"
         head = (f"{direction} since {since} at horizon {q.horizon}: mean error {signed(lead.mean_after)} "
-                f"over {lead.n_after} cells, {num(abs(lead.mean_after) / np.sqrt(lead.seq.lrv))} times the "
+                f"over {lead.n_after:,} cells, {num(abs(lead.mean_after) / np.sqrt(lead.seq.lrv))} times the "
                 "long-run spread")
         check = "bias"
     else:
@@ -331,7 +331,7 @@ def _pair_finding(items: list[_Assessed], index: SeriesIndex, cols: dict, total:
         text += (f"; a CUSUM monitor would have sounded in {label(lead.raised, freq)}, dating the change from "
                  f"{label(lead.onset, freq)}")
     if len(hs) > 1:
-        text += f"; flagged at {len(hs)} horizons in all ({horizon_ranges(hs)})"
+        text += f"; flagged at {len(hs):,} horizons in all ({horizon_ranges(hs)})"
     excess, affected = sum(a.excess for a in items), sum(a.affected for a in items)
     action, figure, measure = _action(lead, index, cols, hs)
     severity = "act" if affected > 0 and excess >= ACT_SHARE * affected else "watch"
@@ -354,7 +354,7 @@ def _action(lead: _Assessed, index: SeriesIndex, cols: dict, hs: list[int]) -> t
         fixed, plain, n = corrected_mae(cols["e"][q.idx][q.start:])
         if np.isfinite(fixed):
             return (f"correct the bias since {since} (mean error {signed(lead.mean_after)}): a constant correction "
-                    f"fitted on earlier cells gives MAE {num(fixed)} against {num(plain)} on the {n} later cells"
+                    f"fitted on earlier cells gives MAE {num(fixed)} against {num(plain)} on the {n:,} later cells"
                     f"{rival}", fixed, "MAE after a constant correction")
     if other:
         return f"since {since}{rival}; re-fit the model or switch", other[1], f"MAE of {other[0]} since the change"
@@ -412,10 +412,10 @@ def _merged(group: list[Finding], head: str) -> Finding:
     # The common change is dated at the members' median date (group is in date order): each
     # member's date errs either way, and the earliest of several errs early.
     since = group[(len(group) - 1) // 2].since
-    text = (f"{what} on {len(series)} series from about {since}: {names}; the largest "
+    text = (f"{what} on {len(series):,} series from about {since}: {names}; the largest "
             f"({lead.series}): {lead.evidence}")
     severity = "act" if any(f.severity == "act" for f in group) else "watch"
-    action = f"{len(series)} series changed together, so look for a common cause; for {lead.series}: {lead.action}"
+    action = f"{len(series):,} series changed together, so look for a common cause; for {lead.series}: {lead.action}"
     return dataclasses.replace(lead, series="", evidence=text, severity=severity, impact=impact, action=action,
                                series_list=names, since=since, n=sum(f.n for f in group),
                                horizons=horizon_ranges(sorted({h for f in group for h in _hs(f.horizons)})))
@@ -431,7 +431,7 @@ def _hs(text: str) -> list[int]:
 
 def _short_note(model: str, n_short: int, n_total: int, options: FlagOptions) -> Finding:
     need = max(options.min_cells, 2 * MIN_SEGMENT + 2)
-    text = (f"drift not judged on {n_short} of {n_total} series × horizon sequences: fewer than {need} "
+    text = (f"drift not judged on {n_short:,} of {n_total:,} series × horizon sequences: fewer than {need:,} "
             "scored cells each; not enough data to judge")
     return Finding(kind="drift", series="", model=model, horizon=None, level=None, since="",
                    figure=float(n_short), evidence=text, check="not enough data", severity="note",

@@ -154,7 +154,7 @@ def _finding(model: str, rows: list[tuple[_Test, float]], failing: list[tuple[_T
     parts = []
     if levels:
         worst = sorted(levels, key=lambda t: -abs(t.below / t.n - t.tau))[:4]
-        shown = ", ".join(f"{quantile_name(t.tau)} at {_bucket_text([t.bucket])} {t.below / t.n:.0%} below of {t.n} "
+        shown = ", ".join(f"{quantile_name(t.tau)} at {_bucket_text([t.bucket])} {t.below / t.n:.0%} below of {t.n:,} "
                           f"(expected {t.tau:.0%})" for t in sorted(worst, key=lambda t: (_bucket_key(t.bucket), t.tau)))
         parts.append(f"{_direction(levels)}: {shown}")
     if pits:
@@ -190,9 +190,9 @@ def _action(levels: list[_Test], pits: list) -> tuple[str, float]:
 def _small_note(model: str, groups: list[tuple[str, int, pd.DataFrame]], options: FlagOptions) -> Finding:
     first = min(int(p["period_index"].min()) for _, _, p in groups)
     since = label(first, str(groups[0][2]["frequency"].iloc[0]))
-    shown = ", ".join(f"{b.replace('-', '–')}: {n}" for b, n, _ in groups)
+    shown = ", ".join(f"{b.replace('-', '–')}: {n:,}" for b, n, _ in groups)
     text = (f"quantiles at {_bucket_text([b for b, _, _ in groups])} since {since}: cells per bucket {shown}; "
-            f"not enough data to judge (need {options.min_cells})")
+            f"not enough data to judge (need {options.min_cells:,})")
     return _make(model=model, horizon=None, since=since, figure=float(sum(n for _, n, _ in groups)),
                  evidence=text, check="not enough data", severity="note",
                  horizons=",".join(b for b, _, _ in groups), measure="cells", n=sum(n for _, n, _ in groups))

@@ -284,8 +284,8 @@ def _test_windows(tests: dict, recent: dict, n_all: int, n_recent: int) -> str:
     def listed(results: dict) -> str:
         return ", ".join(f"{h}: {pval(t.p_value)}" for h, t in results.items())
 
-    return (f"; DM-HLN over all {n_all} common periods: {listed(tests)}; over the last {n_recent}: "
-            f"{listed(recent)}; the rule tests all common periods, because {n_recent} periods give the test "
+    return (f"; DM-HLN over all {n_all:,} common periods: {listed(tests)}; over the last {n_recent:,}: "
+            f"{listed(recent)}; the rule tests all common periods, because {n_recent:,} periods give the test "
             "little power, and uses the recent window to judge which model is better now")
 
 
@@ -303,7 +303,7 @@ def _decide(row, outcomes, tests, ws, n_periods, window, inc, ch) -> tuple[str, 
     figures = f"relative MAE {short_num(row['rel_mae'])}, MASE {short_num(row['mase_challenger'])} vs {short_num(row['mase_incumbent'])}"
     keep = f"keep {inc}"
     if n_periods < window:
-        return "not enough data", f"{keep}: only {n_periods} common evaluation periods with {ch}; the recent window needs {window}"
+        return "not enough data", f"{keep}: only {n_periods:,} common evaluation periods with {ch}; the recent window needs {window:,}"
     if better and worse:
         return "mixed by horizon", (f"{keep}: {ch} is significantly more accurate at {horizon_text(better)} "
                                     f"but less accurate at {horizon_text(worse)}")

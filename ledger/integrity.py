@@ -155,7 +155,7 @@ def _guarded(check: str, work) -> list[Problem]:
 
 def _count(store: Store, check: str, sql: str) -> list[Problem]:
     count = store.con.execute(sql).fetchall()[0][0]
-    return [Problem(check, f"{count} row(s)")] if count else []
+    return [Problem(check, f"{count:,} row(s)")] if count else []
 
 
 def _schema(store: Store) -> list[Problem]:
@@ -202,7 +202,7 @@ def _run_hashes(store: Store, progress) -> list[Problem]:
     for i, (run_id, model, freq, origin_index, stored, n_cells) in enumerate(runs):
         part, levels, taus = run_rows(store.con, run_id)
         if len(part) != n_cells:
-            problems.append(Problem("cell count", f"run {run_id} has {len(part)} forecasts; recorded {n_cells}"))
+            problems.append(Problem("cell count", f"run {run_id} has {len(part):,} forecasts; recorded {n_cells:,}"))
         elif run_content_hash(model, freq, origin_index, part, levels, taus) != stored:
             problems.append(Problem("content hash", f"run {run_id} ({model}) does not match its recorded hash"))
         if progress:

@@ -250,7 +250,7 @@ def verify_lake(folder: str | os.PathLike) -> list:
         for f in manifest.files:
             n = store.con.execute(f"SELECT count(*) FROM read_parquet('{_quote(folder / f.path)}')").fetchone()[0]
             if n != f.rows:
-                problems.append(Problem("export rows", f"{f.path} holds {n} rows, the manifest says {f.rows}"))
+                problems.append(Problem("export rows", f"{f.path} holds {n:,} rows, the manifest says {f.rows:,}"))
         problems += verify(store)
     finally:
         store.close()

@@ -220,9 +220,9 @@ def build_series_cycle(cycle: SeriesCycle | None, frequency: str, color_of: dict
             actual = p["actual"][m]
             targets.append((label(t, frequency), [pos[int(o)] for o in p["origin_index"][m]], p["point"][m].tolist(),
                             float(actual[0]) if len(actual) and np.isfinite(actual[0]) else math.nan))
-        moves = ", ".join(f"{name} from {num(pts[0])} to {num(pts[-1])} over {len(pts)} runs"
+        moves = ", ".join(f"{name} from {num(pts[0])} to {num(pts[-1])} over {len(pts):,} runs"
                           for name, _, pts, _ in targets)
-        summary = (f"The forecasts of {cycle.model} for the last {len(targets)} target periods with two runs or more, "
+        summary = (f"The forecasts of {cycle.model} for the last {len(targets):,} target periods with two runs or more, "
                    f"run by run: {moves}. Dashed levels: the actual, where it has arrived.")
         chart = cycle_charts.paths_chart("c-paths", f"{cycle.model}: forecasts of the last targets, run by run",
                                          summary, [label(o, frequency) for o in origins], targets,

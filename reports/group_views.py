@@ -285,7 +285,7 @@ def _chart(data: GroupData, rows: list[GroupMetric], ctx: Context) -> tuple[Char
     values = {m: [cell[(g, m)].mase if (g, m) in cell else math.nan for g in groups] for m in models}
     weighted = {m: [cell[(g, m)].wmase if (g, m) in cell else math.nan for g in groups] for m in models}
     note = "" if len(groups) == len(size) else (
-        f"The chart draws the {len(groups)} groups with the most scored forecasts; the table lists all {len(size)}.")
+        f"The chart draws the {len(groups):,} groups with the most scored forecasts; the table lists all {len(size):,}.")
     words = "; ".join(f"{g}: " + ", ".join(f"{m} {num(cell[(g, m)].mase)} (weighted {num(cell[(g, m)].wmase)})"
                                            for m in models if (g, m) in cell) for g in groups)
     title = f"MASE by {attr} and model, all horizons"

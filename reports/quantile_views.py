@@ -90,7 +90,7 @@ def build_quantile_view(data: QuantileData | None, model: str) -> QuantileView:
         [r.band_low for r in rows], [r.band_high for r in rows])
     pit, pit_text = _pit(model, cells)
     n_cells = cells[["series", "horizon", "period_index"]].drop_duplicates().shape[0]
-    note = (f"{plural(n_cells, 'scored forecast')} with quantiles at {len(rows)} levels, all horizons pooled"
+    note = (f"{plural(n_cells, 'scored forecast')} with quantiles at {len(rows):,} levels, all horizons pooled"
             + (f"; a small sample (fewer than {SMALL_SAMPLE} cells), read with care." if n_cells < SMALL_SAMPLE else "."))
     return QuantileView(True, chart is not None, note, rows, reliability, pit, pit_text, chart, wis_text)
 
@@ -107,8 +107,8 @@ def _rows(cells: pd.DataFrame) -> list[QuantileRow]:
 
 def _reliability_summary(rows: list[QuantileRow]) -> str:
     outside = [r for r in rows if r.outside]
-    shown = ", ".join(f"{r.name}: {r.share:.0%} below (expected {r.tau:.0%}, n {r.n})" for r in rows)
-    tail = (f" {len(outside)} of {len(rows)} levels fall outside their 95% band (pointwise; some fall outside "
+    shown = ", ".join(f"{r.name}: {r.share:.0%} below (expected {r.tau:.0%}, n {r.n:,})" for r in rows)
+    tail = (f" {len(outside):,} of {len(rows):,} levels fall outside their 95% band (pointwise; some fall outside "
             "by chance)." if outside else " Every level is inside its 95% band.")
     return shown + "." + tail
 

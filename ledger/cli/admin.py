@@ -77,4 +77,4 @@ def import_(
     """Rebuild an export into an empty ledger (the --ledger file must be new or empty)."""
     with open_ledger(ctx, create=True) as book, busy("Importing"):
         counts = book.import_export(in_dir)
-    say(", ".join(f"{n} {table}" for table, n in counts.items() if table != "meta"))
+    say(", ".join(f"{n:,} {table}" for table, n in counts.items() if table != "meta"))

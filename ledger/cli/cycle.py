@@ -39,7 +39,7 @@ def gate(findings: pd.DataFrame, fail_on: str | None) -> None:
         return
     hits = at_or_above(findings, fail_on)
     if len(hits):
-        notice(f"gate: {len(hits)} finding(s) at or above {fail_on}; exit code {GATE_EXIT}")
+        notice(f"gate: {len(hits):,} finding(s) at or above {fail_on}; exit code {GATE_EXIT}")
         raise typer.Exit(GATE_EXIT)
 
 
@@ -74,7 +74,7 @@ def review(
         typer.echo(f"nothing new in {inbox} since review {result.review_id}; nothing stored")
     if fmt is Format.table:
         found = result.findings[result.findings["severity"] != "note"]
-        typer.echo(f"{len(found)} finding(s); report {done.report.index}")
+        typer.echo(f"{len(found):,} finding(s); report {done.report.index}")
     gate(result.findings, fail_on)
 
 
@@ -104,7 +104,7 @@ def changes(
     if len(diff.findings):
         emit(diff.findings[_CHANGE_TABLE], fmt, title="Findings")
     moved = diff.models[diff.models["moved"]]
-    typer.echo(f"{len(moved)} model(s) whose recent MASE moved by more than {diff.mase_change:g}")
+    typer.echo(f"{len(moved):,} model(s) whose recent MASE moved by more than {diff.mase_change:g}")
     if len(moved):
         emit(moved.drop(columns="moved"), fmt, title="Recent MASE, then and now")
 

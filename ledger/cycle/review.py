@@ -56,7 +56,7 @@ class ReviewResult:
 
 def _refuse(inbox: Path, problems: list[str]) -> ReviewRefused:
     lines = "\n".join(f"  {p}" for p in problems)
-    return ReviewRefused(f"review of {inbox} refused, nothing written; {len(problems)} problem(s):\n{lines}")
+    return ReviewRefused(f"review of {inbox} refused, nothing written; {len(problems):,} problem(s):\n{lines}")
 
 
 def _stage(store: Store, stack: contextlib.ExitStack, file: InboxFile):

@@ -313,13 +313,13 @@ def _decide(row, outcomes, tests, ws, n_periods, window, inc, ch) -> tuple[str, 
         return "not enough data", f"{keep}: not enough data to test {ch} at {horizon_text(untestable)}"
     if unclear or worse:
         return "not significant", (f"{keep}: {ch} is better over {recent} ({figures}) but not significantly "
-                                   f"more accurate at {horizon_text(unclear + worse)} over all {n_periods} "
+                                   f"more accurate at {horizon_text(unclear + worse)} over all {n_periods:,} "
                                    "common periods")
     won = ws.wins + 0.5 * ws.ties
     if not ws.share > 0.5:
         return "mixed by series", (f"{keep}: {ch} is significantly more accurate overall but better on only "
-                                   f"{won:g} of {ws.n} series over {recent}")
+                                   f"{won:g} of {ws.n:,} series over {recent}")
     return "recommended", (f"replace {inc} with {ch}: better over {recent} ({figures}), significantly more "
-                           f"accurate at {horizon_text(better)} over all {n_periods} common periods "
+                           f"accurate at {horizon_text(better)} over all {n_periods:,} common periods "
                            f"(DM-HLN, {_p_band([tests[h].p_value for h in better])}), "
-                           f"better on {won:g} of {ws.n} series")
+                           f"better on {won:g} of {ws.n:,} series")

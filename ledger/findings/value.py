@@ -91,7 +91,7 @@ def value_findings(cells: pd.DataFrame, subjects: Sequence[str], known: Sequence
         if whole and series:
             names = ", ".join(f.series for f in series)
             whole = [dataclasses.replace(whole[0], evidence=f"{whole[0].evidence}; significantly worse than "
-                                         f"{bench} on {len(series)} series: {names}")]
+                                         f"{bench} on {len(series):,} series: {names}")]
             series = []
         out += whole + series
     return _one_per_override(out)
@@ -182,7 +182,7 @@ def _model_value(recent: pd.DataFrame, model: str, bench: str, options: FlagOpti
     worse, n_series = _worse_series(recent)
     significant = math.isfinite(dm.p_value) and dm.p_value < options.value_alpha and dm.statistic < 0
     action = (f"use {bench} instead of {model}: over the same window {model} had the higher MAE on {worse} of "
-              f"{n_series} series")
+              f"{n_series:,} series")
     return [Finding(kind="value", series="", model=model, horizon=None, level=None, since=since,
                     figure=va, evidence=text, check="no value added" if role == "benchmark" else OVER_BASE,
                     horizons="all", severity="act" if significant else "watch",

@@ -24,7 +24,7 @@ class InputErrors(InputError):
     """Several problems of one input; the message lists them one per line."""
 
     def __init__(self, source: str, problems: list[InputError], total: int):
-        head = f"{source}: {total} problems; nothing was written"
+        head = f"{source}: {total:,} problems; nothing was written"
         lines = [head, *(str(p) for p in problems)]
         if total > len(problems):
             lines.append(f"and {total - len(problems):,} more")

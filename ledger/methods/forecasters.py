@@ -491,7 +491,7 @@ def short_history_note(n: int, m: int) -> str | None:
     """A note when n values are fewer than three seasons of length m > 1 (common practice, no source)."""
     if m > 1 and n < 3 * m:
         return (
-            f"history has {n} values, fewer than three seasons ({3 * m} for m = {m}); "
+            f"history has {n:,} values, fewer than three seasons ({3 * m:,} for m = {m}); "
             "seasonal estimates are unreliable and the season length was not checked"
         )
     return None

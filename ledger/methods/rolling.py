@@ -134,7 +134,7 @@ def _span(origins: Sequence[int]) -> str:
         return f"origin {origins[0]}"
     steps = set(np.diff(origins).tolist())
     if len(steps) == 1:
-        return f"origins {origins[0]}-{origins[-1]} ({len(origins)} origins)"
+        return f"origins {origins[0]}-{origins[-1]} ({len(origins):,} origins)"
     shown = ", ".join(str(o) for o in origins[:5])
     return f"origins {shown}" + (f" and {len(origins) - 5} more" if len(origins) > 5 else "")
 
@@ -142,7 +142,7 @@ def _span(origins: Sequence[int]) -> str:
 def _gap_text(missing: Sequence[int]) -> str:
     shown = ", ".join(str(t) for t in missing[:8])
     more = f" and {len(missing) - 8} more" if len(missing) > 8 else ""
-    return f"{len(missing)} missing period(s) (t = {shown}{more})"
+    return f"{len(missing):,} missing period(s) (t = {shown}{more})"
 
 
 class _Notes:

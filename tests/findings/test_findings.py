@@ -303,3 +303,16 @@ def test_holm_is_no_more_liberal_than_bh(interval_book, interval_flags):
     assert found(holm) <= found(interval_flags)
     # the planted problems are strong enough for either: one finding per model (measured: 2 and 2)
     assert len(found(holm)) == 2 and len(found(interval_flags)) == 2
+
+
+def test_counts_in_finding_text_carry_thousands_separators(tmp_path):
+    # 1,500 daily actuals, 1,200 of them zero: the sentence reads as the CLI's counts do
+    days = pd.date_range("2021-01-01", periods=1500, freq="D").strftime("%Y-%m-%d")
+    values = np.where(np.arange(1500) < 1200, 0.0, 5.0)
+    with Ledger.open(tmp_path / "l.duckdb") as book:
+        book.record_actuals(pd.DataFrame({"series": "big", "period": days, "actual": values}), freq="daily")
+        book.snapshot(pd.DataFrame({"series": ["big"], "period": ["2025-02-09"], "forecast": [1.0]}),
+                      model="m", origin="2025-02-08", freq="daily")
+        found = book.flags(kinds=["data"])
+    text = dict(zip(found["check"], found["evidence"]))
+    assert text["zero actuals"] == "1,200 of 1,500 actuals are zero (first 2021-01-01); MAPE leaves those cells out"

@@ -4,7 +4,7 @@
 
 Each trial starts a large snapshot or actuals import in a child process and kills it at a random
 moment; afterwards the ledger must open, `verify` must pass, earlier content must be unchanged and
-the killed import must be there whole or not at all (the checks of tests/test_crash_safety.py).
+the killed import must be there whole or not at all (the checks of tests/core/test_crash_safety.py).
 """
 
 from __future__ import annotations

@@ -12,7 +12,9 @@ A command that will need pandas anyway (``scores`` returns a data frame; ``snaps
 Arrow batches, and pyarrow imports pandas for that) calls :func:`preload` first: the import
 runs in a daemon thread while the main thread opens the ledger and DuckDB's threads, which do
 not hold the GIL, run the queries. Python's per-module import locks make a lookup on the main
-thread wait for that import rather than start a second one.
+thread wait for that import rather than start a second one. On two cores that DuckDB already
+keeps busy the overlap gains little (DEVELOPERS.md, "Latest figures"); the commands that never
+touch pandas (``--help``, ``verify``) gain the most.
 """
 
 from __future__ import annotations

@@ -71,7 +71,7 @@ def _report(result) -> None:
     for w in result.warnings:
         notice(f"Warning: {w}")
     a = result.actuals
-    say(f"actuals: {a.new} new, {a.revised} revised, {a.unchanged} unchanged")
+    say(f"actuals: {a.new:,} new, {a.revised:,} revised, {a.unchanged:,} unchanged")
     recorded = Counter(r.model for r in result.recorded)
     unchanged = Counter(r.model for r in result.unchanged)
     for model in sorted(set(recorded) | set(unchanged)):

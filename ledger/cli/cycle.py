@@ -67,8 +67,8 @@ def review(
     if fmt is not Format.table:
         emit(result.findings, fmt)
     elif result.stored:
-        typer.echo(f"review {result.review_id}: {result.runs_new} run(s) and {result.actuals_new} actual(s) recorded "
-                   f"from {len(result.files)} file(s); as-of {result.as_of:%Y-%m-%d %H:%M:%S} UTC, "
+        typer.echo(f"review {result.review_id}: {result.runs_new:,} run(s) and {result.actuals_new:,} actual(s) recorded "
+                   f"from {len(result.files):,} file(s); as-of {result.as_of:%Y-%m-%d %H:%M:%S} UTC, "
                    f"state {result.state_hash[:12]}")
     else:
         typer.echo(f"nothing new in {inbox} since review {result.review_id}; nothing stored")
@@ -99,8 +99,8 @@ def changes(
         emit(diff.models if models else diff.findings, fmt)
         return
     against = f"review {diff.then}" if diff.then is not None else "nothing (the first review)"
-    typer.echo(f"review {diff.now} against {against}: {diff.count('new')} new, {diff.count('resolved')} resolved, "
-               f"{diff.count('persisting')} persisting finding(s)")
+    typer.echo(f"review {diff.now} against {against}: {diff.count('new'):,} new, {diff.count('resolved'):,} resolved, "
+               f"{diff.count('persisting'):,} persisting finding(s)")
     if len(diff.findings):
         emit(diff.findings[_CHANGE_TABLE], fmt, title="Findings")
     moved = diff.models[diff.models["moved"]]
@@ -127,7 +127,7 @@ def events(
         return
     with open_ledger(ctx, create=True) as book:
         result = book.record_events(file)
-    typer.echo(f"{result.events} event(s): {result.changed} recorded, {result.unchanged} unchanged")
+    typer.echo(f"{result.events:,} event(s): {result.changed:,} recorded, {result.unchanged:,} unchanged")
 
 
 @app.command()

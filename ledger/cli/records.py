@@ -69,7 +69,7 @@ def actuals(
         result = book.record_actuals(file, freq=freq, progress=lambda done, total: step(read_share(done, total)))
     for w in result.warnings:
         notice(f"Warning: {w}")
-    say(f"{result.new} new, {result.revised} revised, {result.unchanged} unchanged")
+    say(f"{result.new:,} new, {result.revised:,} revised, {result.unchanged:,} unchanged")
 
 
 @app.command()
@@ -125,7 +125,7 @@ def attributes(
     """Record series attributes; a changed value is kept as a new version (as-of reproduces old groupings)."""
     with open_ledger(ctx, create=True) as book:
         result = book.record_attributes(file, total_of=total_of)
-    say(f"{plural(result.series, 'series', 'series')}: {plural(result.changed, 'value')} recorded, {result.unchanged} unchanged "
+    say(f"{plural(result.series, 'series', 'series')}: {plural(result.changed, 'value')} recorded, {result.unchanged:,} unchanged "
                f"({', '.join(result.names)})")
 
 
@@ -151,7 +151,7 @@ def adjusts(
     wanted.update({name: None for name in withdraw or ()})
     with open_ledger(ctx, create=True) as book:
         result = book.record_overrides(wanted, source="backsight adjusts")
-    say(f"{plural(result.changed, 'change')} recorded, {result.unchanged} unchanged")
+    say(f"{plural(result.changed, 'change')} recorded, {result.unchanged:,} unchanged")
 
 
 @app.command()
